@@ -1,0 +1,635 @@
+"""What a causal diagram implies for the effect of treatment X on outcome Y.
+
+Pure functions over a validated :class:`~app.graph.document.Diagram`.
+:func:`analyze` runs everything the workshop panel shows; the other public
+functions answer one question each.
+
+Terms
+-----
+proper causal path   a directed path X -> ... -> Y meeting X only at its start.
+cn(X, Y)             nodes other than X on proper causal paths (mediators and Y).
+forb(X, Y)           de(cn) u X: variables an adjustment set may not contain
+                     (Perkovic, Textor, Kalisch & Maathuis 2018, Definition 3.3).
+adjustment set       Z with Z n forb = {} that blocks every proper non-causal
+                     path (the complete adjustment criterion of Shpitser,
+                     VanderWeele & Robins 2010), equivalently Z n forb = {} and
+                     Z d-separates X and Y in the proper back-door graph
+                     (van der Zander, Liskiewicz & Textor 2019, Theorem 5).
+optimal set          O = pa(cn) \\ forb, valid whenever any adjustment set is,
+                     with the smallest asymptotic variance among valid sets for
+                     linear estimators (Henckel, Perkovic & Maathuis 2022).
+front-door set       Z intercepting every directed X->Y path, with no open
+                     back-door path from X to Z, and every back-door path from
+                     Z to Y blocked by X (Pearl 1995; Pearl 2009, Def. 3.3.3),
+                     read for sets as (X _||_ Z) in G without arrows out of X
+                     and (Z _||_ Y | X) in G without arrows out of Z (Jeong,
+                     Tian & Bareinboim 2022).
+instrument           z with conditioning set W (W free of descendants of X):
+                     z d-connected to X given W, and d-separated from Y given W
+                     once the causal arrows out of X are removed
+                     (Brito & Pearl 2002; van der Zander, Textor & Liskiewicz 2015).
+
+References
+----------
+Pearl, J. (1995). Causal diagrams for empirical research. Biometrika 82(4).
+Shpitser, I., VanderWeele, T., Robins, J. (2010). On the validity of covariate
+  adjustment for estimating causal effects. UAI.
+Perkovic, E., Textor, J., Kalisch, M., Maathuis, M. (2018). Complete graphical
+  characterization and construction of adjustment sets in Markov equivalence
+  classes of ancestral graphs. JMLR 18.
+van der Zander, B., Liskiewicz, M., Textor, J. (2019). Separators and
+  adjustment sets in causal graphs: complete criteria and an algorithmic
+  framework. Artificial Intelligence 270.
+Henckel, L., Perkovic, E., Maathuis, M. (2022). Graphical criteria for
+  efficient total effect estimation via adjustment in causal linear models.
+  JRSS-B 84(2).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import combinations
+from typing import Iterable
+
+import networkx as nx
+
+from .dag import Dag
+from .document import Diagram
+from .errors import BadQuestion
+from .paths import arrow_text, describe_path, iter_paths, relevant_nodes
+from .separators import iter_minimal_separators, moral_graph, reduce_graph
+
+__all__ = [
+    "Question",
+    "analyze",
+    "identify_effect",
+    "check_adjustment",
+    "is_adjustment_set",
+    "minimal_adjustment_sets",
+    "optimal_adjustment_set",
+    "front_door_sets",
+    "is_front_door_set",
+    "instruments",
+    "is_instrument",
+    "implications",
+    "roles",
+    "list_paths",
+]
+
+PATH_CAP = 500
+PATH_STEP_BUDGET = 40_000
+SET_CAP = 100
+FRONT_DOOR_CAP = 20
+FRONT_DOOR_CHECK_BUDGET = 2_000
+IMPLICATION_CAP = 1_000
+IMPLICATION_SEARCH_BUDGET = 400
+INSTRUMENT_EXHAUSTIVE_LIMIT = 10
+INSTRUMENT_SEPARATOR_TRIES = 8
+
+_A, _B = "\0a", "\0b"
+
+
+@dataclass
+class Question:
+    """The diagram prepared for one treatment/outcome question."""
+
+    diagram: Diagram
+    dag: Dag
+    xs: frozenset[str]
+    ys: frozenset[str]
+    observed: frozenset[str]
+    cn: frozenset[str]
+    forb: frozenset[str]
+    pbd: Dag
+
+    @classmethod
+    def of(
+        cls,
+        diagram: Diagram,
+        treatment: Iterable[str] | None = None,
+        outcome: Iterable[str] | None = None,
+    ) -> "Question":
+        xs = tuple(treatment) if treatment is not None else diagram.treatment
+        ys = tuple(outcome) if outcome is not None else diagram.outcome
+        if treatment is not None or outcome is not None:
+            diagram = diagram.with_question(xs, ys)
+        if not xs:
+            raise BadQuestion("no treatment is set: say which variable's effect to study")
+        if not ys:
+            raise BadQuestion("no outcome is set: say which variable the effect is on")
+        dag = Dag.from_diagram(diagram)
+        xset, yset = frozenset(xs), frozenset(ys)
+        reach_from_x = dag.descendants([c for x in xset for c in dag.children[x] if c not in xset], avoid=xset)
+        reach_to_y = dag.ancestors(yset, avoid=xset)
+        cn = frozenset((reach_from_x & reach_to_y) - xset)
+        forb = frozenset(dag.descendants(cn) | xset)
+        pbd = dag.without_edges((x, w) for x in xset for w in dag.children[x] if w in cn)
+        return cls(diagram, dag, xset, yset, diagram.observed, cn, forb, pbd)
+
+    def name_set(self, names: Iterable[str]) -> str:
+        names = sorted(names)
+        return "{" + ", ".join(names) + "}"
+
+
+# ---------------------------------------------------------------------------
+# Adjustment
+# ---------------------------------------------------------------------------
+
+def is_adjustment_set(q: Question, zs: Iterable[str]) -> bool:
+    zs = set(zs)
+    if zs & (q.xs | q.ys) or zs & q.forb or zs - q.observed:
+        return False
+    return q.pbd.is_d_separated(q.xs, q.ys, zs)
+
+
+def check_adjustment(q: Question, zs: Iterable[str]) -> dict:
+    """Check Z against the complete adjustment criterion and say why it fails."""
+    zs = set(zs)
+    for z in sorted(zs):
+        q.diagram.variable(z)  # raises UnknownVariable with the name
+    reasons: list[str] = []
+    for z in sorted(zs & q.xs):
+        reasons.append(f"{z} is a treatment variable and cannot also be adjusted for")
+    for z in sorted(zs & q.ys):
+        reasons.append(f"{z} is an outcome variable and cannot also be adjusted for")
+    for z in sorted(zs - q.observed):
+        reasons.append(f"{z} is unmeasured (latent), so it cannot be adjusted for")
+    for z in sorted((zs & q.forb) - q.xs - q.ys):
+        reasons.append(_forbidden_reason(q, z))
+    rest = zs - q.xs - q.ys
+    open_path = None
+    if not q.pbd.is_d_separated(q.xs, q.ys, rest):
+        open_path = _find_open_path(q.pbd, q, rest)
+        if open_path is not None:
+            reasons.append(
+                f"the non-causal path {arrow_text(q.dag, open_path)} stays open "
+                f"given {q.name_set(rest)}"
+            )
+        else:
+            reasons.append(
+                f"a non-causal path from {q.name_set(q.xs)} to {q.name_set(q.ys)} stays open "
+                f"given {q.name_set(rest)} (too many paths to single one out)"
+            )
+    out = {"set": sorted(zs), "valid": not reasons, "reasons": reasons}
+    if open_path is not None:
+        out["open_path"] = open_path
+    return out
+
+
+def _forbidden_reason(q: Question, z: str) -> str:
+    if z in q.cn:
+        return (
+            f"{z} lies on a causal path from {q.name_set(q.xs)} to {q.name_set(q.ys)} "
+            "(a mediator); adjusting for it removes part of the effect"
+        )
+    ancestors = sorted(q.dag.ancestors([z]) & q.cn)
+    via = next((a for a in ancestors if a in q.ys), ancestors[0])
+    if via in q.ys:
+        return f"{z} is a descendant of the outcome {via}; adjusting for it biases the estimate"
+    return (
+        f"{z} is a descendant of {via}, which lies on a causal path; "
+        "adjusting for it biases the estimate"
+    )
+
+
+def _find_open_path(dag: Dag, q: Question, given: set[str]) -> list[str] | None:
+    opened = dag.ancestors(given)
+    allowed = set(dag.nodes) - q.xs - q.ys
+    for path in iter_paths(dag, set(q.xs), set(q.ys), allowed=allowed, given=given,
+                           opened=opened, budget=[PATH_STEP_BUDGET]):
+        return path
+    return None
+
+
+def _reduced_back_door_graph(q: Question, extra_forbidden: Iterable[str] = ()) -> dict:
+    area = q.dag.ancestors(q.xs | q.ys)
+    adj = moral_graph(q.pbd, area)
+    allowed = (area & q.observed) - q.xs - q.ys - q.forb - set(extra_forbidden)
+    return reduce_graph(adj, set(q.xs), set(q.ys), allowed, _A, _B)
+
+
+def minimal_adjustment_sets(q: Question, cap: int = SET_CAP) -> tuple[list[list[str]], bool]:
+    """All minimal adjustment sets over observed variables (up to ``cap``)."""
+    reduced = _reduced_back_door_graph(q)
+    found: list[list[str]] = []
+    for sep in iter_minimal_separators(reduced, _A, _B):
+        if len(found) == cap:
+            return sorted(found), True
+        found.append(sorted(sep))
+    return sorted(found), False
+
+
+def optimal_adjustment_set(q: Question, any_valid: bool | None = None) -> tuple[list[str] | None, str]:
+    """The O-set of Henckel, Perkovic & Maathuis (2022), or None with the reason."""
+    parents = set()
+    for w in q.cn:
+        parents |= q.dag.parents[w]
+    o_set = parents - q.forb
+    if any_valid is None:
+        any_valid = bool(minimal_adjustment_sets(q, cap=1)[0])
+    if not any_valid:
+        return None, "no adjustment set over measured variables exists, so there is no optimal one"
+    hidden = sorted(o_set - q.observed)
+    if hidden:
+        return None, (
+            "the optimal set would contain unmeasured "
+            + ", ".join(hidden)
+            + "; use one of the minimal adjustment sets instead"
+        )
+    if not q.cn:
+        return None, (
+            "the diagram has no causal path from treatment to outcome, "
+            "so the effect is zero and no set is more efficient than another"
+        )
+    if not is_adjustment_set(q, o_set):  # pragma: no cover - guaranteed by the theorem
+        return None, "the optimal set is not valid here"
+    return sorted(o_set), (
+        "parents of the mediators and the outcome that are not themselves affected by the "
+        "treatment; among valid sets it gives the smallest variance for linear estimators"
+    )
+
+
+# ---------------------------------------------------------------------------
+# Front door and instruments
+# ---------------------------------------------------------------------------
+
+def is_front_door_set(q: Question, zs: Iterable[str]) -> bool:
+    zs = set(zs)
+    if not zs or zs & (q.xs | q.ys) or zs - q.observed:
+        return False
+    # (i) Z intercepts every directed path from X to Y.
+    reach = q.dag.descendants([c for x in q.xs for c in q.dag.children[x] if c not in zs], avoid=zs)
+    if reach & q.ys:
+        return False
+    # (ii) no open back-door path from X to Z.
+    if not q.dag.without_edges_out_of(q.xs).is_d_separated(q.xs, zs, ()):
+        return False
+    # (iii) every back-door path from Z to Y is blocked by X.
+    return q.dag.without_edges_out_of(zs).is_d_separated(zs, q.ys, q.xs)
+
+
+def front_door_sets(q: Question, cap: int = FRONT_DOOR_CAP) -> tuple[list[list[str]], bool]:
+    """Minimal front-door sets among observed variables, smallest first."""
+    # Condition (ii) holds element by element, so it filters candidates first.
+    # Mediators come first; other variables can be needed to satisfy (iii).
+    back_door_reachable = q.dag.without_edges_out_of(q.xs).d_connected(q.xs, ())
+    pool = q.observed - q.xs - q.ys - back_door_reachable - q.dag.descendants(q.ys)
+    candidates = sorted(pool & q.cn) + sorted(pool - q.cn)
+    if not pool & q.cn:
+        return [], False
+    found: list[frozenset[str]] = []
+    checks = 0
+    for size in range(1, len(candidates) + 1):
+        for combo in combinations(candidates, size):
+            chosen = frozenset(combo)
+            if any(f <= chosen for f in found):
+                continue
+            checks += 1
+            if checks > FRONT_DOOR_CHECK_BUDGET:
+                return sorted(sorted(f) for f in found), True
+            if is_front_door_set(q, chosen):
+                if len(found) == cap:
+                    return sorted(sorted(f) for f in found), True
+                found.append(chosen)
+    return sorted(sorted(f) for f in found), False
+
+
+def is_instrument(q: Question, z: str, given: Iterable[str]) -> bool:
+    given = set(given)
+    if len(q.xs) != 1 or len(q.ys) != 1:
+        return False
+    (x,) = q.xs
+    if z in q.xs | q.ys or z in given or z not in q.observed or given - q.observed:
+        return False
+    non_desc = set(q.dag.nodes) - q.dag.descendants(q.xs)
+    if z not in non_desc or not given <= non_desc:
+        return False
+    if q.pbd.is_d_separated([z], q.ys, given):
+        return q.dag.d_connected([z], given).__contains__(x)
+    return False
+
+
+def instruments(q: Question, conditional: bool = True) -> list[dict]:
+    """Each observed variable that can serve as an instrument, with a conditioning set.
+
+    ``analyze`` searches conditional instruments only when no adjustment set
+    exists (they are then the fallback); unconditional ones are always cheap.
+
+    Unconditional instruments come first in the search; for the rest the search
+    is exhaustive when at most INSTRUMENT_EXHAUSTIVE_LIMIT variables may be
+    conditioned on, and otherwise tries minimal z-Y separators and their
+    one-variable extensions.
+    """
+    if len(q.xs) != 1 or len(q.ys) != 1 or not q.cn:
+        return []
+    (x,) = q.xs
+    descendants = q.dag.descendants(q.xs)
+    eligible = sorted(q.observed - descendants - q.ys)
+    connected_x = q.dag.d_connected([x], ())
+    connected_y = q.pbd.d_connected(q.ys, ())
+    found = []
+    for z in eligible:
+        if z in connected_x and z not in connected_y:
+            found.append({"instrument": z, "given": []})
+            continue
+        if not conditional:
+            continue
+        given = _find_instrument_conditioning(q, z, [v for v in eligible if v != z])
+        if given is not None:
+            found.append({"instrument": z, "given": sorted(given)})
+    return found
+
+
+def _find_instrument_conditioning(q: Question, z: str, allowed: list[str]) -> set[str] | None:
+    (x,) = q.xs
+    area = q.dag.ancestors(q.xs | q.ys | {z})
+    pool = [v for v in allowed if v in area] if len(allowed) > INSTRUMENT_EXHAUSTIVE_LIMIT else allowed
+
+    def works(w: set[str]) -> bool:
+        return q.pbd.is_d_separated([z], q.ys, w) and x in q.dag.d_connected([z], w)
+
+    if len(pool) <= INSTRUMENT_EXHAUSTIVE_LIMIT:
+        for size in range(1, len(pool) + 1):
+            for combo in combinations(pool, size):
+                if works(set(combo)):
+                    return set(combo)
+        return None
+    zone = q.pbd.ancestors(q.ys | {z})
+    adj = moral_graph(q.pbd, zone)
+    reduced = reduce_graph(adj, {z}, set(q.ys), set(allowed) & zone, _A, _B)
+    tried = 0
+    for sep in iter_minimal_separators(reduced, _A, _B):
+        sep = set(sep)
+        if works(sep):
+            return sep
+        for extra in allowed:
+            if extra not in sep and works(sep | {extra}):
+                return sep | {extra}
+        tried += 1
+        if tried >= INSTRUMENT_SEPARATOR_TRIES:
+            break
+    return None
+
+
+# ---------------------------------------------------------------------------
+# Testable implications
+# ---------------------------------------------------------------------------
+
+def implications(diagram: Diagram, cap: int = IMPLICATION_CAP) -> tuple[list[dict], int, bool]:
+    """One conditional independence per non-adjacent pair of observed variables.
+
+    Without unmeasured parents this is the local Markov basis: the later
+    variable of the pair (in a topological order) is independent of the
+    earlier one given its own parents (Pearl 2009, Theorem 1.2.7). When those
+    parents include an unmeasured variable, a minimal separator over measured
+    variables is searched for (networkx ``find_minimal_d_separator``); a pair
+    with none implies nothing testable. Returns (listed, total, incomplete).
+    """
+    dag = Dag.from_diagram(diagram)
+    observed = diagram.observed
+    order = [v for v in dag.topological_order() if v in observed]
+    position = {v: i for i, v in enumerate(order)}
+    listed: list[dict] = []
+    total = 0
+    searches = 0
+    incomplete = False
+    graph = None
+    for later in order:
+        parents = dag.parents[later]
+        hidden_parent = bool(parents - observed)
+        for earlier in order[: position[later]]:
+            if earlier in parents or later in dag.parents[earlier]:
+                continue
+            if not hidden_parent:
+                given = sorted(parents)
+            else:
+                if searches >= IMPLICATION_SEARCH_BUDGET:
+                    incomplete = True
+                    continue
+                searches += 1
+                if graph is None:
+                    graph = diagram.to_networkx()
+                sep = nx.find_minimal_d_separator(graph, {earlier}, {later}, restricted=set(observed))
+                if sep is None:
+                    continue
+                given = sorted(sep)
+            total += 1
+            if len(listed) < cap:
+                x, y = sorted((earlier, later))
+                listed.append({"x": x, "y": y, "given": given})
+    listed.sort(key=lambda i: (i["x"], i["y"]))
+    return listed, total, incomplete
+
+
+# ---------------------------------------------------------------------------
+# Paths and roles
+# ---------------------------------------------------------------------------
+
+def list_paths(q: Question, given: Iterable[str] = (), cap: int = PATH_CAP) -> tuple[list[dict], int, bool]:
+    """Proper paths from X to Y, open ones first; (listed, counted, capped)."""
+    given = set(given)
+    opened = q.dag.ancestors(given)
+    allowed = relevant_nodes(q.dag, set(q.xs), set(q.ys))
+    seen: set[tuple[str, ...]] = set()
+    reports = []
+    # First the open paths (pruned search), so the ones that matter are listed.
+    for nodes in iter_paths(q.dag, set(q.xs), set(q.ys), allowed=allowed, given=given,
+                            opened=opened, budget=[PATH_STEP_BUDGET]):
+        if len(reports) >= cap:
+            break
+        seen.add(tuple(nodes))
+        reports.append(describe_path(q.dag, nodes, given, opened))
+    budget = [PATH_STEP_BUDGET]
+    count = 0
+    for nodes in iter_paths(q.dag, set(q.xs), set(q.ys), allowed=allowed, budget=budget):
+        count += 1
+        if len(reports) < cap and tuple(nodes) not in seen:
+            seen.add(tuple(nodes))
+            reports.append(describe_path(q.dag, nodes, given, opened))
+    capped = budget[0] <= 0
+    count = max(count, len(reports))
+    reports.sort(key=lambda r: (not r.open, r.causal, len(r.nodes), r.nodes))
+    return [r.to_json(q.dag) for r in reports], count, capped or count > cap
+
+
+def roles(q: Question, instrument_names: Iterable[str] = ()) -> dict[str, list[str]]:
+    dag = q.dag
+    an_x = dag.ancestors(q.xs)
+    an_y_not_via_x = dag.ancestors(q.ys, avoid=q.xs)
+    de_x = dag.descendants(q.xs)
+    de_y = dag.descendants(q.ys)
+    colliders = _colliders_on_paths(q)
+    instruments_ = set(instrument_names)
+    out: dict[str, list[str]] = {}
+    for v in sorted(dag.nodes):
+        if v in q.xs:
+            out[v] = ["treatment"]
+            continue
+        if v in q.ys:
+            out[v] = ["outcome"]
+            continue
+        r = []
+        if v in an_x and v in an_y_not_via_x:
+            r.append("confounder")
+        elif v in an_x:
+            r.append("treatment_cause")
+        elif v in an_y_not_via_x:
+            r.append("outcome_cause")
+        if v in q.cn:
+            r.append("mediator")
+        if v in colliders:
+            r.append("collider")
+        if v in de_x:
+            r.append("treatment_descendant")
+        if v in de_y:
+            r.append("outcome_descendant")
+        if v in instruments_:
+            r.append("instrument")
+        out[v] = r or ["unrelated"]
+    return out
+
+
+def _colliders_on_paths(q: Question) -> set[str]:
+    """Nodes that are a collider on at least one proper X-Y path.
+
+    c is one iff two of its parents reach X and Y by vertex-disjoint paths
+    avoiding c (and inner nodes outside X u Y): a unit-capacity flow of 2.
+    """
+    dag = q.dag
+    relevant = relevant_nodes(dag, set(q.xs), set(q.ys))
+    out = set()
+    for c in relevant:
+        parents = [p for p in dag.parents[c] if p in relevant or p in q.xs or p in q.ys]
+        if len(parents) < 2:
+            continue
+        if _two_disjoint_paths(dag, q, c, parents, relevant):
+            out.add(c)
+    return out
+
+
+def _two_disjoint_paths(dag: Dag, q: Question, c: str, parents: list[str], relevant: set[str]) -> bool:
+    # Split each inner node v into (v, in) -> (v, out) with capacity 1.
+    flow = nx.DiGraph()
+    src, sink = "\0s", "\0t"
+    inner = relevant - {c}
+    for v in inner:
+        flow.add_edge((v, 0), (v, 1), capacity=1)
+        for w in dag.neighbours(v):
+            if w in inner:
+                flow.add_edge((v, 1), (w, 0), capacity=1)
+            elif w in q.xs:
+                flow.add_edge((v, 1), "\0X", capacity=1)
+            elif w in q.ys:
+                flow.add_edge((v, 1), "\0Y", capacity=1)
+    flow.add_edge("\0X", sink, capacity=1)
+    flow.add_edge("\0Y", sink, capacity=1)
+    for p in parents:
+        if p in q.xs:
+            flow.add_edge(src, "\0X", capacity=1)
+        elif p in q.ys:
+            flow.add_edge(src, "\0Y", capacity=1)
+        else:
+            flow.add_edge(src, (p, 0), capacity=1)
+    value = nx.maximum_flow_value(flow, src, sink)
+    return value >= 2
+
+
+# ---------------------------------------------------------------------------
+# Everything at once
+# ---------------------------------------------------------------------------
+
+def identify_effect(diagram: Diagram, *, set_cap: int = SET_CAP) -> dict:
+    """The cheap part of the analysis: is the effect identified, and how."""
+    q = Question.of(diagram)
+    return _identify(q, set_cap)
+
+
+def _identify(q: Question, set_cap: int) -> dict:
+    sets, more = minimal_adjustment_sets(q, cap=set_cap)
+    optimal, note = optimal_adjustment_set(q, any_valid=bool(sets))
+    out = {
+        "treatment": sorted(q.xs),
+        "outcome": sorted(q.ys),
+        "minimal_adjustment_sets": sets,
+        "more_sets_exist": more,
+        "optimal_adjustment_set": optimal,
+        "optimal_note": note,
+        "front_door_sets": [],
+        "front_door_more": False,
+        "instruments": [],
+    }
+    if sets:
+        out["identifiable"], out["strategy"] = True, "adjustment"
+        out["instruments"] = instruments(q, conditional=False)
+    else:
+        fd, fd_more = front_door_sets(q)
+        out["front_door_sets"], out["front_door_more"] = fd, fd_more
+        out["instruments"] = instruments(q)
+        if fd:
+            out["identifiable"], out["strategy"] = True, "front-door"
+        elif out["instruments"]:
+            out["identifiable"], out["strategy"] = True, "instrument"
+        else:
+            out["identifiable"], out["strategy"] = False, None
+    return out
+
+
+def analyze(
+    diagram: Diagram,
+    adjust: Iterable[str] | None = None,
+    *,
+    treatment: Iterable[str] | None = None,
+    outcome: Iterable[str] | None = None,
+) -> dict:
+    """The full analysis of the diagram for its question (JSON-ready)."""
+    q = Question.of(diagram, treatment, outcome)
+    out = _identify(q, SET_CAP)
+    given = set(adjust) if adjust is not None else set()
+    if adjust is not None:
+        out["adjustment_check"] = check_adjustment(q, given)
+    paths, total, capped = list_paths(q, given - q.xs - q.ys)
+    out["paths"], out["paths_total"], out["paths_capped"] = paths, total, capped
+    listed, imp_total, incomplete = implications(q.diagram)
+    out["implications"] = listed
+    out["implications_total"] = imp_total
+    out["implications_capped"] = incomplete or imp_total > len(listed)
+    out["roles"] = roles(q, (i["instrument"] for i in out["instruments"]))
+    out["causal_path_exists"] = bool(q.cn)
+    out["summary"] = _summary(q, out)
+    return out
+
+
+def _summary(q: Question, out: dict) -> str:
+    x, y = ", ".join(sorted(q.xs)), ", ".join(sorted(q.ys))
+    if not q.cn:
+        lead = f"The diagram has no causal path from {x} to {y}: it says the effect is zero. "
+    else:
+        lead = ""
+    if out["strategy"] == "adjustment":
+        sets = out["minimal_adjustment_sets"]
+        n = f"{len(sets)}{'+' if out['more_sets_exist'] else ''}"
+        if sets == [[]]:
+            return lead + f"The effect of {x} on {y} is identified without adjusting for anything."
+        best = out["optimal_adjustment_set"]
+        tail = f" The most precise valid set is {q.name_set(best)}." if best is not None else ""
+        return lead + (
+            f"The effect of {x} on {y} is identified by adjustment; "
+            f"{n} minimal adjustment set(s), e.g. {q.name_set(sets[0])}.{tail}"
+        )
+    if out["strategy"] == "front-door":
+        return (
+            f"No adjustment set exists, but the effect of {x} on {y} is identified by the "
+            f"front-door criterion through {q.name_set(out['front_door_sets'][0])}."
+        )
+    if out["strategy"] == "instrument":
+        first = out["instruments"][0]
+        given = f" given {q.name_set(first['given'])}" if first["given"] else ""
+        return (
+            f"No adjustment or front-door set exists; {first['instrument']} can serve as an "
+            f"instrument{given}. That identifies the effect only under extra assumptions "
+            "(for example a linear, homogeneous effect)."
+        )
+    return (
+        f"The effect of {x} on {y} is not identified by adjustment, the front-door criterion "
+        "or an instrument in this diagram: measuring more variables or changing the design is needed."
+    )
