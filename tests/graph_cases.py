@@ -107,3 +107,33 @@ def random_question(rng: random.Random, n: int, p: float, latent_share: float = 
         "treatment": treatment,
         "outcome": outcome,
     }
+
+
+def planted_question(rng: random.Random, n: int, p: float):
+    """A random DAG with an unmeasured x-y confounder and an x -> m -> y chain planted.
+
+    Such graphs often have no adjustment set, so front-door sets and
+    (conditional) instruments show up; pure random DAGs rarely have them.
+    """
+    order = [f"v{i}" for i in range(n)]
+    rng.shuffle(order)
+    ix, im, iy = sorted(rng.sample(range(1, n), 3))
+    x, m, y = order[ix], order[im], order[iy]
+    arrows = {(order[i], order[j]) for i in range(n) for j in range(i + 1, n) if rng.random() < p}
+    arrows |= {("u", x), ("u", y), (x, m), (m, y)}
+    if rng.random() < 0.7:
+        arrows.discard((x, y))
+    names = order + ["u"]
+    if rng.random() < 0.5:  # an instrument candidate, sometimes needing a conditioning set
+        names.append("z")
+        arrows.add(("z", x))
+        if rng.random() < 0.5:
+            names.append("w")
+            arrows |= {("w", "z"), ("w", y)}
+    latent = {"u"} | {v for v in order if v not in (x, y, m) and rng.random() < 0.15}
+    return {
+        "variables": [{"name": v, "latent": v in latent} for v in names],
+        "arrows": [{"from": a, "to": b} for a, b in sorted(arrows)],
+        "treatment": [x],
+        "outcome": [y],
+    }
