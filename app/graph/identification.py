@@ -473,7 +473,7 @@ def roles(q: Question, instrument_names: Iterable[str] = ()) -> dict[str, list[s
             r.append("confounder")
         elif v in an_x:
             r.append("treatment_cause")
-        elif v in an_y_not_via_x:
+        elif v in an_y_not_via_x and v not in de_x:
             r.append("outcome_cause")
         if v in q.cn:
             r.append("mediator")

@@ -126,7 +126,14 @@ def describe_path(dag: Dag, nodes: list[str], given: set[str], opened: set[str])
     elif len(nodes) == 2:
         why = "open: a direct arrow into the treatment from the outcome side"
     else:
-        why = "open: a non-causal path with no collider and nothing on it adjusted for"
+        forks = [
+            nodes[i] for i in range(1, len(nodes) - 1)
+            if nodes[i - 1] in dag.children[nodes[i]] and nodes[i + 1] in dag.children[nodes[i]]
+        ]
+        if forks:
+            why = f"open: a non-causal path through common cause {forks[0]}; nothing on it is adjusted for"
+        else:
+            why = "open: a non-causal path with no collider and nothing on it adjusted for"
     return PathReport(nodes, causal, True, why, opened_colliders=colliders)
 
 

@@ -1,0 +1,157 @@
+"""The ``arrowmoot`` command.
+
+    arrowmoot serve [--host 127.0.0.1] [--port 8000] [--db PATH]
+    arrowmoot identify GRAPH [--treatment A] [--outcome B] [--adjust Z1,Z2] [--format json|text]
+    arrowmoot estimate GRAPH DATA [--map variable=column ...] [--method NAME]
+    arrowmoot --version
+
+GRAPH is a graph document (.json), GraphML (.graphml, .xml) or DOT (.dot, .gv).
+A bad file or question exits with code 2 and a one-line message, never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from . import __version__
+from .graph.document import Diagram, parse_document
+from .graph.errors import DiagramError
+
+EXIT_BAD_INPUT = 2
+
+
+class InputProblem(Exception):
+    """A problem with what the user gave the command; printed without a traceback."""
+
+
+def read_diagram(path: str) -> Diagram:
+    """Read a graph file in any supported format, judged by its extension."""
+    file = Path(path)
+    try:
+        raw = file.read_bytes()
+    except FileNotFoundError:
+        raise InputProblem(f"no such file: {path}") from None
+    except IsADirectoryError:
+        raise InputProblem(f"{path} is a folder, not a graph file") from None
+    except OSError as err:
+        raise InputProblem(f"cannot read {path}: {err.strerror}") from None
+    suffix = file.suffix.lower()
+    if suffix in (".graphml", ".xml"):
+        from .graph.formats import from_graphml
+
+        return from_graphml(raw)
+    if suffix in (".dot", ".gv"):
+        from .graph.formats import from_dot
+
+        return from_dot(raw)
+    try:
+        data = json.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise InputProblem(f"{path} is not UTF-8 text; give a JSON graph document") from None
+    except json.JSONDecodeError as err:
+        raise InputProblem(
+            f"{path} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})"
+        ) from None
+    return parse_document(data)
+
+
+def _names(value: str | None) -> list[str] | None:
+    if value is None:
+        return None
+    return [part.strip() for part in value.split(",") if part.strip()]
+
+
+def run_identify(args: argparse.Namespace) -> int:
+    from .graph.identification import analyze
+    from .graph.text import format_analysis
+
+    diagram = read_diagram(args.graph)
+    result = analyze(
+        diagram,
+        adjust=_names(args.adjust),
+        treatment=_names(args.treatment),
+        outcome=_names(args.outcome),
+    )
+    if args.format == "json":
+        print(json.dumps(result, indent=2, ensure_ascii=False))
+    else:
+        print(format_analysis(result))
+    return 0
+
+
+def run_serve(args: argparse.Namespace) -> int:
+    import uvicorn
+
+    from .main import create_app
+
+    app = create_app(db_path=args.db)
+    if args.host not in ("127.0.0.1", "localhost", "::1"):
+        print(
+            f"warning: serving on {args.host}: anyone who can reach this address can open the "
+            "join page; session links still need their tokens.",
+            file=sys.stderr,
+        )
+    uvicorn.run(app, host=args.host, port=args.port, log_level="info", access_log=False)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="arrowmoot",
+        description="Agree a causal diagram in a workshop, then estimate what it identifies.",
+    )
+    parser.add_argument("--version", action="version", version=f"arrowmoot {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    serve = commands.add_parser("serve", help="start the workshop server")
+    serve.add_argument("--host", default="127.0.0.1",
+                       help="address to bind (default 127.0.0.1, this machine only)")
+    serve.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    serve.add_argument("--db", default=None,
+                       help="SQLite database file (default ./data/arrowmoot.sqlite3)")
+    serve.set_defaults(run=run_serve)
+
+    identify = commands.add_parser("identify", help="analyse a diagram for its question")
+    identify.add_argument("graph", help="graph file: .json document, .graphml or .dot")
+    identify.add_argument("--treatment", help="treatment variable(s), comma-separated")
+    identify.add_argument("--outcome", help="outcome variable(s), comma-separated")
+    identify.add_argument("--adjust", help="adjustment set to check and condition paths on, comma-separated")
+    identify.add_argument("--format", choices=("json", "text"), default="json")
+    identify.set_defaults(run=run_identify)
+
+    try:
+        from .estimation.cli import add_parser as add_estimate_parser
+        from .estimation.cli import run as run_estimate
+    except ModuleNotFoundError as err:
+        if not (err.name or "").startswith("app.estimation"):
+            raise
+    except ImportError:
+        pass  # the estimation command is not ready in this build
+    else:
+        add_estimate_parser(commands)
+        estimate = commands.choices.get("estimate")
+        if estimate is not None and estimate.get_default("run") is None:
+            estimate.set_defaults(run=run_estimate)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "run", None):
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        return args.run(args)
+    except (DiagramError, InputProblem) as err:
+        print(f"arrowmoot: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
