@@ -1,0 +1,108 @@
+"""Build the Arrowmoot web application."""
+
+from __future__ import annotations
+
+import importlib
+import json
+import logging
+import sys
+from contextlib import asynccontextmanager
+from pathlib import Path
+
+from fastapi import FastAPI
+from fastapi.staticfiles import StaticFiles
+from fastapi.templating import Jinja2Templates
+
+from .errors import install_error_handlers
+from .settings import Settings
+from .store import Store
+from .web import pages, ws
+from .web.live import Hub
+from .web.routes import identify, sessions
+
+__all__ = ["create_app"]
+
+log = logging.getLogger("arrowmoot")
+
+ROOT = Path(__file__).resolve().parent.parent
+STATIC_DIR = ROOT / "static"
+TEMPLATES_DIR = ROOT / "templates"
+
+CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
+       "connect-src 'self' ws: wss:; frame-ancestors 'none'; base-uri 'none'; form-action 'self'")
+
+
+def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None = None,
+               settings: Settings | None = None) -> FastAPI:
+    """The FastAPI app over one SQLite file (``settings.db_path`` unless ``db_path`` is given)."""
+    settings = settings or Settings()
+    if db_path is not None:
+        settings.db_path = Path(db_path)
+    if data_dir is not None:
+        settings.data_dir = Path(data_dir)
+
+    store = Store(settings.db_path, data_dir=settings.data_dir)
+    hub = Hub(store)
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI):
+        if settings.demo_session:
+            _create_demo_session(hub, settings)
+        yield
+        await hub.close()
+
+    app = FastAPI(title="Arrowmoot", version="0.1.0", lifespan=lifespan)
+    app.state.settings = settings
+    app.state.store = store
+    app.state.hub = hub
+    app.state.static_dir = STATIC_DIR
+    templates = Jinja2Templates(directory=str(TEMPLATES_DIR))
+    app.state.templates = templates
+    install_error_handlers(app)
+
+    @app.middleware("http")
+    async def security_headers(request, call_next):
+        response = await call_next(request)
+        response.headers.setdefault("Content-Security-Policy", CSP)
+        response.headers.setdefault("X-Content-Type-Options", "nosniff")
+        response.headers.setdefault("Referrer-Policy", "no-referrer")
+        return response
+
+    app.include_router(identify.router)
+    app.include_router(sessions.router)
+    app.include_router(ws.router)
+    app.include_router(pages.router)
+    try:
+        # built by the estimation stage; absent until then
+        estimation = importlib.import_module("app.web.routes.estimation")
+    except ModuleNotFoundError as exc:
+        if exc.name != "app.web.routes.estimation":
+            raise
+    else:
+        app.include_router(estimation.router)
+    app.mount("/static", StaticFiles(directory=str(STATIC_DIR)), name="static")
+    return app
+
+
+def _create_demo_session(hub: Hub, settings: Settings) -> None:
+    """With an empty database, open the cycle-to-work demo and print its links once."""
+    if hub.store.count_sessions() > 0:
+        return
+    path = settings.demo_document
+    if not path.is_file():
+        return
+    try:
+        document = json.loads(path.read_text(encoding="utf-8"))
+        w, token = hub.create_session(title="Cycle-to-work scheme and sick days (demo)",
+                                      facilitator_name="Facilitator", document=document)
+    except Exception as exc:  # a broken demo file must not stop the server
+        log.warning("demo session not created: %s", exc)
+        return
+    # The only place a key is ever printed: the console of whoever started the server.
+    print(
+        "\nArrowmoot demo session ready.\n"
+        f"  Facilitator link (keep it private): /s/{w.id}#key={token}\n"
+        f"  Join code for participants: {w.join_code}   (join link: /join/{w.join_code})\n"
+        "  Prefix the links with this server's address, e.g. http://127.0.0.1:8000\n",
+        file=sys.stderr, flush=True,
+    )

@@ -1,0 +1,60 @@
+"""Server settings: one place for every knob, each with its default and help.
+
+Values come from keyword arguments to :class:`Settings`, or from environment
+variables named ``ARROWMOOT_<NAME>`` (for example ``ARROWMOOT_DB_PATH``).
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+
+__all__ = ["Settings", "SETTING_HELP"]
+
+SETTING_HELP = {
+    "db_path": "SQLite database file holding every session (created if missing).",
+    "data_dir": "Directory for per-session files such as attached data sets.",
+    "upload_limit_bytes": "Largest data upload accepted, in bytes (default 500 MB).",
+    "allowed_origins": "Origins allowed to open the WebSocket and call the API from a browser; "
+    "empty means same origin only.",
+    "demo_session": "Create the cycle-to-work demo session when the database has no sessions.",
+    "demo_document": "Graph document used for the demo session.",
+}
+
+
+def _env(name: str, default: str) -> str:
+    return os.environ.get(f"ARROWMOOT_{name.upper()}", default)
+
+
+@dataclass
+class Settings:
+    db_path: Path = field(default_factory=lambda: Path(_env("db_path", "./data/arrowmoot.sqlite3")))
+    data_dir: Path = field(default_factory=lambda: Path(_env("data_dir", "./data")))
+    upload_limit_bytes: int = field(
+        default_factory=lambda: int(_env("upload_limit_bytes", str(500 * 1024 * 1024)))
+    )
+    allowed_origins: tuple[str, ...] = field(
+        default_factory=lambda: tuple(
+            o.strip() for o in _env("allowed_origins", "").split(",") if o.strip()
+        )
+    )
+    demo_session: bool = field(
+        default_factory=lambda: _env("demo_session", "1") not in ("0", "false", "no")
+    )
+    demo_document: Path = field(
+        default_factory=lambda: Path(
+            _env("demo_document", str(Path(__file__).resolve().parent.parent / "sample_data" / "cycle_to_work.json"))
+        )
+    )
+
+    def __post_init__(self) -> None:
+        self.db_path = Path(self.db_path)
+        self.data_dir = Path(self.data_dir)
+        self.demo_document = Path(self.demo_document)
+        if self.upload_limit_bytes <= 0:
+            raise ValueError("upload_limit_bytes must be positive")
+
+    @classmethod
+    def names(cls) -> list[str]:
+        return [f.name for f in fields(cls)]

@@ -1,0 +1,1 @@
+"""The web layer: routes, WebSocket and pages. Thin: it calls the workshop and the store."""

@@ -1,0 +1,357 @@
+"""The live hub: one place that applies changes, stores them and tells every client.
+
+Per session there is one asyncio lock; a change is applied to the in-memory
+workshop, written to SQLite (state + log event in one transaction), and only
+then acknowledged and pushed to every connected client as a ``state``
+message. The analysis of the new diagram is computed in a worker thread
+and pushed afterwards as an ``analysis`` message carrying the revision it
+belongs to; when edits arrive faster than the analysis, only the newest
+revision is analysed.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import hashlib
+import hmac
+import json
+import logging
+import secrets
+import time
+from typing import Any
+
+from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
+from ..store import Store
+from ..workshop.commands import add_member, apply_command, new_workshop
+from ..workshop.disputes import analyse_workshop, analysis_key
+from ..workshop.models import Member, Workshop
+from ..workshop.views import public_state
+
+__all__ = ["Hub", "hash_token", "TOKEN_HEADER"]
+
+log = logging.getLogger("arrowmoot")
+
+TOKEN_HEADER = "X-Arrowmoot-Token"
+JOIN_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"
+SEND_QUEUE_LIMIT = 200
+
+
+def hash_token(token: str) -> str:
+    return hashlib.sha256(token.encode("utf-8")).hexdigest()
+
+
+def _new_token(member_id: str) -> str:
+    return f"{member_id}.{secrets.token_urlsafe(24)}"
+
+
+class Connection:
+    """One WebSocket client with its own send queue, so a slow client never stalls the others."""
+
+    def __init__(self, websocket, member_id: str):
+        self.websocket = websocket
+        self.member_id = member_id
+        self.queue: asyncio.Queue[str | None] = asyncio.Queue()
+        self.task: asyncio.Task | None = None
+        self.closed = False
+
+    def start(self) -> None:
+        self.task = asyncio.create_task(self._pump())
+
+    async def _pump(self) -> None:
+        try:
+            while True:
+                text = await self.queue.get()
+                if text is None:
+                    return
+                await self.websocket.send_text(text)
+        except Exception:
+            self.closed = True
+
+    def send(self, text: str) -> None:
+        if self.closed:
+            return
+        if self.queue.qsize() > SEND_QUEUE_LIMIT:
+            # A client this far behind will resync from its revision on reconnect.
+            self.closed = True
+            self.queue.put_nowait(None)
+            return
+        self.queue.put_nowait(text)
+
+    async def stop(self) -> None:
+        self.closed = True
+        self.queue.put_nowait(None)
+        if self.task is not None:
+            try:
+                await asyncio.wait_for(self.task, timeout=2)
+            except Exception:
+                pass
+
+
+class Hub:
+    def __init__(self, store: Store):
+        self.store = store
+        self._workshops: dict[str, Workshop] = {}
+        self._locks: dict[str, asyncio.Lock] = {}
+        self._connections: dict[str, set[Connection]] = {}
+        self._analysis: dict[str, dict[str, Any]] = {}
+        self._analysis_by_key: dict[str, tuple[str, dict[str, Any]]] = {}
+        self._analysis_tasks: dict[str, asyncio.Task] = {}
+        self._analysis_dirty: set[str] = set()
+
+    # -- loading ----------------------------------------------------------------
+    def workshop(self, session_id: str) -> Workshop:
+        """The live workshop (load from the store on first use) or NotFound."""
+        w = self._workshops.get(session_id)
+        if w is None:
+            loaded = self.store.load_session(session_id) if isinstance(session_id, str) else None
+            if loaded is None:
+                raise NotFound("there is no session with that id", code="unknown_session")
+            state, revision = loaded
+            state["revision"] = revision
+            w = Workshop.from_state(state, self.store.list_events(session_id=session_id,
+                                                                  after_revision=-1))
+            self._workshops[session_id] = w
+        return w
+
+    def _lock(self, session_id: str) -> asyncio.Lock:
+        lock = self._locks.get(session_id)
+        if lock is None:
+            lock = self._locks[session_id] = asyncio.Lock()
+        return lock
+
+    # -- members and tokens --------------------------------------------------------
+    def authenticate(self, session_id: str, token: str | None) -> Member:
+        if not token:
+            raise Unauthorized(
+                f"this needs your session key; send it in the {TOKEN_HEADER} header",
+                code="no_token",
+            )
+        member_id, _, _ = token.partition(".")
+        found = self.store.find_member_token(member_id) if member_id else None
+        digest = hash_token(token)
+        if found is None or not hmac.compare_digest(found[1], digest):
+            raise Unauthorized("that session key is not valid", code="bad_token")
+        if found[0] != session_id:
+            raise Forbidden("that key belongs to another session", code="wrong_session")
+        member = self.workshop(session_id).members.get(member_id)
+        if member is None:
+            raise Unauthorized("that session key is not valid", code="bad_token")
+        return member
+
+    def create_session(self, *, title: Any, facilitator_name: Any = None, document: Any = None,
+                       treatment: Any = None, outcome: Any = None) -> tuple[Workshop, str]:
+        """Create a session; return it and the facilitator's token (shown once)."""
+        session_id = secrets.token_urlsafe(9)
+        member_id = "m" + secrets.token_hex(6)
+        for _ in range(50):
+            join_code = "".join(secrets.choice(JOIN_ALPHABET) for _ in range(6))
+            if not self.store.join_code_taken(join_code):
+                break
+        now = time.time()
+        w, event = new_workshop(
+            session_id=session_id, title=title if isinstance(title, str) else "",
+            join_code=join_code, facilitator_id=member_id,
+            facilitator_name=facilitator_name if isinstance(facilitator_name, str) else "",
+            document=document, treatment=treatment, outcome=outcome, now=now,
+        )
+        token = _new_token(member_id)
+        self.store.create_session(session_id=session_id, title=w.title, join_code=join_code,
+                                  state=w.to_state(), revision=w.revision, event=event,
+                                  token_hash=hash_token(token), member_id=member_id)
+        self._workshops[session_id] = w
+        return w, token
+
+    def find_by_join_code(self, code: Any) -> Workshop:
+        if not isinstance(code, str) or not code.strip():
+            raise BadRequest("enter the join code the facilitator gave you", code="no_join_code")
+        session_id = self.store.find_session_by_join_code(code.strip().upper().replace(" ", ""))
+        if session_id is None:
+            raise NotFound("no session has that join code; check it with the facilitator",
+                           code="unknown_join_code")
+        return self.workshop(session_id)
+
+    async def join(self, code: Any, name: Any) -> tuple[Workshop, Member, str]:
+        w = self.find_by_join_code(code)
+        async with self._lock(w.id):
+            member_id = "m" + secrets.token_hex(6)
+            backup = (dict(w.members), w.revision, len(w.log))
+            member, event = add_member(w, member_id=member_id, name=name, now=time.time())
+            token = _new_token(member_id)
+            try:
+                self.store.save_change(session_id=w.id, state=w.to_state(), revision=w.revision,
+                                       event=event, token_hash=hash_token(token),
+                                       member_id=member_id)
+            except Exception:
+                w.members, w.revision = backup[0], backup[1]
+                del w.log[backup[2]:]
+                raise
+        await self._publish(w)
+        return w, member, token
+
+    # -- changes ------------------------------------------------------------------
+    async def submit(self, session_id: str, member: Member, command: Any) -> dict[str, Any]:
+        """Apply, store and broadcast one command; return its event."""
+        w = self.workshop(session_id)
+        async with self._lock(session_id):
+            state_before = w.to_state()
+            log_len = len(w.log)
+            flags = [e.get("undone") for e in w.log]
+            event = apply_command(w, w.members.get(member.id, member), command, now=time.time())
+            try:
+                self.store.save_change(session_id=session_id, state=w.to_state(),
+                                       revision=w.revision, event=event,
+                                       mark_undone=event.get("undoes"))
+            except Exception:
+                fresh = Workshop.from_state(state_before, w.log[:log_len])
+                for e, f in zip(fresh.log, flags):
+                    e["undone"] = f
+                self._workshops[session_id] = fresh
+                raise
+        await self._publish(w)
+        return event
+
+    async def note(self, session_id: str, member: Member | None, summary: str,
+                   kind: str = "note", **extra: Any) -> dict[str, Any]:
+        """Log an event from another part of the app (e.g. data attached) and push it."""
+        w = self.workshop(session_id)
+        async with self._lock(session_id):
+            w.revision += 1
+            event = {"revision": w.revision, "at": time.time(),
+                     "actor": member.id if member else None,
+                     "actor_name": member.name if member else "the server", "kind": kind,
+                     "summary": summary, "command": {"type": kind}, "undoable": False,
+                     "undone": False, **extra}
+            w.log.append(event)
+            try:
+                self.store.save_change(session_id=session_id, state=w.to_state(),
+                                       revision=w.revision, event=event)
+            except Exception:
+                w.revision -= 1
+                w.log.pop()
+                raise
+        await self._publish(w)
+        return event
+
+    # -- pushing ---------------------------------------------------------------------
+    def state_message(self, w: Workshop, **extra: Any) -> str:
+        return json.dumps({"type": "state", "revision": w.revision, "state": public_state(w),
+                           **extra})
+
+    async def _publish(self, w: Workshop) -> None:
+        conns = self._connections.get(w.id)
+        if conns:
+            text = self.state_message(w)
+            for conn in list(conns):
+                conn.send(text)
+        self.schedule_analysis(w.id)
+
+    def _broadcast(self, session_id: str, text: str) -> None:
+        for conn in list(self._connections.get(session_id, ())):
+            conn.send(text)
+
+    def connect(self, session_id: str, conn: Connection) -> None:
+        self._connections.setdefault(session_id, set()).add(conn)
+        conn.start()
+        self._broadcast_presence(session_id)
+
+    async def disconnect(self, session_id: str, conn: Connection) -> None:
+        self._connections.get(session_id, set()).discard(conn)
+        await conn.stop()
+        self._broadcast_presence(session_id)
+
+    def online(self, session_id: str) -> list[str]:
+        return sorted({c.member_id for c in self._connections.get(session_id, ()) if not c.closed})
+
+    def _broadcast_presence(self, session_id: str) -> None:
+        self._broadcast(session_id, json.dumps({"type": "presence",
+                                                "online": self.online(session_id)}))
+
+    def connection_count(self, session_id: str) -> int:
+        return len(self._connections.get(session_id, ()))
+
+    # -- analysis ------------------------------------------------------------------------
+    def cached_analysis(self, session_id: str) -> dict[str, Any] | None:
+        w = self.workshop(session_id)
+        cached = self._analysis.get(session_id)
+        if cached is not None and cached["revision"] == w.revision:
+            return cached
+        key = analysis_key(w)
+        hit = self._analysis_by_key.get(session_id)
+        if hit is not None and hit[0] == key:
+            payload = dict(hit[1], revision=w.revision)
+            self._analysis[session_id] = payload
+            return payload
+        return None
+
+    def analysis_now(self, session_id: str) -> dict[str, Any]:
+        """The analysis of the current revision, computed here if not cached."""
+        cached = self.cached_analysis(session_id)
+        if cached is not None:
+            return cached
+        w = self.workshop(session_id)
+        key = analysis_key(w)
+        payload = dict(analyse_workshop(w), revision=w.revision)
+        self._analysis[session_id] = payload
+        self._analysis_by_key[session_id] = (key, payload)
+        return payload
+
+    def schedule_analysis(self, session_id: str) -> None:
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            return
+        task = self._analysis_tasks.get(session_id)
+        if task is not None and not task.done():
+            self._analysis_dirty.add(session_id)
+            return
+        self._analysis_tasks[session_id] = loop.create_task(self._run_analysis(session_id))
+
+    async def _run_analysis(self, session_id: str) -> None:
+        while True:
+            self._analysis_dirty.discard(session_id)
+            w = self.workshop(session_id)
+            cached = self.cached_analysis(session_id)
+            if cached is None:
+                snapshot = Workshop.from_state(w.to_state())
+                key = analysis_key(snapshot)
+                try:
+                    result = await asyncio.to_thread(analyse_workshop, snapshot)
+                except Exception:
+                    log.exception("analysis failed for a session")
+                    result = {"analysis": None, "problem": "the analysis failed on this diagram",
+                              "disputes": None, "absent": None}
+                payload = dict(result, revision=snapshot.revision)
+                self._analysis_by_key[session_id] = (key, payload)
+                if snapshot.revision == self.workshop(session_id).revision:
+                    self._analysis[session_id] = payload
+                cached = self.cached_analysis(session_id) or payload
+            self._broadcast(session_id, json.dumps({"type": "analysis", **cached}))
+            if session_id not in self._analysis_dirty:
+                return
+
+    async def wait_analysis(self, session_id: str) -> None:
+        task = self._analysis_tasks.get(session_id)
+        while task is not None and not task.done():
+            await task
+            task = self._analysis_tasks.get(session_id)
+
+    async def close(self) -> None:
+        for conns in self._connections.values():
+            for conn in list(conns):
+                try:
+                    await conn.websocket.close(code=1001)
+                except Exception:
+                    pass
+                await conn.stop()
+        for task in self._analysis_tasks.values():
+            task.cancel()
+
+    # -- helpers for others -------------------------------------------------------------
+    def require_stage(self, session_id: str, *stages: str) -> Workshop:
+        w = self.workshop(session_id)
+        if w.stage not in stages:
+            raise AppError(
+                f"this needs the session in the {' or '.join(stages)} stage; it is in {w.stage}",
+                code="wrong_stage", status=409,
+            )
+        return w

@@ -1,0 +1,91 @@
+"""Sessions: create, join, read, change (commands), history, analysis, export."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Body
+
+from ...errors import BadRequest
+from ...workshop.views import history, public_state
+from ..deps import HubDep, MemberDep
+
+router = APIRouter(prefix="/api", tags=["sessions"])
+
+
+def _links(session_id: str, join_code: str, token: str | None = None) -> dict[str, str]:
+    out = {"session_page": f"/s/{session_id}", "join_link": f"/join/{join_code}"}
+    if token is not None:
+        # The key travels in the URL fragment, which browsers never send to the server.
+        out["facilitator_link"] = f"/s/{session_id}#key={token}"
+    return out
+
+
+@router.post("/sessions", status_code=201)
+def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
+    """Open a new session; the answer holds the facilitator's key (shown once)."""
+    if not isinstance(body, dict):
+        raise BadRequest("send a JSON object with a 'title'", code="invalid_request")
+    w, token = hub.create_session(
+        title=body.get("title"), facilitator_name=body.get("name"),
+        document=body.get("document"), treatment=body.get("treatment"),
+        outcome=body.get("outcome"),
+    )
+    member = w.facilitators()[0]
+    return {"ok": True, "session_id": w.id, "join_code": w.join_code, "token": token,
+            "member": member.to_public(), **_links(w.id, w.join_code, token),
+            "state": public_state(w)}
+
+
+@router.get("/join/{code}")
+def read_join_code(code: str, hub: HubDep) -> dict:
+    """What a join code leads to (title and stage only)."""
+    w = hub.find_by_join_code(code)
+    return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
+
+
+@router.post("/join", status_code=201)
+async def join_session(hub: HubDep, body: Any = Body(...)) -> dict:
+    """Join a session with its code and a display name; returns the participant's key."""
+    if not isinstance(body, dict):
+        raise BadRequest("send a JSON object with 'code' and 'name'", code="invalid_request")
+    w, member, token = await hub.join(body.get("code"), body.get("name"))
+    return {"ok": True, "session_id": w.id, "token": token, "member": member.to_public(),
+            **_links(w.id, w.join_code)}
+
+
+@router.get("/sessions/{session_id}")
+def read_session(access: MemberDep) -> dict:
+    """The session's current state, as every participant sees it."""
+    w = access.workshop
+    return {"ok": True, "member": access.member.to_public(), "state": public_state(w),
+            "online": access.hub.online(w.id)}
+
+
+@router.post("/sessions/{session_id}/commands")
+async def submit_command(access: MemberDep, body: Any = Body(...)) -> dict:
+    """Apply one change (see app.workshop.commands for the command types)."""
+    event = await access.hub.submit(access.session_id, access.member, body)
+    return {"ok": True, "revision": event["revision"], "event": _public(event)}
+
+
+@router.get("/sessions/{session_id}/history")
+def read_history(access: MemberDep) -> dict:
+    """Every change with who made it and when."""
+    return {"ok": True, "events": history(access.workshop)}
+
+
+@router.get("/sessions/{session_id}/analysis")
+def read_analysis(access: MemberDep) -> dict:
+    """What the current diagram implies, with the dispute and absent-arrow checks."""
+    return {"ok": True, **access.hub.analysis_now(access.session_id)}
+
+
+@router.get("/sessions/{session_id}/document")
+def export_document(access: MemberDep) -> dict:
+    """The current diagram as a graph document."""
+    return access.workshop.document()
+
+
+def _public(event: dict) -> dict:
+    return {k: v for k, v in event.items() if k != "before"}

@@ -1,0 +1,128 @@
+"""The WebSocket: live state for one session.
+
+Protocol (JSON text frames):
+
+client -> {"type": "hello", "token": "...", "revision": <last seen or null>}   (first frame)
+server -> {"type": "welcome", "member": {...}, "online": [...]}
+server -> {"type": "state", "revision": n, "state": {...}, "missed": [events after the client's revision]}
+server -> {"type": "analysis", "revision": n, "analysis": {...} | null, "problem": str | null, ...}
+client -> {"type": "command", "id": <any>, "command": {"type": "add_arrow", ...}}
+server -> {"type": "ack", "id": <same>, "revision": n}  or  {"type": "error", "id": ..., "error": ..., "code": ..., "status": ...}
+client -> {"type": "resync", "revision": n}   server answers with a state message
+client -> {"type": "ping"}                    server -> {"type": "pong"}
+server -> {"type": "presence", "online": [member ids]}
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+from urllib.parse import urlparse
+
+from fastapi import APIRouter, WebSocket, WebSocketDisconnect
+
+from ..errors import AppError, from_exception
+from ..graph.errors import DiagramError
+from ..workshop.commands import public_event
+from .live import Connection, Hub
+
+router = APIRouter()
+
+HELLO_TIMEOUT = 15.0
+MISSED_LIMIT = 200
+
+
+def _origin_allowed(websocket: WebSocket) -> bool:
+    origin = websocket.headers.get("origin")
+    if origin is None:
+        return True  # not a browser
+    allowed = websocket.app.state.settings.allowed_origins
+    if origin in allowed or "*" in allowed:
+        return True
+    return urlparse(origin).netloc == websocket.headers.get("host")
+
+
+def _error(exc: AppError, msg_id=None) -> str:
+    return json.dumps({"type": "error", "id": msg_id, "ok": False, "error": exc.message,
+                       "status": exc.status, "code": exc.code,
+                       **({"cycle": exc.cycle} if getattr(exc, "cycle", None) else {})})
+
+
+@router.websocket("/ws/sessions/{session_id}")
+async def session_socket(websocket: WebSocket, session_id: str) -> None:
+    hub: Hub = websocket.app.state.hub
+    if not _origin_allowed(websocket):
+        await websocket.close(code=4403)
+        return
+    await websocket.accept()
+    try:
+        hello = json.loads(await asyncio.wait_for(websocket.receive_text(), HELLO_TIMEOUT))
+        if not isinstance(hello, dict) or hello.get("type") != "hello":
+            raise AppError("the first message must be {\"type\": \"hello\", \"token\": ...}",
+                           code="no_hello")
+        hub.workshop(session_id)
+        member = hub.authenticate(session_id, hello.get("token"))
+    except (asyncio.TimeoutError, WebSocketDisconnect, json.JSONDecodeError, AppError) as exc:
+        if isinstance(exc, AppError):
+            await websocket.send_text(_error(exc))
+            await websocket.close(code=4000 + exc.status)
+        elif isinstance(exc, json.JSONDecodeError):
+            await websocket.send_text(_error(AppError("messages must be JSON", code="bad_json")))
+            await websocket.close(code=4400)
+        else:
+            try:
+                await websocket.close(code=4408)
+            except Exception:
+                pass
+        return
+
+    conn = Connection(websocket, member.id)
+    hub.connect(session_id, conn)
+    try:
+        w = hub.workshop(session_id)
+        conn.send(json.dumps({"type": "welcome", "member": member.to_public(),
+                              "online": hub.online(session_id)}))
+        conn.send(_state_with_missed(hub, session_id, hello.get("revision")))
+        cached = hub.cached_analysis(session_id)
+        if cached is not None:
+            conn.send(json.dumps({"type": "analysis", **cached}))
+        else:
+            hub.schedule_analysis(session_id)
+        while True:
+            text = await websocket.receive_text()
+            try:
+                message = json.loads(text)
+            except json.JSONDecodeError:
+                conn.send(_error(AppError("messages must be JSON", code="bad_json")))
+                continue
+            if not isinstance(message, dict):
+                conn.send(_error(AppError("a message must be a JSON object", code="bad_message")))
+                continue
+            kind = message.get("type")
+            if kind == "command":
+                msg_id = message.get("id")
+                try:
+                    event = await hub.submit(session_id, member, message.get("command"))
+                except (AppError, DiagramError) as exc:
+                    conn.send(_error(from_exception(exc), msg_id))
+                    continue
+                conn.send(json.dumps({"type": "ack", "id": msg_id, "revision": event["revision"],
+                                      "event": public_event(event)}))
+            elif kind == "resync":
+                conn.send(_state_with_missed(hub, session_id, message.get("revision")))
+            elif kind == "ping":
+                conn.send(json.dumps({"type": "pong", "revision": w.revision}))
+            else:
+                conn.send(_error(AppError(f"unknown message type {kind!r}", code="bad_message")))
+    except WebSocketDisconnect:
+        pass
+    finally:
+        await hub.disconnect(session_id, conn)
+
+
+def _state_with_missed(hub: Hub, session_id: str, revision) -> str:
+    w = hub.workshop(session_id)
+    missed = []
+    if isinstance(revision, int) and not isinstance(revision, bool) and revision < w.revision:
+        missed = [public_event(e) for e in w.log if e["revision"] > revision][-MISSED_LIMIT:]
+    return hub.state_message(w, missed=missed, since=revision if isinstance(revision, int) else None)

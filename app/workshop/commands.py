@@ -1,0 +1,665 @@
+"""Every change to a workshop goes through :func:`apply_command`.
+
+A command is a small JSON object with a ``type`` (``add_variable``,
+``add_arrow``, ``propose``, ``vote``, ``settle``, ``set_stage``, ``undo`` ...).
+The function checks the member's permission and the stage, validates the
+result (a cycle is refused with the cycle named), then changes the workshop
+and returns the log event. Nothing is changed when it raises.
+"""
+
+from __future__ import annotations
+
+import copy
+from typing import Any, Callable
+
+from ..errors import AppError, BadRequest, Conflict, Forbidden, InvalidDiagram, NotFound
+from ..graph.document import check_name, parse_document
+from ..graph.errors import DiagramError
+from . import layout
+from .models import (
+    PROPOSAL_KINDS, VOTE_CHOICES, Member, Proposal, Vote, Workshop, arrow_key,
+)
+from .stages import STAGES, check_stage_move, is_locked
+from .voting import MAX_VOTE_REASON
+
+__all__ = ["apply_command", "new_workshop", "add_member", "COMMAND_TYPES", "public_event"]
+
+MAX_TITLE = 120
+MAX_MEMBER_NAME = 40
+MAX_PROPOSAL_REASON = 200
+
+
+# -- small helpers ----------------------------------------------------------
+def _text(command: dict, key: str, *, limit: int, required: bool = False, what: str | None = None) -> str:
+    value = command.get(key)
+    what = what or key
+    if value is None:
+        if required:
+            raise BadRequest(f"'{key}' is missing", code="missing_field")
+        return ""
+    if not isinstance(value, str):
+        raise BadRequest(f"'{key}' must be text", code="invalid_field")
+    value = value.strip()
+    if required and not value:
+        raise BadRequest(f"{what} is empty", code="missing_field")
+    if len(value) > limit:
+        raise BadRequest(f"{what} is {len(value)} characters long; the limit is {limit}",
+                         code="too_long")
+    if any(ord(ch) < 32 for ch in value):
+        raise BadRequest(f"{what} holds a control character", code="invalid_field")
+    return value
+
+
+def _name(command: dict, key: str = "name") -> str:
+    value = command.get(key)
+    if value is None:
+        raise BadRequest(f"'{key}' is missing", code="missing_field")
+    try:
+        return check_name(value, what=f"'{key}'")
+    except DiagramError as exc:
+        raise InvalidDiagram(exc) from None
+
+
+def _number(command: dict, key: str) -> float | None:
+    value = command.get(key)
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value \
+            or abs(value) > 1e7:
+        raise BadRequest(f"'{key}' must be a number", code="invalid_field")
+    return float(value)
+
+
+def _require_facilitator(member: Member, what: str) -> None:
+    if not member.is_facilitator:
+        raise Forbidden(f"only the facilitator can {what}", code="facilitator_only")
+
+
+def _require_unlocked(workshop: Workshop, what: str) -> None:
+    if is_locked(workshop.stage):
+        raise Conflict(
+            f"the diagram is locked in the {workshop.stage} stage; the facilitator must "
+            f"reopen it (with a reason) before anyone can {what}",
+            code="diagram_locked",
+        )
+
+
+def _require_variable(workshop: Workshop, name: str) -> dict[str, Any]:
+    v = workshop.variable(name)
+    if v is None:
+        raise NotFound(f"there is no variable {name!r}", code="unknown_variable")
+    return v
+
+
+def _validate(workshop: Workshop, **parts) -> None:
+    try:
+        parse_document(workshop.document(**parts))
+    except DiagramError as exc:
+        raise InvalidDiagram(exc) from None
+
+
+def _arrow_ends(command: dict) -> tuple[str, str]:
+    source = _name(command, "from")
+    target = _name(command, "to")
+    return source, target
+
+
+class _Change:
+    """The pieces of an event a handler fills in."""
+
+    def __init__(self, summary: str, *, undoable: bool = False, **extra: Any):
+        self.summary = summary
+        self.undoable = undoable
+        self.extra = extra
+
+
+# -- graph edits --------------------------------------------------------------
+def _add_variable(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_unlocked(w, "add variables")
+    name = _name(c)
+    if w.variable(name) is not None:
+        raise Conflict(f"there is already a variable {name!r}", code="duplicate_variable")
+    var = {"name": name, "latent": bool(c.get("latent", False))}
+    label = _text(c, "label", limit=200)
+    if label:
+        var["label"] = label
+    description = c.get("description")
+    if description:
+        var["description"] = description
+    x, y = _number(c, "x"), _number(c, "y")
+    if x is None or y is None:
+        x, y = layout.free_spot(w.variables)
+    var["x"], var["y"] = x, y
+    variables = w.variables + [var]
+    _validate(w, variables=variables)
+    w.variables = variables
+    return _Change(f"added variable {name!r}", undoable=True)
+
+
+def _update_variable(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_unlocked(w, "change variables")
+    name = _name(c)
+    old = _require_variable(w, name)
+    new = dict(old)
+    changes = []
+    if "label" in c:
+        label = _text(c, "label", limit=200)
+        if label:
+            new["label"] = label
+        else:
+            new.pop("label", None)
+        changes.append("label")
+    if "description" in c:
+        if c["description"] in (None, ""):
+            new.pop("description", None)
+        else:
+            new["description"] = c["description"]
+        changes.append("description")
+    if "latent" in c:
+        if not isinstance(c["latent"], bool):
+            raise BadRequest("'latent' must be true or false", code="invalid_field")
+        new["latent"] = c["latent"]
+        changes.append("unmeasured" if c["latent"] else "measured")
+    new_name = name
+    if c.get("new_name") not in (None, name):
+        new_name = _name(c, "new_name")
+        if w.variable(new_name) is not None:
+            raise Conflict(f"there is already a variable {new_name!r}", code="duplicate_variable")
+        new["name"] = new_name
+        changes.append(f"renamed to {new_name!r}")
+    if not changes:
+        raise BadRequest("nothing to change: give label, description, latent or new_name",
+                         code="empty_change")
+    variables = [new if v["name"] == name else v for v in w.variables]
+
+    def rn(n: str) -> str:
+        return new_name if n == name else n
+
+    arrows = [(rn(a), rn(b)) for a, b in w.arrows]
+    treatment = [rn(n) for n in w.treatment]
+    outcome = [rn(n) for n in w.outcome]
+    _validate(w, variables=variables, arrows=arrows, treatment=treatment, outcome=outcome)
+    if new_name != name:
+        for p in w.proposals.values():
+            p.source, p.target = rn(p.source), rn(p.target)
+        w.votes = {_rename_subject(s, name, new_name): v for s, v in w.votes.items()}
+        w.arrow_flags = {_rename_key(k, name, new_name): f for k, f in w.arrow_flags.items()}
+    w.variables, w.arrows, w.treatment, w.outcome = variables, arrows, treatment, outcome
+    what = ", ".join(changes)
+    return _Change(f"changed variable {name!r}: {what}", undoable=True)
+
+
+def _rename_key(key: str, old: str, new: str) -> str:
+    from .models import parse_arrow_key
+    a, b = parse_arrow_key(key)
+    return arrow_key(new if a == old else a, new if b == old else b)
+
+
+def _rename_subject(subject: str, old: str, new: str) -> str:
+    if subject.startswith("arrow:"):
+        return "arrow:" + _rename_key(subject[len("arrow:"):], old, new)
+    return subject
+
+
+def _move_variable(w: Workshop, m: Member, c: dict) -> _Change:
+    name = _name(c)
+    var = _require_variable(w, name)
+    x, y = _number(c, "x"), _number(c, "y")
+    if x is None or y is None:
+        raise BadRequest("moving a variable needs both 'x' and 'y'", code="missing_field")
+    var["x"], var["y"] = x, y
+    return _Change(f"moved {name!r}")
+
+
+def _delete_variable(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_unlocked(w, "delete variables")
+    if w.stage == "debating":
+        _require_facilitator(m, "delete a variable while debating (it removes arrows)")
+    name = _name(c)
+    _require_variable(w, name)
+    removed = [(a, b) for a, b in w.arrows if name in (a, b)]
+    w.variables = [v for v in w.variables if v["name"] != name]
+    w.arrows = [a for a in w.arrows if a not in removed]
+    w.treatment = [n for n in w.treatment if n != name]
+    w.outcome = [n for n in w.outcome if n != name]
+    for p in w.proposals.values():
+        if p.status == "open" and name in (p.source, p.target):
+            p.status = "withdrawn"
+    extra = f" and its {len(removed)} arrow(s)" if removed else ""
+    return _Change(f"deleted variable {name!r}{extra}", undoable=True)
+
+
+def _check_arrow_edit(w: Workshop, m: Member, what: str) -> None:
+    _require_unlocked(w, what)
+    if w.stage == "debating" and not m.is_facilitator:
+        raise Conflict(
+            f"while debating, arrows change through proposals: propose to {what} instead",
+            code="use_proposal",
+        )
+
+
+def _add_arrow(w: Workshop, m: Member, c: dict) -> _Change:
+    _check_arrow_edit(w, m, "add an arrow")
+    source, target = _arrow_ends(c)
+    _require_variable(w, source)
+    _require_variable(w, target)
+    if w.has_arrow(source, target):
+        raise Conflict(f"there is already an arrow {source} -> {target}", code="duplicate_arrow")
+    arrows = w.arrows + [(source, target)]
+    _validate(w, arrows=arrows)
+    w.arrows = arrows
+    return _Change(f"drew arrow {source} -> {target}", undoable=True)
+
+
+def _delete_arrow(w: Workshop, m: Member, c: dict) -> _Change:
+    _check_arrow_edit(w, m, "remove an arrow")
+    source, target = _arrow_ends(c)
+    if not w.has_arrow(source, target):
+        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+    w.arrows = [a for a in w.arrows if a != (source, target)]
+    return _Change(f"removed arrow {source} -> {target}", undoable=True)
+
+
+def _reverse_arrow(w: Workshop, m: Member, c: dict) -> _Change:
+    _check_arrow_edit(w, m, "reverse an arrow")
+    source, target = _arrow_ends(c)
+    if not w.has_arrow(source, target):
+        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+    arrows = [(target, source) if a == (source, target) else a for a in w.arrows]
+    _validate(w, arrows=arrows)
+    w.arrows = arrows
+    return _Change(f"reversed arrow {source} -> {target} to {target} -> {source}", undoable=True)
+
+
+def _set_question(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "change the treatment and outcome")
+    _require_unlocked(w, "change the question")
+    parts = {}
+    for part in ("treatment", "outcome"):
+        raw = c.get(part, [])
+        if isinstance(raw, str):
+            raw = [raw] if raw else []
+        if not isinstance(raw, list) or not all(isinstance(n, str) for n in raw):
+            raise BadRequest(f"'{part}' must be a variable name or a list of names",
+                             code="invalid_field")
+        parts[part] = raw
+    _validate(w, **parts)
+    w.treatment, w.outcome = parts["treatment"], parts["outcome"]
+    t = ", ".join(w.treatment) or "(none)"
+    o = ", ".join(w.outcome) or "(none)"
+    return _Change(f"set the question: effect of {t} on {o}", undoable=True)
+
+
+def _tidy(w: Workshop, m: Member, c: dict) -> _Change:
+    positions = layout.layered_positions([v["name"] for v in w.variables], w.arrows)
+    for v in w.variables:
+        v["x"], v["y"] = positions[v["name"]]
+    return _Change("tidied the layout", undoable=True)
+
+
+def _import_document(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "import a diagram")
+    if w.stage != "drafting":
+        raise Conflict("a diagram can only be imported while drafting", code="wrong_stage")
+    try:
+        diagram = parse_document(c.get("document"))
+    except DiagramError as exc:
+        raise InvalidDiagram(exc) from None
+    doc = diagram.to_document()
+    variables = doc["variables"]
+    if any(v.get("x") is None or v.get("y") is None for v in variables):
+        positions = layout.layered_positions([v["name"] for v in variables],
+                                             [(a["from"], a["to"]) for a in doc["arrows"]])
+        for v in variables:
+            v["x"], v["y"] = positions[v["name"]]
+    w.variables = variables
+    w.arrows = [(a["from"], a["to"]) for a in doc["arrows"]]
+    w.treatment, w.outcome = doc["treatment"], doc["outcome"]
+    for p in w.proposals.values():
+        if p.status == "open":
+            p.status = "withdrawn"
+    return _Change(f"imported a diagram with {len(variables)} variables and "
+                   f"{len(w.arrows)} arrows", undoable=True)
+
+
+# -- proposals, votes, disputes ---------------------------------------------------
+def _propose(w: Workshop, m: Member, c: dict) -> _Change:
+    if w.stage != "debating":
+        raise Conflict("proposals are made while debating; in drafting, draw the change directly",
+                       code="wrong_stage")
+    kind = c.get("kind")
+    if kind not in PROPOSAL_KINDS:
+        raise BadRequest(f"'kind' must be one of {', '.join(PROPOSAL_KINDS)}", code="invalid_field")
+    source, target = _arrow_ends(c)
+    _require_variable(w, source)
+    _require_variable(w, target)
+    reason = _text(c, "reason", limit=MAX_PROPOSAL_REASON, what="the reason")
+    if kind == "add":
+        if w.has_arrow(source, target):
+            raise Conflict(f"the arrow {source} -> {target} is already drawn", code="duplicate_arrow")
+        if source == target:
+            raise BadRequest("an arrow needs two different variables", code="self_loop")
+    elif not w.has_arrow(source, target):
+        raise NotFound(f"there is no arrow {source} -> {target} to {kind}", code="unknown_arrow")
+    for p in w.proposals.values():
+        if p.status in ("open", "disputed") and (p.kind, p.source, p.target) == (kind, source, target):
+            raise Conflict(f"proposal #{p.id} already proposes to {p.describe()}",
+                           code="duplicate_proposal")
+    p = Proposal(id=w.next_proposal, kind=kind, source=source, target=target, by=m.id,
+                 reason=reason, created=c["_now"])
+    w.proposals[p.id] = p
+    w.next_proposal += 1
+    return _Change(f"proposed #{p.id}: {p.describe()}", proposal=p.id)
+
+
+def _proposal(w: Workshop, c: dict) -> Proposal:
+    pid = c.get("proposal")
+    if isinstance(pid, bool) or not isinstance(pid, int):
+        raise BadRequest("'proposal' must be a proposal number", code="invalid_field")
+    p = w.proposals.get(pid)
+    if p is None:
+        raise NotFound(f"there is no proposal #{pid}", code="unknown_proposal")
+    return p
+
+
+def _vote(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_unlocked(w, "vote")
+    choice = c.get("choice")
+    if choice not in VOTE_CHOICES:
+        raise BadRequest(f"'choice' must be one of {', '.join(VOTE_CHOICES)}", code="invalid_field")
+    reason = _text(c, "reason", limit=MAX_VOTE_REASON, what="the reason")
+    if "proposal" in c:
+        p = _proposal(w, c)
+        if p.status not in ("open", "disputed"):
+            raise Conflict(f"proposal #{p.id} is {p.status}; votes are closed", code="voting_closed")
+        subject, what = p.subject, f"proposal #{p.id}"
+    else:
+        source, target = _arrow_ends(c)
+        if not w.has_arrow(source, target):
+            raise NotFound(f"there is no arrow {source} -> {target} to vote on", code="unknown_arrow")
+        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} -> {target}"
+    w.votes.setdefault(subject, {})[m.id] = Vote(choice=choice, reason=reason, at=c["_now"])
+    return _Change(f"voted {choice} on {what}" + (f": {reason}" if reason else ""))
+
+
+def _withdraw_vote(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_unlocked(w, "change votes")
+    if "proposal" in c:
+        p = _proposal(w, c)
+        subject, what = p.subject, f"proposal #{p.id}"
+    else:
+        source, target = _arrow_ends(c)
+        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} -> {target}"
+    if m.id not in w.votes.get(subject, {}):
+        raise NotFound(f"you have no vote on {what}", code="no_vote")
+    del w.votes[subject][m.id]
+    return _Change(f"withdrew their vote on {what}")
+
+
+def _settle(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "settle proposals")
+    if w.stage != "debating":
+        raise Conflict("proposals are settled while debating", code="wrong_stage")
+    p = _proposal(w, c)
+    decision = c.get("decision")
+    if decision not in ("accept", "reject", "dispute"):
+        raise BadRequest("'decision' must be accept, reject or dispute", code="invalid_field")
+    if p.status not in ("open", "disputed"):
+        raise Conflict(f"proposal #{p.id} is already {p.status}", code="already_settled")
+    if decision == "accept":
+        arrows = list(w.arrows)
+        if p.kind == "add":
+            if (p.source, p.target) in arrows:
+                raise Conflict(f"the arrow {p.source} -> {p.target} is already drawn",
+                               code="duplicate_arrow")
+            arrows.append((p.source, p.target))
+        else:
+            if (p.source, p.target) not in arrows:
+                raise Conflict(f"the arrow {p.source} -> {p.target} is no longer drawn",
+                               code="unknown_arrow")
+            if p.kind == "remove":
+                arrows.remove((p.source, p.target))
+            else:
+                arrows = [(p.target, p.source) if a == (p.source, p.target) else a for a in arrows]
+        _validate(w, arrows=arrows)
+        w.arrows = arrows
+        p.status = "accepted"
+    else:
+        p.status = "rejected" if decision == "reject" else "disputed"
+    p.settled_by, p.settled_at = m.id, c["_now"]
+    verb = {"accept": "accepted", "reject": "rejected", "dispute": "left disputed"}[decision]
+    return _Change(f"{verb} proposal #{p.id}: {p.describe()}", undoable=True, proposal=p.id)
+
+
+def _withdraw_proposal(w: Workshop, m: Member, c: dict) -> _Change:
+    p = _proposal(w, c)
+    if p.by != m.id and not m.is_facilitator:
+        raise Forbidden("only the proposer or the facilitator can withdraw a proposal",
+                        code="not_yours")
+    if p.status != "open":
+        raise Conflict(f"proposal #{p.id} is {p.status}, not open", code="already_settled")
+    p.status = "withdrawn"
+    return _Change(f"withdrew proposal #{p.id}: {p.describe()}", undoable=True, proposal=p.id)
+
+
+def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "mark arrows disputed or settled")
+    _require_unlocked(w, "change disputes")
+    source, target = _arrow_ends(c)
+    if not w.has_arrow(source, target):
+        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+    flag = c.get("flag")
+    if flag not in ("disputed", "settled", None):
+        raise BadRequest("'flag' must be disputed, settled or null", code="invalid_field")
+    key = arrow_key(source, target)
+    if flag is None:
+        w.arrow_flags.pop(key, None)
+        text = "cleared the mark on"
+    else:
+        w.arrow_flags[key] = flag
+        text = f"marked {flag}:"
+    return _Change(f"{text} arrow {source} -> {target}", undoable=True)
+
+
+# -- facilitation -------------------------------------------------------------------
+def _set_stage(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "move the session to another stage")
+    target = c.get("stage")
+    if not isinstance(target, str):
+        raise BadRequest(f"'stage' must be one of {', '.join(STAGES)}", code="invalid_field")
+    open_count = sum(1 for p in w.proposals.values() if p.status == "open")
+    reason = check_stage_move(w.stage, target, c.get("reason") if isinstance(c.get("reason"), str)
+                              else None, open_proposals=open_count,
+                              has_question=bool(w.treatment and w.outcome))
+    old = w.stage
+    w.stage = target
+    text = f"moved the session from {old} to {target}"
+    if reason:
+        text += f" (reason: {reason})"
+    return _Change(text, reason=reason, stage_from=old, stage_to=target)
+
+
+def _grant_role(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "grant roles")
+    target = w.members.get(c.get("member"))
+    if target is None:
+        raise NotFound("there is no such member in this session", code="unknown_member")
+    if c.get("role") != "analyst":
+        raise BadRequest("the role that can be granted is 'analyst'", code="invalid_field")
+    granted = c.get("granted", True)
+    if not isinstance(granted, bool):
+        raise BadRequest("'granted' must be true or false", code="invalid_field")
+    target.analyst = granted
+    verb = "granted" if granted else "withdrew"
+    return _Change(f"{verb} the analyst role {'to' if granted else 'from'} {target.name}")
+
+
+def _rename_session(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "rename the session")
+    title = _text(c, "title", limit=MAX_TITLE, required=True, what="the title")
+    w.title = title
+    return _Change(f"renamed the session to {title!r}")
+
+
+def _undo(w: Workshop, m: Member, c: dict) -> _Change:
+    _require_facilitator(m, "undo")
+    _require_unlocked(w, "undo changes")
+    target = next((e for e in reversed(w.log)
+                   if e.get("undoable") and not e.get("undone") and e.get("before")), None)
+    if target is None:
+        raise Conflict("there is nothing to undo", code="nothing_to_undo")
+    before = target["before"]
+    positions = {v["name"]: (v.get("x"), v.get("y")) for v in w.variables}
+    variables = []
+    for v in before["variables"]:
+        v = dict(v)
+        if v["name"] in positions and target["kind"] != "tidy":
+            v["x"], v["y"] = positions[v["name"]]
+        variables.append(v)
+    arrows = [tuple(a) for a in before["arrows"]]
+    _validate(w, variables=variables, arrows=arrows, treatment=before["treatment"],
+              outcome=before["outcome"])
+    w.variables, w.arrows = variables, arrows
+    w.treatment, w.outcome = list(before["treatment"]), list(before["outcome"])
+    for pid, (status, by, at) in before["proposals"].items():
+        p = w.proposals.get(int(pid))
+        if p is not None:
+            p.status, p.settled_by, p.settled_at = status, by, at
+    w.arrow_flags = dict(before.get("arrow_flags", {}))
+    target["undone"] = True
+    return _Change(f"undid #{target['revision']}: {target['actor_name']} {target['summary']}",
+                   undoes=target["revision"])
+
+
+HANDLERS: dict[str, Callable[[Workshop, Member, dict], _Change]] = {
+    "add_variable": _add_variable,
+    "update_variable": _update_variable,
+    "move_variable": _move_variable,
+    "delete_variable": _delete_variable,
+    "add_arrow": _add_arrow,
+    "delete_arrow": _delete_arrow,
+    "reverse_arrow": _reverse_arrow,
+    "set_question": _set_question,
+    "tidy": _tidy,
+    "import_document": _import_document,
+    "propose": _propose,
+    "withdraw_proposal": _withdraw_proposal,
+    "vote": _vote,
+    "withdraw_vote": _withdraw_vote,
+    "settle": _settle,
+    "flag_arrow": _flag_arrow,
+    "set_stage": _set_stage,
+    "grant_role": _grant_role,
+    "rename_session": _rename_session,
+    "undo": _undo,
+}
+COMMAND_TYPES = tuple(HANDLERS)
+
+
+def apply_command(workshop: Workshop, member: Member, command: Any, *, now: float) -> dict[str, Any]:
+    """Check and apply one command; return its log event. Raises AppError, changes nothing then."""
+    if not isinstance(command, dict):
+        raise BadRequest("a command must be a JSON object with a 'type'", code="invalid_command")
+    kind = command.get("type")
+    handler = HANDLERS.get(kind) if isinstance(kind, str) else None
+    if handler is None:
+        raise BadRequest(
+            f"unknown command type {kind!r}; known types: {', '.join(COMMAND_TYPES)}",
+            code="unknown_command",
+        )
+    before = workshop.structure()
+    # Handlers validate before they change anything, but a snapshot makes
+    # "nothing changes on error" hold even for a bug in a handler.
+    backup = copy.deepcopy(workshop.to_state())
+    backup_log_flags = [e.get("undone") for e in workshop.log]
+    work = dict(command)
+    work["_now"] = now
+    try:
+        change = handler(workshop, member, work)
+    except AppError:
+        _restore(workshop, backup, backup_log_flags)
+        raise
+    except Exception:
+        _restore(workshop, backup, backup_log_flags)
+        raise
+    workshop.revision += 1
+    clean = {k: v for k, v in command.items() if k != "document"}
+    event: dict[str, Any] = {
+        "revision": workshop.revision, "at": now, "actor": member.id, "actor_name": member.name,
+        "kind": kind, "summary": change.summary, "command": clean,
+        "undoable": change.undoable, "undone": False,
+    }
+    if change.undoable:
+        event["before"] = before
+    event.update(change.extra)
+    workshop.log.append(event)
+    return event
+
+
+def _restore(workshop: Workshop, state: dict, log_flags: list) -> None:
+    fresh = Workshop.from_state(state, workshop.log)
+    for name in ("title", "stage", "revision", "variables", "arrows", "treatment", "outcome",
+                 "members", "proposals", "next_proposal", "votes", "arrow_flags"):
+        setattr(workshop, name, getattr(fresh, name))
+    for event, flag in zip(workshop.log, log_flags):
+        event["undone"] = flag
+
+
+def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id: str,
+                 facilitator_name: str, document: Any = None, treatment: Any = None,
+                 outcome: Any = None, now: float) -> tuple[Workshop, dict[str, Any]]:
+    """A new session with its facilitator; the question may create missing variables."""
+    title = _text({"title": title}, "title", limit=MAX_TITLE, required=True, what="the title")
+    name = _text({"name": facilitator_name}, "name", limit=MAX_MEMBER_NAME, what="your name") \
+        or "Facilitator"
+    w = Workshop(id=session_id, title=title, join_code=join_code, created=now)
+    fac = Member(id=facilitator_id, name=name, role="facilitator", joined=now)
+    w.members[fac.id] = fac
+    if document is not None:
+        try:
+            doc = parse_document(document).to_document()
+        except DiagramError as exc:
+            raise InvalidDiagram(exc) from None
+        w.variables = doc["variables"]
+        w.arrows = [(a["from"], a["to"]) for a in doc["arrows"]]
+        w.treatment, w.outcome = doc["treatment"], doc["outcome"]
+        if any(v.get("x") is None or v.get("y") is None for v in w.variables):
+            positions = layout.layered_positions([v["name"] for v in w.variables], w.arrows)
+            for v in w.variables:
+                v["x"], v["y"] = positions[v["name"]]
+    for part, raw in (("treatment", treatment), ("outcome", outcome)):
+        if raw in (None, "", []):
+            continue
+        names = [raw] if isinstance(raw, str) else raw
+        if not isinstance(names, list):
+            raise BadRequest(f"'{part}' must be a variable name or a list of names",
+                             code="invalid_field")
+        for n in names:
+            n = _name({part: n}, part)
+            if w.variable(n) is None:
+                x, y = layout.free_spot(w.variables, prefer_left=(part == "treatment"))
+                w.variables.append({"name": n, "latent": False, "x": x, "y": y})
+        setattr(w, part, list(names))
+    _validate(w)
+    event = {"revision": 0, "at": now, "actor": fac.id, "actor_name": fac.name,
+             "kind": "create", "summary": f"opened the session {title!r}",
+             "command": {"type": "create"}, "undoable": False, "undone": False}
+    w.log.append(event)
+    return w, event
+
+
+def add_member(workshop: Workshop, *, member_id: str, name: Any, now: float) -> tuple[Member, dict]:
+    name = _text({"name": name}, "name", limit=MAX_MEMBER_NAME, required=True, what="your name")
+    member = Member(id=member_id, name=name, role="participant", joined=now)
+    workshop.members[member.id] = member
+    workshop.revision += 1
+    event = {"revision": workshop.revision, "at": now, "actor": member.id, "actor_name": name,
+             "kind": "join", "summary": "joined the session", "command": {"type": "join"},
+             "undoable": False, "undone": False}
+    workshop.log.append(event)
+    return member, event
+
+
+def public_event(event: dict[str, Any]) -> dict[str, Any]:
+    """An event as the history view shows it (without the undo snapshot)."""
+    return {k: v for k, v in event.items() if k != "before"}

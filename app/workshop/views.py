@@ -1,0 +1,44 @@
+"""What participants see: the public state of a workshop (no tokens, no undo snapshots)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from .commands import public_event
+from .models import Workshop, arrow_key
+from .stages import STAGE_TITLES, STAGES
+from .voting import disputed_items, proposal_public, tally, votes_public
+
+__all__ = ["public_state", "history"]
+
+RECENT_EVENTS = 30
+
+
+def public_state(w: Workshop) -> dict[str, Any]:
+    arrows = []
+    for a, b in w.arrows:
+        key = arrow_key(a, b)
+        subject = f"arrow:{key}"
+        arrows.append({
+            "from": a, "to": b, "flag": w.arrow_flags.get(key),
+            "tally": tally(w.votes.get(subject)), "votes": votes_public(w, subject),
+        })
+    disputes = disputed_items(w)
+    return {
+        "session": {"id": w.id, "title": w.title, "join_code": w.join_code,
+                    "created": w.created, "stage": w.stage,
+                    "stage_title": STAGE_TITLES[w.stage], "stages": list(STAGES)},
+        "revision": w.revision,
+        "document": w.document(),
+        "arrows": arrows,
+        "members": [m.to_public() for m in w.members.values()],
+        "proposals": [proposal_public(w, p) for p in sorted(w.proposals.values(), key=lambda p: p.id)],
+        "disputed": disputes,
+        "can_undo": any(e.get("undoable") and not e.get("undone") and e.get("before")
+                        for e in w.log),
+        "recent": [public_event(e) for e in w.log[-RECENT_EVENTS:]],
+    }
+
+
+def history(w: Workshop) -> list[dict[str, Any]]:
+    return [public_event(e) for e in w.log]
