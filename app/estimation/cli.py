@@ -1,0 +1,95 @@
+"""``arrowmoot estimate GRAPH.json DATA.csv [--map variable=column ...] [--method NAME]``
+
+Prints the estimate as JSON (estimate, std_error, ci, method, strategy,
+adjustment_set or instrument and given, n_used, n_dropped, checks). Exit
+codes: 0 estimated; 2 bad input (unreadable graph or data, bad mapping or
+method, data the estimate cannot use, an effect the diagram does not
+identify with the measured variables), with the message on stderr.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from app.graph.document import parse_document
+from app.graph.errors import DiagramError
+
+from .errors import DataError
+from .planning import METHOD_LABELS
+from .service import estimate, json_ready
+from .tables import DEFAULT_MAX_BYTES, load_table
+
+__all__ = ["add_parser", "run"]
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "estimate",
+        help="estimate the effect a diagram identifies from a data file",
+        description="Estimate the effect the diagram identifies and test its implications against the data.",
+    )
+    parser.add_argument("graph", help="graph document (JSON)")
+    parser.add_argument("data", help="data table (CSV or Parquet)")
+    parser.add_argument("--map", action="append", default=[], metavar="VARIABLE=COLUMN",
+                        help="measure a variable by a column (repeatable); unnamed variables use a column "
+                             "of the same name if there is one; VARIABLE= marks it unmeasured")
+    parser.add_argument("--method", default="auto", choices=["auto", *METHOD_LABELS],
+                        help="estimator (default: chosen from the identification and the column types)")
+    parser.add_argument("--adjust", default=None, metavar="A,B,...",
+                        help="use this adjustment set instead of the default (must be valid)")
+    parser.add_argument("--correction", default="holm", choices=["holm", "bh", "none"],
+                        help="multiple-testing correction for the implication tests")
+    parser.add_argument("--max-bytes", type=int, default=DEFAULT_MAX_BYTES, help=argparse.SUPPRESS)
+    parser.set_defaults(handler=run)
+    return parser
+
+
+def _fail(message: str) -> int:
+    print(f"arrowmoot estimate: {message}", file=sys.stderr)
+    return 2
+
+
+def run(args) -> int:
+    try:
+        raw = json.loads(Path(args.graph).read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        return _fail(f"{args.graph}: no such file")
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        return _fail(f"{args.graph} is not a JSON graph document ({exc})")
+    try:
+        diagram = parse_document(raw)
+        frame = load_table(args.data, max_bytes=args.max_bytes)
+        mapping = None
+        if args.map:
+            from .design import propose_mapping
+
+            mapping = propose_mapping(diagram.names, frame.columns)
+            for pair in args.map:
+                if "=" not in pair:
+                    return _fail(f"--map {pair!r} must look like variable=column")
+                var, col = pair.split("=", 1)
+                mapping[var.strip()] = col.strip() or None
+        adjust = None
+        if args.adjust is not None:
+            adjust = [a.strip() for a in args.adjust.split(",") if a.strip()]
+        result = estimate(diagram, frame, mapping, method=args.method, adjust=adjust,
+                          correction=args.correction)
+    except (DataError, DiagramError) as exc:
+        return _fail(exc.message)
+    json.dump(json_ready(result), sys.stdout, indent=2)
+    sys.stdout.write("\n")
+    return 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(prog="arrowmoot")
+    add_parser(parser.add_subparsers(dest="command", required=True))
+    args = parser.parse_args(argv)
+    return args.handler(args)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,376 @@
+"""Estimators. Each takes a :class:`~app.estimation.design.Design` and returns
+a plain dict with at least ``estimate``, ``std_error``, ``ci``, ``method``.
+
+The statistics come from maintained libraries: statsmodels (OLS with
+heteroskedasticity-robust errors, logistic models, the inverse-probability
+and doubly robust estimators of ``statsmodels.treatment``) and linearmodels
+(two-stage least squares). Only the glue is written here: standardization
+over the sample, overlap and balance summaries, the front-door product and
+the bootstrap loops.
+
+Every estimator also has a *point* function (``point_<method>``) that
+returns only the estimate, fast, for the resampling checks.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import Callable
+
+import numpy as np
+import statsmodels.api as sm
+from scipy import stats
+
+from .design import Design
+from .errors import FitFailed
+
+__all__ = [
+    "METHODS", "regression", "standardization", "weighting", "doubly_robust",
+    "two_stage", "front_door", "point_function", "ROBUST_COV",
+]
+
+ROBUST_COV = "HC1"
+Z95 = stats.norm.ppf(0.975)
+
+
+def _with_const(*blocks: np.ndarray) -> np.ndarray:
+    n = blocks[0].shape[0]
+    cols = [np.ones((n, 1))] + [b.reshape(n, -1) for b in blocks if b.size]
+    return np.hstack(cols)
+
+
+# -- adjustment, continuous outcome ------------------------------------------
+
+def regression(design: Design) -> dict:
+    """OLS of outcome on treatment and adjustment columns, robust (HC1) errors."""
+    x = _with_const(design.t, design.covariates)
+    if x.shape[0] <= x.shape[1] + 1:
+        raise FitFailed(f"{x.shape[0]} rows are too few for {x.shape[1]} coefficients")
+    fit = sm.OLS(design.y, x).fit(cov_type=ROBUST_COV)
+    low, high = fit.conf_int()[1]
+    return {
+        "method": "regression",
+        "estimate": float(fit.params[1]),
+        "std_error": float(fit.bse[1]),
+        "ci": [float(low), float(high)],
+        "statistic": float(fit.tvalues[1]),
+        "p_value": float(fit.pvalues[1]),
+        "df_resid": float(fit.df_resid),
+        "r_squared": float(fit.rsquared),
+        "_fit": fit,
+    }
+
+
+def point_regression(design: Design) -> float:
+    x = _with_const(design.t, design.covariates)
+    coef, *_ = np.linalg.lstsq(x, design.y, rcond=None)
+    return float(coef[1])
+
+
+# -- adjustment, binary outcome: standardization (g-formula) ------------------
+
+def _arm_models(design: Design):
+    x = _with_const(design.covariates)
+    treated = design.t == 1
+    fits = []
+    for arm, mask in (("not treated", ~treated), ("treated", treated)):
+        yy = design.y[mask]
+        if yy.min() == yy.max():
+            raise FitFailed(
+                f"in the {arm} arm every outcome is {yy[0]:g}; the outcome model cannot be fitted "
+                "(try a coarser adjustment set or more data)"
+            )
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                fit = sm.Logit(yy, x[mask]).fit(disp=0, maxiter=100)
+            except Exception as exc:  # perfect separation, singular matrix
+                raise FitFailed(f"the outcome model in the {arm} arm failed: {exc}") from None
+        fits.append(fit)
+    return x, fits
+
+
+def _risks(design: Design) -> tuple[float, float]:
+    x, (fit0, fit1) = _arm_models(design)
+    return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x)))
+
+
+def _contrasts(p0: float, p1: float) -> dict:
+    odds = (lambda p: p / (1 - p))
+    return {
+        "risk_difference": p1 - p0,
+        "risk_ratio": p1 / p0 if p0 > 0 else float("inf"),
+        "odds_ratio": odds(p1) / odds(p0) if 0 < p0 < 1 and p1 < 1 else float("inf"),
+    }
+
+
+def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> dict:
+    """Logistic outcome model within each arm, averaged over the whole sample.
+
+    The risk difference is the headline; risk ratio and odds ratio sit beside
+    it. Intervals are percentile bootstrap intervals over ``resamples``
+    resamples of the rows (standard error: the bootstrap standard deviation).
+    """
+    _require_binary(design, "standardization")
+    p0, p1 = _risks(design)
+    main = _contrasts(p0, p1)
+    rng = np.random.default_rng(seed)
+    draws = {k: [] for k in main}
+    failures = 0
+    for _ in range(resamples):
+        idx = rng.integers(0, design.n, design.n)
+        try:
+            b0, b1 = _risks(design.take(idx))
+        except FitFailed:
+            failures += 1
+            continue
+        for k, v in _contrasts(b0, b1).items():
+            draws[k].append(v)
+    if len(draws["risk_difference"]) < max(20, resamples // 2):
+        raise FitFailed("the outcome model failed on most bootstrap resamples; too little data in an arm")
+    intervals = {k: [float(np.percentile(v, 2.5)), float(np.percentile(v, 97.5))] for k, v in draws.items()}
+    return {
+        "method": "standardization",
+        "estimate": main["risk_difference"],
+        "std_error": float(np.std(draws["risk_difference"], ddof=1)),
+        "ci": intervals["risk_difference"],
+        "scale": "risk difference",
+        "risk_untreated": p0,
+        "risk_treated": p1,
+        "risk_ratio": main["risk_ratio"],
+        "risk_ratio_ci": intervals["risk_ratio"],
+        "odds_ratio": main["odds_ratio"],
+        "odds_ratio_ci": intervals["odds_ratio"],
+        "interval": f"percentile bootstrap, {resamples - failures} resamples",
+    }
+
+
+def point_standardization(design: Design) -> float:
+    p0, p1 = _risks(design)
+    return p1 - p0
+
+
+# -- weighting and doubly robust --------------------------------------------
+
+def _require_binary(design: Design, method: str) -> None:
+    if not design.t_binary:
+        from .errors import BadMethod
+
+        raise BadMethod(f"{method} needs a binary (0/1) treatment; this treatment is continuous")
+    if method == "standardization" and not design.y_binary:
+        from .errors import BadMethod
+
+        raise BadMethod("standardization here needs a binary (0/1) outcome; use regression")
+
+
+def _propensity(design: Design):
+    x = _with_const(design.covariates)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            fit = sm.Logit(design.t, x).fit(disp=0, maxiter=100)
+        except Exception as exc:
+            raise FitFailed(f"the treatment (propensity) model failed: {exc}") from None
+    return x, fit
+
+
+def overlap_summary(t: np.ndarray, score: np.ndarray, bins: int = 20) -> dict:
+    """Propensity score distribution per arm and the extreme weights."""
+    edges = np.linspace(0, 1, bins + 1)
+    treated = t == 1
+    weights = np.where(treated, 1 / score, 1 / (1 - score))
+
+    def kish(w):
+        return float(w.sum() ** 2 / (w ** 2).sum()) if w.size else 0.0
+
+    return {
+        "bin_edges": edges.tolist(),
+        "treated_counts": np.histogram(score[treated], edges)[0].tolist(),
+        "untreated_counts": np.histogram(score[~treated], edges)[0].tolist(),
+        "treated_range": [float(score[treated].min()), float(score[treated].max())],
+        "untreated_range": [float(score[~treated].min()), float(score[~treated].max())],
+        "near_zero_or_one": int(((score < 0.01) | (score > 0.99)).sum()),
+        "largest_weight": float(weights.max()),
+        "largest_weight_share": float(weights.max() / weights.sum()),
+        "effective_n_treated": kish(weights[treated]),
+        "effective_n_untreated": kish(weights[~treated]),
+    }
+
+
+def balance_table(design: Design, score: np.ndarray) -> list[dict]:
+    """Standardized mean differences before and after inverse probability weighting.
+
+    SMD = (mean treated - mean untreated) / sqrt((var treated + var untreated) / 2),
+    with the unweighted variances in the denominator both times (Austin 2009).
+    |SMD| below 0.1 is the usual rule of thumb for balance (common practice).
+    """
+    treated = design.t == 1
+    w = np.where(treated, 1 / score, 1 / (1 - score))
+    out = []
+    for i, name in enumerate(design.covariate_names):
+        col = design.covariates[:, i]
+        a, b = col[treated], col[~treated]
+        pooled = np.sqrt((a.var(ddof=1) + b.var(ddof=1)) / 2)
+        if pooled == 0:
+            continue
+        before = (a.mean() - b.mean()) / pooled
+        after = (np.average(a, weights=w[treated]) - np.average(b, weights=w[~treated])) / pooled
+        out.append({"column": name, "smd_before": float(before), "smd_after": float(after),
+                    "balanced_after": bool(abs(after) < 0.1)})
+    return out
+
+
+def _treatment_effect(design: Design, kind: str) -> dict:
+    from statsmodels.treatment.treatment_effects import TreatmentEffect
+
+    _require_binary(design, "weighting" if kind == "ipw" else "the doubly robust estimator")
+    x, ps_fit = _propensity(design)
+    score = ps_fit.predict(x)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            model = TreatmentEffect(sm.OLS(design.y, x), design.t.astype(int), results_select=ps_fit)
+            res = model.ipw() if kind == "ipw" else model.aipw()
+        except Exception as exc:
+            raise FitFailed(f"the {'weighting' if kind == 'ipw' else 'doubly robust'} fit failed: {exc}") from None
+    ci = res.conf_int()[0]
+    return {
+        "method": "weighting" if kind == "ipw" else "doubly-robust",
+        "estimate": float(res.effect[0]),
+        "std_error": float(res.sd[0]),
+        "ci": [float(ci[0]), float(ci[1])],
+        "mean_untreated": float(res.effect[1]),
+        "mean_treated": float(res.effect[2]),
+        "interval": "joint estimating-equation (GMM) standard errors, statsmodels",
+        "overlap": overlap_summary(design.t, score),
+        "balance": balance_table(design, score),
+    }
+
+
+def weighting(design: Design) -> dict:
+    """Inverse probability weighting with normalised weights (statsmodels TreatmentEffect.ipw)."""
+    return _treatment_effect(design, "ipw")
+
+
+def doubly_robust(design: Design) -> dict:
+    """Augmented IPW (statsmodels TreatmentEffect.aipw), linear outcome model per arm."""
+    return _treatment_effect(design, "aipw")
+
+
+def _point_ipw(design: Design) -> float:
+    x, fit = _propensity(design)
+    p = fit.predict(x)
+    tr = design.t == 1
+    return float(np.average(design.y[tr], weights=1 / p[tr]) - np.average(design.y[~tr], weights=1 / (1 - p[~tr])))
+
+
+def _point_aipw(design: Design) -> float:
+    x, fit = _propensity(design)
+    p = fit.predict(x)
+    tr = design.t == 1
+    m1 = x @ np.linalg.lstsq(x[tr], design.y[tr], rcond=None)[0]
+    m0 = x @ np.linalg.lstsq(x[~tr], design.y[~tr], rcond=None)[0]
+    t, y = design.t, design.y
+    return float(np.mean(m1 - m0 + t * (y - m1) / p - (1 - t) * (y - m0) / (1 - p)))
+
+
+# -- instrument --------------------------------------------------------------
+
+WEAK_F = 10.0  # Staiger & Stock (1997) rule of thumb
+
+
+def two_stage(design: Design) -> dict:
+    """Two-stage least squares (linearmodels IV2SLS), robust errors, controls = conditioning set."""
+    from linearmodels.iv import IV2SLS
+
+    if not design.instruments.size:
+        raise FitFailed("two-stage least squares needs an instrument column")
+    exog = _with_const(design.covariates)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            fit = IV2SLS(design.y, exog, design.t.reshape(-1, 1), design.instruments).fit(cov_type="robust")
+        except Exception as exc:
+            raise FitFailed(f"two-stage least squares failed: {exc}") from None
+    names = list(fit.params.index)
+    treat = names[-1]
+    diag = fit.first_stage.diagnostics
+    q = design.instruments.shape[1]
+    first_f = float(diag["f.stat"].iloc[0]) / (q if "chi2" in str(diag["f.dist"].iloc[0]) else 1)
+    low, high = fit.conf_int().loc[treat]
+    warnings_out = []
+    if first_f < WEAK_F:
+        warnings_out.append(
+            f"weak instrument: first-stage F = {first_f:.1f} is below 10 (Staiger & Stock 1997); "
+            "the estimate and its interval are unreliable"
+        )
+    return {
+        "method": "two-stage",
+        "estimate": float(fit.params[treat]),
+        "std_error": float(fit.std_errors[treat]),
+        "ci": [float(low), float(high)],
+        "first_stage_f": first_f,
+        "first_stage_partial_r2": float(diag["partial.rsquared"].iloc[0]),
+        "weak_instrument": first_f < WEAK_F,
+        "warnings": warnings_out,
+    }
+
+
+def point_two_stage(design: Design) -> float:
+    exog = _with_const(design.covariates)
+    z = np.hstack([exog, design.instruments])
+    first = z @ np.linalg.lstsq(z, design.t, rcond=None)[0]
+    second = np.hstack([exog, first[:, None]])
+    return float(np.linalg.lstsq(second, design.y, rcond=None)[0][-1])
+
+
+# -- front door --------------------------------------------------------------
+
+def point_front_door(design: Design) -> float:
+    """Sum over mediators of (treatment -> mediator) x (mediator -> outcome given treatment)."""
+    m = design.mediators
+    xa = _with_const(design.t)
+    a = np.linalg.lstsq(xa, m, rcond=None)[0][1]
+    xb = _with_const(m, design.t)
+    b = np.linalg.lstsq(xb, design.y, rcond=None)[0][1:1 + m.shape[1]]
+    return float(np.dot(a, b))
+
+
+def front_door(design: Design, *, resamples: int = 500, seed: int = 11) -> dict:
+    """Linear front-door estimate (product of coefficients) with a percentile bootstrap interval."""
+    if not design.mediators.size:
+        raise FitFailed("the front-door estimate needs the mediator columns")
+    estimate = point_front_door(design)
+    rng = np.random.default_rng(seed)
+    draws = np.array([point_front_door(design.take(rng.integers(0, design.n, design.n)))
+                      for _ in range(resamples)])
+    return {
+        "method": "front-door",
+        "estimate": estimate,
+        "std_error": float(draws.std(ddof=1)),
+        "ci": [float(np.percentile(draws, 2.5)), float(np.percentile(draws, 97.5))],
+        "interval": f"percentile bootstrap, {resamples} resamples",
+    }
+
+
+METHODS: dict[str, Callable[[Design], dict]] = {
+    "regression": regression,
+    "standardization": standardization,
+    "weighting": weighting,
+    "doubly-robust": doubly_robust,
+    "two-stage": two_stage,
+    "front-door": front_door,
+}
+
+_POINTS: dict[str, Callable[[Design], float]] = {
+    "regression": point_regression,
+    "standardization": point_standardization,
+    "weighting": _point_ipw,
+    "doubly-robust": _point_aipw,
+    "two-stage": point_two_stage,
+    "front-door": point_front_door,
+}
+
+
+def point_function(method: str) -> Callable[[Design], float]:
+    return _POINTS[method]

@@ -1,0 +1,272 @@
+"""One call per question the analyst asks: estimate, stability, sensitivity,
+and the estimate under each combination of disputed arrows.
+
+Each function takes a :class:`~app.graph.document.Diagram`, a DataFrame and a
+``{variable: column}`` mapping (``None`` proposes exact-name matches) and
+returns a JSON-ready dict. Bad input raises :class:`~app.estimation.errors.DataError`
+or :class:`~app.graph.errors.DiagramError`, both with a message for the analyst.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from itertools import product
+
+import numpy as np
+import pandas as pd
+
+from app.graph.document import Arrow, Diagram
+from app.graph.errors import DiagramError
+
+from . import estimators
+from .design import build_design, check_mapping, propose_mapping
+from .errors import BadMapping, BadMethod, DataError, NotIdentified
+from .implications import test_implications
+from .planning import METHOD_LABELS, Plan, choose_method, make_plan
+from .sensitivity import e_value, regression_sensitivity, standardized_e_value
+from .stability import run_stability
+
+__all__ = ["CAUTIONS", "resolve_mapping", "estimate", "stability", "sensitivity", "disputed_estimates", "MAX_DISPUTES"]
+
+CAUTIONS = [
+    "This is an observational estimate: it is causal only if the agreed diagram is right, "
+    "in particular if no unmeasured common cause of treatment and outcome is missing from it.",
+    "The statistical model's assumptions (listed with the result) must also hold.",
+    "It is not a substitute for a randomised trial or for professional judgement; decisions "
+    "about people's health or livelihood need both.",
+]
+MAX_DISPUTES = 6
+STRATEGY_FOR_METHOD = {"two-stage": "instrument", "front-door": "front-door"}
+
+
+def resolve_mapping(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None) -> dict[str, str]:
+    if mapping is None:
+        return propose_mapping(diagram.names, frame.columns)
+    return check_mapping(mapping, diagram.names, frame.columns)
+
+
+def _prepare(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, method: str | None,
+             adjust: list[str] | None):
+    mapping = resolve_mapping(diagram, frame, mapping)
+    strategy = STRATEGY_FOR_METHOD.get(method or "", "adjustment" if method not in (None, "", "auto") else None)
+    plan = make_plan(diagram, mapping, adjust=adjust, strategy=strategy)
+    if not plan.identifiable:
+        fixes = "; ".join("{" + ", ".join(g) + "}" for g in plan.fixes)
+        raise NotIdentified(
+            "with the measured variables, the diagram does not identify the effect of "
+            f"{plan.treatment} on {plan.outcome}: {plan.analysis['summary']}"
+            + (f" Measuring one of these groups would fix that: {fixes}." if fixes else ""),
+            item={"fixes": plan.fixes, "unmeasured": plan.unmeasured},
+        )
+    design = build_design(
+        frame, mapping, treatment=plan.treatment, outcome=plan.outcome,
+        adjust=plan.adjustment_set if plan.strategy == "adjustment" else plan.given,
+        instruments=[plan.instrument] if plan.instrument else [],
+        mediators=plan.mediators,
+    )
+    chosen = choose_method(plan, t_binary=design.t_binary, y_binary=design.y_binary, method=method)
+    return mapping, plan, design, chosen
+
+
+def _fit(design, method: str) -> dict:
+    result = estimators.METHODS[method](design)
+    for key in ("estimate", "std_error"):
+        if not math.isfinite(result[key]):
+            raise DataError(f"the {method} estimate is not a finite number; the data cannot support it")
+    return result
+
+
+def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[str]]:
+    t_col, y_col = plan.mapping[plan.treatment], plan.mapping[plan.outcome]
+    unit = ("joining (1) versus not (0)" if design.t_binary else f"one unit more of {t_col}")
+    scale = "risk difference" if method == "standardization" else ("difference in the mean of " + y_col)
+    if plan.strategy == "adjustment":
+        how = ("adjusting for " + ", ".join(plan.adjustment_set)) if plan.adjustment_set else "with no adjustment (none is needed)"
+    elif plan.strategy == "instrument":
+        how = f"using {plan.instrument} as an instrument" + (f", given {', '.join(plan.given)}" if plan.given else "")
+    else:
+        how = "through the mediator(s) " + ", ".join(plan.mediators) + " (front-door)"
+    text = (
+        f"Average effect of {plan.treatment} on {plan.outcome}: the {scale} for {unit}, "
+        f"estimated by {METHOD_LABELS[method].lower()}, {how}, on {design.n} rows "
+        f"({design.n_dropped} dropped for missing values)."
+    )
+    assumptions = {
+        "adjustment": [
+            "The diagram is right: the adjustment set blocks every back-door path and contains no "
+            "descendant of the treatment.",
+            "Every level of the adjustment variables has both treated and untreated people (positivity).",
+        ],
+        "instrument": [
+            "The instrument moves the treatment and reaches the outcome only through the treatment.",
+            "Nothing unmeasured causes both the instrument and the outcome.",
+            "The effect is linear and the same for everyone (or the estimate is a local average).",
+        ],
+        "front-door": [
+            "The mediators carry the whole effect, nothing unmeasured confounds treatment and mediators, "
+            "and the treatment blocks every back-door path from mediators to outcome.",
+            "The relations are linear (product of coefficients).",
+        ],
+    }[plan.strategy]
+    model = {
+        "regression": "The outcome is linear in the treatment and the adjustment columns; errors may be heteroskedastic (robust HC1 standard errors).",
+        "standardization": "A logistic model of the outcome within each arm is correctly specified.",
+        "weighting": "The logistic model of the treatment (propensity score) is correctly specified.",
+        "doubly-robust": "Either the propensity model or the linear outcome model per arm is correctly specified.",
+        "two-stage": "Linear first and second stage; robust standard errors.",
+        "front-door": "Linear models for mediator and outcome; bootstrap interval.",
+    }[method]
+    return text, assumptions + [model]
+
+
+def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
+             method: str | None = None, adjust: list[str] | None = None, checks: bool = True,
+             correction: str = "holm", alpha: float = 0.05) -> dict:
+    """Estimate the effect the diagram identifies, and test its implications."""
+    mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
+    result = _fit(design, chosen)
+    result.pop("_fit", None)
+    text, assumptions = _describe(plan, design, chosen, result)
+    out = {
+        "estimate": result["estimate"],
+        "std_error": result["std_error"],
+        "ci": result["ci"],
+        "ci_level": 0.95,
+        "method": chosen,
+        "method_label": METHOD_LABELS[chosen],
+        "strategy": plan.strategy,
+        "adjustment_set": plan.adjustment_set if plan.strategy == "adjustment" else None,
+        "instrument": plan.instrument,
+        "given": plan.given if plan.strategy == "instrument" else None,
+        "mediators": plan.mediators or None,
+        "treatment": plan.treatment,
+        "outcome": plan.outcome,
+        "columns": {v: c.to_json() for v, c in design.columns.items()},
+        "n_used": design.n,
+        "n_dropped": design.n_dropped,
+        "mapping": mapping,
+        "unmeasured": plan.unmeasured,
+        "identification_summary": plan.analysis["summary"],
+        "other_valid_sets": plan.analysis["minimal_adjustment_sets"],
+        "fixes": plan.fixes,
+        "notes": plan.notes,
+        "explanation": text,
+        "assumptions": assumptions,
+        "cautions": CAUTIONS,
+        "warnings": result.get("warnings", []),
+        "details": {k: v for k, v in result.items()
+                    if k not in ("estimate", "std_error", "ci", "method", "warnings")},
+        "checks": None,
+    }
+    if design.t_binary and chosen in ("regression",) and design.y_binary:
+        out["warnings"].append("binary outcome fitted by linear regression: the estimate is a risk difference")
+    if checks:
+        out["checks"] = test_implications(
+            frame, mapping, plan.analysis["implications"], correction=correction, alpha=alpha,
+            total=plan.analysis.get("implications_total"),
+        )
+    return out
+
+
+def stability(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
+              method: str | None = None, adjust: list[str] | None = None, repeats: int = 100,
+              seed: int = 2024) -> dict:
+    mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
+    point = estimators.point_function(chosen)
+    original = point(design)
+    checks = run_stability(design, point, original, repeats=repeats, seed=seed)
+    if plan.strategy != "adjustment":
+        checks = [c for c in checks if c["check"] != "invented-common-cause"] + [
+            {"check": "invented-common-cause", "label": "Invented common cause", "original": original,
+             "new": None, "spread": None, "runs": 0, "p_value": None, "verdict": "not run",
+             "detail": "only meaningful for an adjustment estimate"}]
+    return {"method": chosen, "estimate": original, "repeats": repeats, "seed": seed, "checks": checks}
+
+
+def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
+                method: str | None = None, adjust: list[str] | None = None, q: float = 1.0,
+                alpha: float = 0.05) -> dict:
+    mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
+    out: dict = {"method": chosen, "regression": None, "e_value": None}
+    if chosen == "regression":
+        fit = estimators.regression(design)
+        out["regression"] = regression_sensitivity(design, fit, q=q, alpha=alpha)
+        sd = float(np.std(design.y, ddof=1))
+        out["e_value"] = standardized_e_value(fit["estimate"], fit["ci"][0], fit["ci"][1], sd)
+    elif chosen == "standardization":
+        fit = estimators.standardization(design)
+        out["e_value"] = e_value(fit["risk_ratio"], *fit["risk_ratio_ci"])
+    else:
+        fit = _fit(design, chosen)
+        out["note"] = ("the partial R-squared sensitivity applies to the regression estimate; "
+                       "choose method 'regression' to see it")
+    if out["e_value"]:
+        ev = out["e_value"]
+        out["e_value"]["reading"] = (
+            f"To explain away the estimate, an unmeasured confounder would need a risk ratio of at least "
+            f"{ev['e_value']:.2f} with both treatment and outcome; to move the interval to include no effect, "
+            f"{ev['e_value_ci']:.2f}." if ev["e_value_ci"] is not None else ""
+        )
+    return out
+
+
+def _toggle(diagram: Diagram, arrow: Arrow, present: bool) -> Diagram:
+    arrows = [a for a in diagram.arrows if a != arrow]
+    if present:
+        arrows.append(arrow)
+    return replace(diagram, arrows=tuple(arrows))
+
+
+def disputed_estimates(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, disputed: list,
+                       *, method: str | None = None) -> dict:
+    """The default estimate under each combination of the disputed arrows (present or absent)."""
+    arrows = []
+    for item in disputed:
+        if isinstance(item, dict):
+            source, target = item.get("from"), item.get("to")
+        else:
+            source, target = item
+        if not (diagram.has_variable(str(source)) and diagram.has_variable(str(target))):
+            raise BadMapping(f"disputed arrow {source} -> {target} names a variable not in the diagram")
+        arrows.append(Arrow(str(source), str(target)))
+    arrows = list(dict.fromkeys(arrows))
+    if len(arrows) > MAX_DISPUTES:
+        raise BadMethod(f"{len(arrows)} disputed arrows give {2 ** len(arrows)} diagrams; the limit is {MAX_DISPUTES} arrows")
+    mapping = resolve_mapping(diagram, frame, mapping)
+    rows = []
+    from app.graph.document import find_cycle, parse_document
+
+    for pattern in product((True, False), repeat=len(arrows)):
+        variant = diagram
+        for arrow, present in zip(arrows, pattern):
+            variant = _toggle(variant, arrow, present)
+        label = ", ".join(f"{'with' if p else 'without'} {a.source}\u2192{a.target}" for a, p in zip(arrows, pattern)) or "as agreed"
+        row = {"label": label, "arrows": [{"from": a.source, "to": a.target, "present": p} for a, p in zip(arrows, pattern)],
+               "estimate": None, "ci": None, "std_error": None, "strategy": None, "adjustment_set": None,
+               "method": None, "problem": None}
+        try:
+            cycle = find_cycle(variant.names, ((a.source, a.target) for a in variant.arrows))
+            if cycle:
+                raise DataError("this combination makes a cycle: " + " -> ".join(cycle + cycle[:1]))
+            variant = parse_document(variant.to_document())
+            res = estimate(variant, frame, mapping, method=method, checks=False)
+            row.update({k: res[k] for k in ("estimate", "ci", "std_error", "strategy", "adjustment_set", "method")})
+            row["instrument"] = res["instrument"]
+        except (DataError, DiagramError) as exc:
+            row["problem"] = exc.message
+        rows.append(row)
+    return {"disputed": [{"from": a.source, "to": a.target} for a in arrows], "rows": rows}
+
+
+def json_ready(value):
+    """Replace NaN and infinities by None and numpy scalars by Python ones, recursively."""
+    if isinstance(value, dict):
+        return {str(k): json_ready(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_ready(v) for v in value]
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
