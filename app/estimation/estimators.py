@@ -92,7 +92,8 @@ def _arm_models(design: Design):
 
 def _risks(design: Design) -> tuple[float, float]:
     x, (fit0, fit1) = _arm_models(design)
-    return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x)))
+    with np.errstate(over="ignore"):
+        return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x)))
 
 
 def _contrasts(p0: float, p1: float) -> dict:

@@ -23,7 +23,7 @@ from statsmodels.stats.multitest import multipletests
 
 from .design import MAX_LEVELS
 
-__all__ = ["fisher_z_test", "likelihood_ratio_test", "test_implications", "CORRECTIONS"]
+__all__ = ["fisher_z_test", "likelihood_ratio_test", "adjust_p_values", "test_implications", "CORRECTIONS"]
 
 CORRECTIONS = {"holm": "holm", "bh": "fdr_bh", "none": None}
 
@@ -96,6 +96,17 @@ def likelihood_ratio_test(response: np.ndarray, response_kind: str, predictor: n
             "p_value": float(stats.chi2.sf(stat, extra))}
 
 
+def adjust_p_values(p_values, correction: str = "holm", alpha: float = 0.05) -> list[float]:
+    """Multiplicity-adjusted p-values (statsmodels ``multipletests``)."""
+    if correction not in CORRECTIONS:
+        raise ValueError(f"unknown correction {correction!r}; use holm, bh or none")
+    method = CORRECTIONS[correction]
+    p = np.asarray(p_values, dtype=float)
+    if not p.size:
+        return []
+    return [float(v) for v in (multipletests(p, alpha=alpha, method=method)[1] if method else p)]
+
+
 def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications: list[dict], *,
                       correction: str = "holm", alpha: float = 0.05, total: int | None = None) -> dict:
     """Run every implication over the mapped columns; complete cases per test."""
@@ -124,7 +135,7 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
             given = (np.hstack([_block(sub[mapping[v]], kinds[v], v) for v in imp["given"]])
                      if imp["given"] else np.empty((len(sub), 0)))
             kx, ky = kinds[imp["x"]], kinds[imp["y"]]
-            if kx == ky == "continuous" and all(kinds[v] != "categorical" or True for v in imp["given"]):
+            if kx == ky == "continuous":
                 out = fisher_z_test(sub[mapping[imp["x"]]].to_numpy(float), sub[mapping[imp["y"]]].to_numpy(float), given)
             else:
                 order = {"continuous": 0, "binary": 1, "categorical": 2}
@@ -142,10 +153,8 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
         results.append(entry)
 
     tested = [r for r in results if r["p_value"] is not None]
-    method = CORRECTIONS[correction]
     if tested:
-        pvals = np.array([r["p_value"] for r in tested])
-        adjusted = multipletests(pvals, alpha=alpha, method=method)[1] if method else pvals
+        adjusted = adjust_p_values([r["p_value"] for r in tested], correction, alpha)
         for r, p in zip(tested, adjusted):
             r["p_adjusted"] = float(p)
             r["verdict"] = "fails" if p < alpha else "holds"

@@ -9,6 +9,7 @@ over the size limit. :func:`profile_table` reports, for every column, its kind
 
 from __future__ import annotations
 
+import csv
 import io
 import os
 from pathlib import Path
@@ -57,6 +58,7 @@ def load_table(path: str | os.PathLike, *, max_bytes: int | None = DEFAULT_MAX_B
         frame = _read_parquet(path, shown)
     else:
         _refuse_binary(head, shown)
+        _refuse_duplicate_header(head, shown)
         frame = _read_csv(path, shown)
     return _checked(frame, shown)
 
@@ -71,6 +73,7 @@ def read_table_bytes(data: bytes, *, name: str = "the upload",
         frame = _read_parquet(io.BytesIO(data), name)
     else:
         _refuse_binary(data[:8192], name)
+        _refuse_duplicate_header(data[:8192], name)
         frame = _read_csv(io.BytesIO(data), name)
     return _checked(frame, name)
 
@@ -90,6 +93,17 @@ def _refuse_binary(head: bytes, shown: str) -> None:
                 f"{shown} is not UTF-8 text (byte {exc.start + 1} cannot be read); "
                 "save the CSV as UTF-8"
             ) from None
+
+
+def _refuse_duplicate_header(head: bytes, shown: str) -> None:
+    # pandas silently renames a repeated header ("a", "a.1"); refuse it instead
+    line = head.decode("utf-8", errors="ignore").lstrip("\ufeff").splitlines()[:1]
+    if not line:
+        return
+    names = [n.strip() for n in next(csv.reader(line))]
+    dupes = sorted({n for n in names if names.count(n) > 1})
+    if dupes:
+        raise NotATable(f"{shown} has duplicate column names: {', '.join(dupes)}", item=dupes)
 
 
 def _read_csv(source, shown: str) -> pd.DataFrame:

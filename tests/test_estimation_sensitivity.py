@@ -1,0 +1,99 @@
+"""Sensitivity formulas against their papers' published worked values."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import optimize, stats
+
+from app.estimation import sensitivity as S
+
+# Cinelli & Hazlett (2020), Darfur example: effect of being directly harmed on
+# attitudes toward peace; estimate 0.0973, se 0.0233, df 783, partial R2 of the
+# treatment 2.2%, RV = 13.9%, RV(alpha = 0.05) = 7.6%. Values from memory.
+DARFUR = {"estimate": 0.09731, "se": 0.02326, "df": 783}
+
+
+def test_darfur_partial_r2_and_robustness_values():
+    t = DARFUR["estimate"] / DARFUR["se"]
+    assert S.partial_r2(t, DARFUR["df"]) == pytest.approx(0.022, abs=5e-4)
+    assert S.robustness_value(t, DARFUR["df"]) == pytest.approx(0.139, abs=5e-4)
+    assert S.robustness_value(t, DARFUR["df"], alpha=0.05) == pytest.approx(0.076, abs=5e-4)
+
+
+# The paper's bounds table: a confounder 1, 2, 3 times as strong as "female"
+# (r2dz, r2yz, adjusted estimate, adjusted se). Values from memory.
+DARFUR_BOUNDS = [
+    (1, 0.0092, 0.1246, 0.0752, 0.0219),
+    (2, 0.0183, 0.2493, 0.0529, 0.0204),
+    (3, 0.0275, 0.3741, 0.0304, 0.0187),
+]
+
+
+@pytest.mark.parametrize("k, r2dz, r2yz, adj_est, adj_se", DARFUR_BOUNDS)
+def test_darfur_adjusted_estimates_for_female_benchmarks(k, r2dz, r2yz, adj_est, adj_se):
+    est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
+    assert float(S.adjusted_estimate(est, se, df, r2dz, r2yz)) == pytest.approx(adj_est, abs=2e-4)
+    assert float(S.adjusted_se(se, df, r2dz, r2yz)) == pytest.approx(adj_se, abs=2e-4)
+
+
+def test_benchmark_bounds_scale_like_the_published_table():
+    """Recover female's partial R2 values from the 1x row, then the 2x and 3x rows must follow."""
+    r2dxj = 0.0092 / (1 + 0.0092)  # inverts r2dz = r2dxj / (1 - r2dxj)
+    r2yxj = optimize.brentq(lambda v: S.benchmark_bounds(r2dxj, v, kd=1)[1] - 0.1246, 1e-6, 0.5)
+    for k, r2dz, r2yz, *_ in DARFUR_BOUNDS[1:]:
+        got = S.benchmark_bounds(r2dxj, r2yxj, kd=k)
+        assert got[0] == pytest.approx(r2dz, abs=1.5e-4)
+        assert got[1] == pytest.approx(r2yz, abs=2e-4)
+
+
+@pytest.mark.parametrize("t_value, df", [(4.18, 783), (2.5, 100), (40.0, 500), (10.0, 10)])
+def test_robustness_value_alpha_is_the_smallest_strength_that_loses_significance(t_value, df):
+    """Brute-force check of RV(q=1, alpha) against its definition: the least max(r2dz, r2yz)
+    such that the bias-adjusted 95% interval reaches zero (covers the case f_q > 1/f*)."""
+    se = 1.0
+    est = t_value * se
+    tcrit = stats.t.ppf(0.975, df - 1)
+
+    def reaches_zero(r2dz, r2yz):
+        return S.adjusted_estimate(est, se, df, r2dz, r2yz) - tcrit * S.adjusted_se(se, df, r2dz, r2yz) <= 0
+
+    grid = np.linspace(0, 0.999, 1200)
+    best = 1.0
+    for r2dz in grid:
+        ok = grid[reaches_zero(r2dz, grid)]
+        if ok.size:
+            best = min(best, max(r2dz, ok.min()))
+    assert S.robustness_value(t_value, df, alpha=0.05) == pytest.approx(best, abs=2e-3)
+
+
+def test_adjusted_estimate_vanishes_at_the_robustness_value():
+    est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
+    rv = S.robustness_value(est / se, df)
+    assert float(S.adjusted_estimate(est, se, df, rv, rv)) == pytest.approx(0.0, abs=1e-9)
+
+
+def test_contour_line_for_zero_passes_through_the_robustness_value():
+    est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
+    contour = S.contour_lines(est, se, df, r2_max=0.3, levels=[0.0, 0.05])
+    zero = next(line for line in contour["lines"] if line["level"] == 0.0)
+    rv = S.robustness_value(est / se, df)
+    xs, ys = np.array(zero["points"]).T
+    assert np.interp(rv, xs, ys) == pytest.approx(rv, rel=0.02)
+    assert zero["critical"]
+
+
+# VanderWeele & Ding (2017), worked example: observed risk ratio 3.9 with lower
+# confidence limit 1.8 gives E-values 7.26 and 3.00. Values from memory.
+def test_e_value_reproduces_vanderweele_ding_example():
+    out = S.e_value(3.9, 1.8, 8.7)
+    assert out["e_value"] == pytest.approx(7.26, abs=0.01)
+    assert out["e_value_ci"] == pytest.approx(3.0, abs=0.01)
+
+
+def test_e_value_protective_and_null_interval():
+    out = S.e_value(0.8, 0.6, 1.1)
+    assert out["e_value"] == pytest.approx(1 / 0.8 + math.sqrt(1 / 0.8 * (1 / 0.8 - 1)))
+    assert out["e_value_ci"] == 1.0
