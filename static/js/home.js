@@ -1,0 +1,47 @@
+// Start page: open a session (optionally from a graph document) or continue to a join code.
+
+import { el, clear } from './dom.js';
+import { callApi, saveKey, listSessions } from './api.js';
+
+const createForm = document.getElementById('create-form');
+const createError = document.getElementById('create-error');
+
+createForm.addEventListener('submit', async (event) => {
+  event.preventDefault();
+  createError.textContent = '';
+  const form = new FormData(createForm);
+  const body = { title: form.get('title'), name: form.get('name') || undefined };
+  const treatment = String(form.get('treatment') || '').trim();
+  const outcome = String(form.get('outcome') || '').trim();
+  if (treatment) body.treatment = treatment;
+  if (outcome) body.outcome = outcome;
+  const file = form.get('document');
+  if (file && file.size) {
+    try { body.document = JSON.parse(await file.text()); } catch {
+      createError.textContent = 'That file is not JSON; choose an Arrowmoot graph document.';
+      return;
+    }
+  }
+  try {
+    const data = await callApi('POST', '/api/sessions', body);
+    saveKey(data.session_id, data.token, data.state.session.title, 'facilitator');
+    location.href = data.session_page;
+  } catch (err) {
+    createError.textContent = err.message;
+  }
+});
+
+document.getElementById('join-code-form').addEventListener('submit', (event) => {
+  event.preventDefault();
+  const code = String(new FormData(event.target).get('code') || '').trim().toUpperCase();
+  if (code) location.href = `/join/${encodeURIComponent(code)}`;
+});
+
+const mine = listSessions();
+if (mine.length) {
+  const list = clear(document.getElementById('my-sessions-list'));
+  for (const s of mine) {
+    list.append(el('li', {}, el('a', { href: `/s/${encodeURIComponent(s.id)}`, text: s.title }), el('span', { class: 'muted', text: ` (${s.role})` })));
+  }
+  document.getElementById('my-sessions').hidden = false;
+}

@@ -1,0 +1,349 @@
+// Side panels: what the diagram implies, the debate, the selection, history, people.
+// Each function takes the app object and returns DOM built with textContent only.
+
+import { el, clock } from './dom.js';
+
+const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
+const ROLE_WORDS = {
+  treatment: 'treatment', outcome: 'outcome', confounder: 'confounder', mediator: 'mediator',
+  collider: 'collider', treatment_descendant: 'descendant of treatment', instrument: 'instrument',
+  unrelated: 'not on any path',
+};
+
+function setChips(app, sets, label) {
+  if (!sets?.length) return el('p', { class: 'muted', text: 'none' });
+  return el('div', { class: 'chips' }, sets.map((set) => {
+    const key = JSON.stringify(set);
+    const active = JSON.stringify(app.view.adjusted) === key;
+    return el('button', {
+      class: `chip${active ? ' chip-active' : ''}`, type: 'button', 'aria-pressed': active ? 'true' : 'false',
+      title: `Show ${label} on the diagram`,
+      text: set.length ? `{ ${set.join(', ')} }` : '{ } (nothing to adjust for)',
+      on: { click: () => app.showAdjusted(active ? [] : set) },
+    });
+  }));
+}
+
+function pathText(nodes, arrowsSet) {
+  const parts = [nodes[0]];
+  for (let i = 1; i < nodes.length; i++) {
+    const forward = arrowsSet.has(JSON.stringify([nodes[i - 1], nodes[i]]));
+    parts.push(forward ? ' → ' : ' ← ', nodes[i]);
+  }
+  return parts.join('');
+}
+
+/** The analysis of the current diagram. */
+export function renderAnalysis(app) {
+  const box = el('div', { class: 'panel-body' });
+  const info = app.analysis;
+  const stale = info && info.revision !== app.state.revision;
+  if (!info) return el('div', { class: 'panel-body' }, el('p', { class: 'muted', text: 'Working out what the diagram implies…' }));
+  if (stale) box.append(el('p', { class: 'updating', text: 'Updating for the latest edit…' }));
+  if (!info.analysis) {
+    box.append(el('p', { class: 'notice', text: info.problem || 'No analysis yet.' }));
+    return box;
+  }
+  const a = info.analysis;
+  const verdict = a.identifiable
+    ? `Identified${a.strategy ? ` by ${a.strategy === 'adjustment' ? 'adjustment' : a.strategy === 'front-door' ? 'the front-door criterion' : 'an instrument'}` : ''}`
+    : 'Not identified from this diagram';
+  box.append(el('div', { class: `verdict ${a.identifiable ? 'verdict-yes' : 'verdict-no'}` },
+    el('span', { class: 'verdict-mark', 'aria-hidden': 'true', text: a.identifiable ? '◆' : '◇' }),
+    el('strong', { text: verdict })));
+  box.append(el('p', { class: 'summary', text: a.summary }));
+
+  box.append(el('h3', { text: 'Minimal adjustment sets' }));
+  box.append(setChips(app, a.minimal_adjustment_sets, 'this adjustment set'));
+  if (a.more_sets_exist) box.append(el('p', { class: 'muted', text: 'More sets exist; the first ones are listed.' }));
+  box.append(el('h3', { text: 'Optimal adjustment set' }));
+  if (a.optimal_adjustment_set) box.append(setChips(app, [a.optimal_adjustment_set], 'the optimal set'));
+  else box.append(el('p', { class: 'muted', text: 'none' }));
+  if (a.optimal_note) box.append(el('p', { class: 'note', text: a.optimal_note }));
+  if (a.front_door_sets?.length) {
+    box.append(el('h3', { text: 'Front-door sets' }));
+    box.append(el('ul', {}, a.front_door_sets.map((s) => el('li', { text: `{ ${s.join(', ')} }` }))));
+  }
+  if (a.instruments?.length) {
+    box.append(el('h3', { text: 'Instruments' }));
+    box.append(el('ul', {}, a.instruments.map((i) => el('li', { text: i.given.length ? `${i.instrument} (given ${i.given.join(', ')})` : i.instrument }))));
+  }
+
+  const arrowsSet = new Set(app.state.document.arrows.map((x) => JSON.stringify([x.from, x.to])));
+  const paths = a.paths || [];
+  const biasing = paths.filter((p) => !p.causal && p.open);
+  const blocked = paths.filter((p) => !p.causal && !p.open);
+  const causal = paths.filter((p) => p.causal);
+  const adjustedText = app.view.adjusted.length ? ` given { ${app.view.adjusted.join(', ')} }` : ' (adjusting for nothing)';
+  box.append(el('h3', { text: `Open non-causal paths${adjustedText}` }));
+  box.append(pathList(app, biasing, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
+  box.append(el('h3', { text: 'Causal paths' }));
+  box.append(pathList(app, causal, arrowsSet, 'No causal path: the diagram says the treatment does not affect the outcome.'));
+  if (blocked.length) {
+    box.append(el('details', {}, el('summary', { text: `Blocked non-causal paths (${blocked.length})` }), pathList(app, blocked, arrowsSet, '')));
+  }
+  if (a.paths_capped) box.append(el('p', { class: 'muted', text: `Showing ${paths.length} of ${a.paths_total} paths.` }));
+
+  box.append(el('h3', { text: 'Roles' }));
+  const roles = Object.entries(a.roles || {}).sort(([x], [y]) => x.localeCompare(y));
+  box.append(el('table', { class: 'roles' }, el('tbody', {}, roles.map(([name, words]) => el('tr', {},
+    el('th', { text: name }), el('td', { text: words.map((w) => ROLE_WORDS[w] || w).join(', ') }))))));
+
+  box.append(el('h3', { text: `Testable implications (${a.implications_total ?? (a.implications || []).length})` }));
+  const imps = a.implications || [];
+  if (!imps.length) box.append(el('p', { class: 'muted', text: 'The diagram implies no independence among measured variables.' }));
+  else box.append(el('ul', { class: 'implications' }, imps.slice(0, 40).map((i) => el('li', {
+    text: `${i.x} ⫫ ${i.y}${i.given.length ? ` | ${i.given.join(', ')}` : ''}`,
+  }))));
+  if (imps.length > 40) box.append(el('p', { class: 'muted', text: `…and ${imps.length - 40} more.` }));
+  box.append(caution());
+  return box;
+}
+
+function pathList(app, paths, arrowsSet, emptyText) {
+  if (!paths.length) return el('p', { class: 'muted', text: emptyText });
+  return el('ol', { class: 'paths' }, paths.map((p) => {
+    const active = app.view.highlight && JSON.stringify(app.view.highlight.nodes) === JSON.stringify(p.nodes);
+    return el('li', {},
+      el('button', {
+        type: 'button', class: `path${active ? ' path-active' : ''}`, 'aria-pressed': active ? 'true' : 'false',
+        text: pathText(p.nodes, arrowsSet), title: p.why,
+        on: { click: () => app.highlightPath(active ? null : p) },
+      }),
+      active && p.why ? el('p', { class: 'why', text: p.why }) : null);
+  }));
+}
+
+export function caution() {
+  return el('p', { class: 'caution', text:
+    'A diagram records what the room assumes; the analysis is only as right as its arrows. '
+    + 'Before any decision about people’s health, pay or jobs rests on it, have the assumptions and any estimate '
+    + 'reviewed by someone qualified, and treat results from invented demo data as illustrations only.' });
+}
+
+function tallyLine(tally) {
+  return `${tally.agree} agree · ${tally.disagree} disagree · ${tally.unsure} unsure`;
+}
+
+function voteBox(app, target, votes, closed) {
+  const mine = votes.find((v) => v.member === app.me.id);
+  const reason = el('input', { type: 'text', maxlength: 200, placeholder: 'Reason (optional, one line)', class: 'vote-reason', 'aria-label': 'Reason for your vote' });
+  if (mine?.reason) reason.value = mine.reason;
+  const buttons = Object.entries(VOTE_LABELS).map(([choice, label]) => el('button', {
+    type: 'button', class: `vote vote-${choice}${mine?.choice === choice ? ' vote-mine' : ''}`,
+    'aria-pressed': mine?.choice === choice ? 'true' : 'false', disabled: closed,
+    text: label, dataset: { choice },
+    on: { click: () => app.send({ type: 'vote', ...target, choice, reason: reason.value }) },
+  }));
+  const list = votes.length ? el('ul', { class: 'votes' }, votes.map((v) => el('li', {},
+    el('span', { class: `vote-word vote-word-${v.choice}`, text: VOTE_LABELS[v.choice] }),
+    el('span', { class: 'voter', text: ` ${v.name}` }),
+    v.reason ? el('span', { class: 'vote-why', text: ` — ${v.reason}` }) : null))) : null;
+  return el('div', { class: 'vote-box' }, closed ? null : el('div', { class: 'vote-buttons' }, buttons),
+    closed ? null : reason, list);
+}
+
+/** Proposals, disputes and the absent-arrow check. */
+export function renderDebate(app) {
+  const box = el('div', { class: 'panel-body' });
+  const s = app.state;
+  const stage = s.session.stage;
+  if (stage === 'drafting') box.append(el('p', { class: 'notice', text: 'Drafting: everyone draws directly. When the facilitator moves to debating, arrow changes become proposals the room votes on.' }));
+  const open = s.proposals.filter((p) => p.status === 'open' || p.status === 'disputed');
+  const done = s.proposals.filter((p) => !(p.status === 'open' || p.status === 'disputed'));
+  box.append(el('h3', { text: `Proposals (${open.length} open or disputed)` }));
+  if (!open.length) box.append(el('p', { class: 'muted', text: stage === 'debating' ? 'No open proposals. Draw an arrow, or select one to propose removing or reversing it.' : 'None.' }));
+  for (const p of open) box.append(proposalCard(app, p));
+  if (done.length) box.append(el('details', {}, el('summary', { text: `Settled (${done.length})` }), done.map((p) => proposalCard(app, p))));
+  box.append(renderDisputes(app));
+  box.append(renderAbsent(app));
+  return box;
+}
+
+export function proposalCard(app, p) {
+  const closed = !['open', 'disputed'].includes(p.status) || ['agreed', 'estimation'].includes(app.state.session.stage);
+  const card = el('article', { class: `proposal proposal-${p.status}`, dataset: { proposal: p.id } },
+    el('header', {},
+      el('span', { class: 'proposal-id', text: `#${p.id}` }),
+      el('strong', { text: ` ${p.summary}` }),
+      el('span', { class: `status status-${p.status}`, text: p.status })),
+    el('p', { class: 'byline', text: `by ${p.by_name}${p.reason ? ` — “${p.reason}”` : ''}` }),
+    el('p', { class: 'tally', text: tallyLine(p.tally) }),
+    voteBox(app, { proposal: p.id }, p.votes, closed));
+  const actions = el('div', { class: 'row actions' });
+  if (app.isFacilitator && app.state.session.stage === 'debating' && ['open', 'disputed'].includes(p.status)) {
+    actions.append(
+      el('button', { type: 'button', class: 'primary', text: 'Accept', on: { click: () => app.send({ type: 'settle', proposal: p.id, decision: 'accept' }) } }),
+      el('button', { type: 'button', text: 'Reject', on: { click: () => app.send({ type: 'settle', proposal: p.id, decision: 'reject' }) } }));
+    if (p.status === 'open') actions.append(el('button', { type: 'button', text: 'Leave disputed', on: { click: () => app.send({ type: 'settle', proposal: p.id, decision: 'dispute' }) } }));
+  }
+  if (p.status === 'open' && (p.by === app.me.id || app.isFacilitator)) {
+    actions.append(el('button', { type: 'button', class: 'quiet', text: 'Withdraw', on: { click: () => app.send({ type: 'withdraw_proposal', proposal: p.id }) } }));
+  }
+  if (actions.childElementCount) card.append(actions);
+  return card;
+}
+
+function optionText(option) {
+  return option ? `${option[0]} → ${option[1]}` : 'no arrow';
+}
+
+function renderDisputes(app) {
+  const box = el('section', { class: 'disputes' }, el('h3', { text: 'Which disputes matter' }));
+  const d = app.analysis?.disputes;
+  const items = app.state.disputed;
+  if (!items.length) { box.append(el('p', { class: 'muted', text: 'No arrow is in dispute. Arrows someone votes against, open proposals and arrows the facilitator marks disputed are checked here.' })); return box; }
+  if (!d) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking the disputes…' })); return box; }
+  box.append(el('p', { class: 'note', text: d.note }));
+  for (const item of d.items) {
+    box.append(el('article', { class: `dispute ${item.decisive ? 'dispute-decisive' : 'dispute-idle'}` },
+      el('header', {},
+        el('span', { class: 'dispute-mark', 'aria-hidden': 'true', text: item.decisive ? '!' : '–' }),
+        el('strong', { text: ` ${item.pair.join(' / ')}: ${item.decisive ? 'decisive' : 'does not change the answer'}` })),
+      el('ul', {}, item.effects.map((e) => el('li', { text: `${optionText(e.option)}${e.current ? ' (as drawn)' : ''}: ${e.text}` }))),
+      el('p', { class: 'muted', text: item.why.join('; ') })));
+  }
+  box.append(el('h4', { text: 'Adjustment sets valid whatever the disputes decide' }));
+  if (d.robust_sets.length) box.append(setChips(app, d.robust_sets, 'this set'));
+  else box.append(el('p', { class: 'notice', text: 'No single adjustment set among those checked works in every combination: settle the decisive disputes first.' }));
+  if (d.robust_note) box.append(el('p', { class: 'muted', text: d.robust_note }));
+  box.append(el('h4', { text: `Combinations where the effect is not identified (${d.not_identified_count} of ${d.combinations_checked})` }));
+  if (!d.not_identified.length) box.append(el('p', { class: 'muted', text: 'None: the effect is identified in every combination checked.' }));
+  else box.append(el('ul', { class: 'combos' }, d.not_identified.map((c) => el('li', { text: c.map(optionText).join('; ') }))));
+  if (d.cycle_count) box.append(el('p', { class: 'notice', text: `${d.cycle_count} combination(s) would make a cycle (e.g. ${d.cycle_examples[0].join(' → ')}) and cannot all be true at once.` }));
+  return box;
+}
+
+function renderAbsent(app) {
+  const box = el('section', { class: 'absent' }, el('h3', { text: 'Arrows left out that would change the answer' }));
+  const a = app.analysis?.absent;
+  if (!a) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking…' })); return box; }
+  box.append(el('p', { class: 'note', text: a.note }));
+  if (!a.arrows.length) return box;
+  box.append(el('ul', { class: 'absent-list' }, a.arrows.slice(0, 30).map((x) => el('li', {},
+    el('strong', { text: `${x.from} → ${x.to}` }), el('span', { text: ` — ${x.text}` })))));
+  if (a.arrows.length > 30) box.append(el('p', { class: 'muted', text: `…and ${a.arrows.length - 30} more.` }));
+  return box;
+}
+
+/** Details of the selected variable, arrow or proposal. */
+export function renderSelection(app) {
+  const box = el('div', { class: 'panel-body' });
+  const sel = app.view.selection;
+  const s = app.state;
+  const locked = ['agreed', 'estimation'].includes(s.session.stage);
+  if (!sel) {
+    box.append(el('p', { class: 'muted', text: 'Select a variable or an arrow on the diagram to see and change it. Double-click empty space to add a variable; drag from the round handle (or Shift-drag) to draw an arrow.' }));
+    return box;
+  }
+  if (sel.kind === 'variable') {
+    const v = s.document.variables.find((x) => x.name === sel.name);
+    if (!v) return box;
+    const name = el('input', { type: 'text', maxlength: 64, value: v.name, disabled: locked, 'aria-label': 'Name' });
+    const label = el('input', { type: 'text', maxlength: 200, value: v.label || '', disabled: locked, 'aria-label': 'Label' });
+    const description = el('textarea', { rows: 3, maxlength: 2000, disabled: locked, 'aria-label': 'Description' });
+    description.value = v.description || '';
+    const latent = el('input', { type: 'checkbox', disabled: locked });
+    latent.checked = !!v.latent;
+    const save = () => {
+      const cmd = { type: 'update_variable', name: v.name };
+      if (label.value.trim() !== (v.label || '')) cmd.label = label.value.trim();
+      if (description.value !== (v.description || '')) cmd.description = description.value;
+      if (latent.checked !== !!v.latent) cmd.latent = latent.checked;
+      if (name.value.trim() && name.value.trim() !== v.name) cmd.new_name = name.value.trim();
+      if (Object.keys(cmd).length > 2) app.send(cmd).then(() => { if (cmd.new_name) app.select({ kind: 'variable', name: cmd.new_name }); });
+    };
+    box.append(el('h3', { text: `Variable ${v.name}` }),
+      el('form', { class: 'stack', on: { submit: (e) => { e.preventDefault(); save(); } } },
+        el('label', {}, 'Name (used in the analysis)', name),
+        el('label', {}, 'Label (shown on the diagram)', label),
+        el('label', {}, 'Description', description),
+        el('label', { class: 'check' }, latent, ' Unmeasured (no data will exist for it)'),
+        locked ? null : el('div', { class: 'row' }, el('button', { type: 'submit', class: 'primary', text: 'Save' }),
+          el('button', { type: 'button', class: 'danger', text: 'Delete variable', on: { click: () => app.send({ type: 'delete_variable', name: v.name }).then(() => app.select(null)) } }))));
+    const roles = app.analysis?.analysis?.roles?.[v.name];
+    if (roles) box.append(el('p', { class: 'note', text: `Role for this question: ${roles.map((r) => ROLE_WORDS[r] || r).join(', ')}` }));
+    if (app.isFacilitator && !locked) {
+      const t = s.document.treatment.includes(v.name), o = s.document.outcome.includes(v.name);
+      box.append(el('div', { class: 'row' },
+        el('button', { type: 'button', text: t ? 'Unset treatment' : 'Make the treatment', on: { click: () => app.send({ type: 'set_question', treatment: t ? [] : [v.name], outcome: s.document.outcome.filter((n) => n !== v.name) }) } }),
+        el('button', { type: 'button', text: o ? 'Unset outcome' : 'Make the outcome', on: { click: () => app.send({ type: 'set_question', outcome: o ? [] : [v.name], treatment: s.document.treatment.filter((n) => n !== v.name) }) } })));
+    }
+    return box;
+  }
+  if (sel.kind === 'proposal') {
+    const p = s.proposals.find((x) => x.id === sel.id);
+    if (p) box.append(proposalCard(app, p));
+    return box;
+  }
+  const arrow = s.arrows.find((x) => JSON.stringify([x.from, x.to]) === sel.key);
+  if (!arrow) return box;
+  const debating = s.session.stage === 'debating';
+  box.append(el('h3', { text: `Arrow ${arrow.from} → ${arrow.to}` }));
+  if (arrow.flag) box.append(el('p', { class: 'note', text: arrow.flag === 'disputed' ? 'Marked disputed by the facilitator.' : 'Marked settled by the facilitator.' }));
+  box.append(el('p', { class: 'tally', text: tallyLine(arrow.tally) }));
+  box.append(voteBox(app, { from: arrow.from, to: arrow.to }, arrow.votes, locked));
+  if (!locked) {
+    const direct = !debating || app.isFacilitator;
+    const actions = el('div', { class: 'row actions' });
+    if (debating) {
+      actions.append(
+        el('button', { type: 'button', text: 'Propose removing', on: { click: () => app.proposeWithReason('remove', arrow.from, arrow.to) } }),
+        el('button', { type: 'button', text: 'Propose reversing', on: { click: () => app.proposeWithReason('reverse', arrow.from, arrow.to) } }));
+    }
+    if (direct) {
+      actions.append(
+        el('button', { type: 'button', text: 'Reverse', on: { click: () => app.send({ type: 'reverse_arrow', from: arrow.from, to: arrow.to }).then(() => app.select({ kind: 'arrow', key: JSON.stringify([arrow.to, arrow.from]) })) } }),
+        el('button', { type: 'button', class: 'danger', text: 'Remove', on: { click: () => app.send({ type: 'delete_arrow', from: arrow.from, to: arrow.to }).then(() => app.select(null)) } }));
+    }
+    box.append(actions);
+    if (app.isFacilitator) {
+      box.append(el('div', { class: 'row actions' },
+        el('button', { type: 'button', text: 'Mark disputed', disabled: arrow.flag === 'disputed', on: { click: () => app.send({ type: 'flag_arrow', from: arrow.from, to: arrow.to, flag: 'disputed' }) } }),
+        el('button', { type: 'button', text: 'Mark settled', disabled: arrow.flag === 'settled', on: { click: () => app.send({ type: 'flag_arrow', from: arrow.from, to: arrow.to, flag: 'settled' }) } }),
+        arrow.flag ? el('button', { type: 'button', class: 'quiet', text: 'Clear mark', on: { click: () => app.send({ type: 'flag_arrow', from: arrow.from, to: arrow.to, flag: null }) } }) : null));
+    }
+  }
+  return box;
+}
+
+/** The log of every change. */
+export function renderHistory(app) {
+  const box = el('div', { class: 'panel-body' });
+  if (app.isFacilitator) {
+    box.append(el('div', { class: 'row' }, el('button', { type: 'button', text: 'Undo the last change', disabled: !app.state.can_undo || ['agreed', 'estimation'].includes(app.state.session.stage), on: { click: () => app.send({ type: 'undo' }) } })));
+  }
+  const events = app.history || app.state.recent;
+  if (!app.history) box.append(el('p', { class: 'muted', text: 'Latest changes (loading the full log)…' }));
+  box.append(el('ol', { class: 'history', reversed: true }, events.slice().reverse().map((e) => el('li', { class: e.undone ? 'undone' : '' },
+    el('span', { class: 'when', text: clock(e.at) }), ' ',
+    el('strong', { text: e.actor_name }), ' ',
+    el('span', { text: e.summary }),
+    e.undone ? el('span', { class: 'undone-tag', text: ' (undone)' }) : null))));
+  return box;
+}
+
+/** Members, who is online, and the analyst role. */
+export function renderPeople(app) {
+  const box = el('div', { class: 'panel-body' });
+  const s = app.state;
+  box.append(el('p', { class: 'join-hint', text: `Participants join at ${location.origin}/join/${s.session.join_code}` }));
+  box.append(el('ul', { class: 'people' }, s.members.map((m) => {
+    const online = app.online.has(m.id);
+    return el('li', {},
+      el('span', { class: `presence ${online ? 'presence-on' : 'presence-off'}`, title: online ? 'online' : 'offline', text: online ? '●' : '○' }),
+      el('span', { text: ` ${m.name}` }),
+      el('span', { class: 'muted', text: ` ${m.roles.join(', ')}${m.id === app.me.id ? ' (you)' : ''}` }),
+      app.isFacilitator && m.role !== 'facilitator'
+        ? el('button', { type: 'button', class: 'quiet', text: m.analyst ? 'Withdraw analyst role' : 'Make analyst', on: { click: () => app.send({ type: 'grant_role', member: m.id, role: 'analyst', granted: !m.analyst }) } })
+        : null);
+  })));
+  if (app.isFacilitator) {
+    box.append(el('h3', { text: 'Your facilitator link' }),
+      el('p', { class: 'muted', text: 'Anyone holding this link acts as facilitator. Keep it off the projector.' }),
+      el('button', { type: 'button', text: 'Copy my facilitator link', on: { click: () => app.copyFacilitatorLink() } }));
+  }
+  box.append(el('h3', { text: 'Export' }),
+    el('button', { type: 'button', text: 'Download the graph document', on: { click: () => app.downloadDocument() } }));
+  return box;
+}
