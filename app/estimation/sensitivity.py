@@ -98,7 +98,10 @@ def contour_lines(estimate: float, se: float, df: float, *, r2_max: float = 0.5,
     scale = se * math.sqrt(df)
     if levels is None:
         worst = float(adjusted_estimate(estimate, se, df, r2_max, r2_max))
-        levels = [float(v) for v in np.linspace(estimate, worst, 7)[1:]]
+        low, high = sorted((estimate, worst))
+        step = _nice_step(abs(high - low) / 6)
+        levels = [round(v, 10) for v in np.arange(math.ceil(low / step) * step, high + step / 2, step)
+                  if abs(v - estimate) > step / 4]
         if (estimate > 0) != (worst > 0) and 0.0 not in levels:
             levels.append(0.0)
     xs = np.linspace(r2_max / points, r2_max, points)
@@ -112,6 +115,13 @@ def contour_lines(estimate: float, se: float, df: float, *, r2_max: float = 0.5,
         lines.append({"level": level, "critical": level == 0.0,
                       "points": [[float(a), float(b)] for a, b in zip(xs[keep], ys[keep])]})
     return {"r2_max": r2_max, "estimate": estimate, "lines": lines}
+
+
+def _nice_step(raw: float) -> float:
+    if raw <= 0:
+        return 1.0
+    mag = 10 ** math.floor(math.log10(raw))
+    return next(m * mag for m in (1, 2, 2.5, 5, 10) if m * mag >= raw)
 
 
 def e_value(rr: float, low: float | None = None, high: float | None = None) -> dict:

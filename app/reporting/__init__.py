@@ -1,0 +1,1 @@
+"""Reporting: server-side SVG charts (and, beside them, the report builder)."""
