@@ -77,12 +77,14 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
         return
 
     conn = Connection(websocket, member.id)
+    # No await between building the state and registering the connection, so no
+    # change can slip between them.
+    w = hub.workshop(session_id)
+    conn.send(json.dumps({"type": "welcome", "member": member.to_public(),
+                          "online": sorted(set(hub.online(session_id)) | {member.id})}))
+    conn.send(_state_with_missed(hub, session_id, hello.get("revision")))
     hub.connect(session_id, conn)
     try:
-        w = hub.workshop(session_id)
-        conn.send(json.dumps({"type": "welcome", "member": member.to_public(),
-                              "online": hub.online(session_id)}))
-        conn.send(_state_with_missed(hub, session_id, hello.get("revision")))
         cached = hub.cached_analysis(session_id)
         if cached is not None:
             conn.send(json.dumps({"type": "analysis", **cached}))

@@ -1,13 +1,168 @@
-"""The analysis a workshop shows after every edit (filled in below)."""
+"""What the workshop shows after every edit: the analysis, which disputes matter, and
+which left-out arrows would change the answer.
+
+Terms (for treatment set X and outcome set Y in a DAG G)
+
+cn(X, Y)    nodes other than X on proper causal paths: de(X) in G without arrows
+            into X, minus X, intersected with an(Y) in G without arrows out of X.
+forb(X, Y)  de(cn) u X; an adjustment set may not contain these
+            (Perkovic, Textor, Kalisch & Maathuis 2018, Definition 3.3).
+valid Z     Z n forb = {} and Z d-separates X and Y in the proper back-door graph
+            (G without the first arrow of every proper causal path)
+            (van der Zander, Liskiewicz & Textor 2019, Theorem 5).
+Z0          (an(X u Y) n observed) minus (X u Y u forb). Some adjustment set exists
+            iff Z0 is valid (van der Zander et al. 2019, the constructive set
+            "Adjust(X, Y)" with the restriction to measured variables).
+
+Two facts make the checks cheap. (1) Adding an arrow only adds paths, opens
+more colliders and forbids more variables; it never blocks an open path. So a
+set that is invalid stays invalid, and hence the minimal adjustment sets change after adding an
+arrow exactly when one of them becomes invalid. (2) For d-separation given Z
+only the ancestors of X u Y u Z matter (Lauritzen, Dawid, Larsen & Leimer 1990),
+so an arrow u -> v with v outside an(X u Y u Z) cannot change whether Z is valid.
+
+Dispute combinations: up to 4096 exactly (12 two-way disputes); beyond that a
+random sample of 4096 with a fixed, stated seed.
+"""
 
 from __future__ import annotations
 
+import itertools
 import json
-from typing import Any
+import random
+import time
+from typing import Any, Iterable
 
+from ..graph.document import parse_document
 from ..graph.errors import DiagramError
 from .models import Workshop
 from .voting import disputed_items
+
+__all__ = ["FastDag", "analysis_key", "analyse_workshop", "dispute_report", "absent_arrow_report",
+           "EXACT_LIMIT", "SAMPLE_SEED"]
+
+EXACT_LIMIT = 4096
+SAMPLE_SEED = 20240611
+OTHER_STRATEGY_BUDGET_S = 1.5
+ABSENT_LIST_CAP = 200
+
+
+class FastDag:
+    """Adjacency sets and the few graph queries the dispute checks need."""
+
+    __slots__ = ("nodes", "parents", "children")
+
+    def __init__(self, nodes: Iterable[str], edges: Iterable[tuple[str, str]]):
+        self.nodes = list(nodes)
+        self.parents: dict[str, set[str]] = {n: set() for n in self.nodes}
+        self.children: dict[str, set[str]] = {n: set() for n in self.nodes}
+        for a, b in edges:
+            self.parents[b].add(a)
+            self.children[a].add(b)
+
+    def find_cycle(self) -> list[str] | None:
+        colour = {n: 0 for n in self.nodes}
+        for root in self.nodes:
+            if colour[root]:
+                continue
+            stack = [(root, iter(sorted(self.children[root])))]
+            path = [root]
+            colour[root] = 1
+            while stack:
+                node, it = stack[-1]
+                nxt = next(it, None)
+                if nxt is None:
+                    colour[node] = 2
+                    stack.pop()
+                    path.pop()
+                elif colour[nxt] == 1:
+                    return path[path.index(nxt):]
+                elif colour[nxt] == 0:
+                    colour[nxt] = 1
+                    stack.append((nxt, iter(sorted(self.children[nxt]))))
+                    path.append(nxt)
+        return None
+
+    def _closure(self, start: Iterable[str], step: dict[str, set[str]], avoid: set[str] = frozenset()) -> set[str]:
+        seen = set(start)
+        todo = list(seen)
+        while todo:
+            n = todo.pop()
+            for m in step[n]:
+                if m not in seen and m not in avoid:
+                    seen.add(m)
+                    todo.append(m)
+        return seen
+
+    def ancestors(self, nodes: Iterable[str]) -> set[str]:
+        return self._closure(nodes, self.parents)
+
+    def descendants(self, nodes: Iterable[str]) -> set[str]:
+        return self._closure(nodes, self.children)
+
+    def causal_nodes(self, xs: set[str], ys: set[str]) -> set[str]:
+        """cn(X, Y): nodes other than X on proper causal paths from X to Y."""
+        start = {c for x in xs for c in self.children[x] if c not in xs}
+        down = self._closure(start, self.children, avoid=xs)
+        up = self._closure(ys - xs, self.parents, avoid=xs)
+        return down & up
+
+    def d_separated(self, xs: set[str], ys: set[str], zs: set[str],
+                    removed: set[tuple[str, str]] = frozenset()) -> bool:
+        """Is X d-separated from Y given Z, ignoring the arrows in ``removed``?
+
+        The reachability ("Bayes-ball") search of Koller & Friedman (2009),
+        Algorithm 3.1, over (node, direction) states.
+        """
+        an_z = self.ancestors(zs)
+        visited: set[tuple[str, bool]] = set()
+        # direction True: arrived from a child (moving up); False: from a parent (moving down)
+        todo = [(x, True) for x in xs]
+        while todo:
+            node, up = todo.pop()
+            if (node, up) in visited:
+                continue
+            visited.add((node, up))
+            if node in ys and node not in zs:
+                return False
+            if up:
+                if node in zs:
+                    continue
+                for p in self.parents[node]:
+                    if (p, node) not in removed:
+                        todo.append((p, True))
+                for c in self.children[node]:
+                    if (node, c) not in removed:
+                        todo.append((c, False))
+            else:
+                if node not in zs:
+                    for c in self.children[node]:
+                        if (node, c) not in removed:
+                            todo.append((c, False))
+                if node in an_z:
+                    for p in self.parents[node]:
+                        if (p, node) not in removed:
+                            todo.append((p, True))
+        return True
+
+
+class _Question:
+    """Per-graph pieces of the adjustment criterion for one question."""
+
+    def __init__(self, dag: FastDag, xs: set[str], ys: set[str], observed: set[str]):
+        self.dag, self.xs, self.ys = dag, xs, ys
+        self.cn = dag.causal_nodes(xs, ys)
+        self.forb = dag.descendants(self.cn) | xs
+        self.removed = {(x, c) for x in xs for c in dag.children[x] if c in self.cn}
+        self.observed = observed
+
+    def is_valid(self, zs: set[str]) -> bool:
+        if zs & self.forb or not zs <= self.observed:
+            return False
+        return self.dag.d_separated(self.xs, self.ys, zs, self.removed)
+
+    def canonical(self) -> set[str]:
+        return (self.dag.ancestors(self.xs | self.ys) & self.observed) - self.xs - self.ys - self.forb
 
 
 def analysis_key(w: Workshop) -> str:
@@ -19,19 +174,279 @@ def analysis_key(w: Workshop) -> str:
     ])
 
 
+def _identify(diagram) -> dict:
+    """The engine's identification answer (the lighter call when the engine has one)."""
+    from ..graph import identification
+
+    light = getattr(identification, "identify_effect", None)
+    if light is not None:
+        return light(diagram)
+    return identification.analyze(diagram)
+
+
+def _summary_of(result: dict) -> tuple[bool, str | None, list[list[str]]]:
+    return (bool(result.get("identifiable")), result.get("strategy"),
+            [list(s) for s in result.get("minimal_adjustment_sets", [])])
+
+
+def _option_edges(option) -> list[tuple[str, str]]:
+    return [] if option is None else [(option[0], option[1])]
+
+
+def _describe_change(base: tuple, other: tuple) -> str:
+    b_id, b_strategy, b_sets = base
+    o_id, o_strategy, o_sets = other
+    if b_id != o_id:
+        return "the effect becomes identified" if o_id else "the effect is no longer identified"
+    if b_strategy != o_strategy:
+        return f"identified by {o_strategy} instead of {b_strategy}"
+    if b_sets != o_sets:
+        shown = "; ".join("{" + ", ".join(s) + "}" for s in o_sets[:3]) or "none"
+        return f"the minimal adjustment sets change to {shown}"
+    return "same answer"
+
+
+def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
+                   *, exact_limit: int = EXACT_LIMIT, seed: int = SAMPLE_SEED) -> dict[str, Any]:
+    """Which disputed arrows change the answer, and what holds across every combination."""
+    xs, ys = set(diagram.treatment), set(diagram.outcome)
+    observed = set(diagram.observed)
+    pairs = [frozenset(i["pair"]) for i in items]
+    fixed = [(a.source, a.target) for a in diagram.arrows
+             if frozenset((a.source, a.target)) not in pairs]
+    names = [v.name for v in diagram.variables]
+    base = _summary_of(base_result)
+    doc = diagram.to_document()
+
+    def build(choice: list) -> tuple[list[tuple[str, str]], Any]:
+        edges = list(fixed)
+        for option in choice:
+            edges.extend(_option_edges(option))
+        return edges, None
+
+    engine_cache: dict[frozenset, tuple] = {}
+
+    def engine(edges: list[tuple[str, str]]):
+        key = frozenset(edges)
+        if key not in engine_cache:
+            d = dict(doc, arrows=[{"from": a, "to": b} for a, b in edges])
+            try:
+                engine_cache[key] = ("ok", _summary_of(_identify(parse_document(d))))
+            except DiagramError as exc:
+                engine_cache[key] = ("error", getattr(exc, "cycle", None) or exc.message)
+        return engine_cache[key]
+
+    # One dispute at a time, the others as drawn.
+    current = [i["options"][i.get("current", 0)] for i in items]
+    report_items = []
+    candidates: list[frozenset] = [frozenset(s) for s in base[2]]
+    if base_result.get("optimal_adjustment_set"):
+        candidates.append(frozenset(base_result["optimal_adjustment_set"]))
+    for index, item in enumerate(items):
+        effects = []
+        decisive = False
+        for o_index, option in enumerate(item["options"]):
+            choice = list(current)
+            choice[index] = option
+            is_current = o_index == item.get("current", 0)
+            if is_current:
+                effects.append({"option": option, "current": True, "text": "the answer shown now",
+                                "identifiable": base[0], "cycle": None})
+                continue
+            status, value = engine(build(choice)[0])
+            if status == "error":
+                cycle = value if isinstance(value, list) else None
+                effects.append({"option": option, "current": False, "identifiable": None,
+                                "cycle": cycle,
+                                "text": "impossible: it makes a cycle " + " → ".join((cycle or []) + (cycle or [])[:1])
+                                if cycle else f"not a valid diagram: {value}"})
+                decisive = True
+                continue
+            candidates.extend(frozenset(s) for s in value[2])
+            change = _describe_change(base, value)
+            if change != "same answer":
+                decisive = True
+            effects.append({"option": option, "current": False, "identifiable": value[0],
+                            "cycle": None, "text": change, "minimal_adjustment_sets": value[2]})
+        report_items.append({"pair": item["pair"], "options": item["options"], "why": item["why"],
+                             "decisive": decisive, "effects": effects})
+
+    # Every combination (or a stated sample).
+    sizes = [len(i["options"]) for i in items]
+    total = 1
+    for s in sizes:
+        total *= s
+    if total <= exact_limit:
+        combos: Iterable[tuple[int, ...]] = itertools.product(*(range(s) for s in sizes))
+        sampled = False
+        checked_total = total
+    else:
+        rng = random.Random(seed)
+        picked = {tuple(rng.randrange(s) for s in sizes) for _ in range(exact_limit * 2)}
+        combos = sorted(picked)[:exact_limit]
+        sampled = True
+        checked_total = len(combos)
+
+    unique_candidates = list(dict.fromkeys(candidates))
+    survivors = {c: True for c in unique_candidates}
+    not_identified: list[list] = []
+    not_identified_count = 0
+    cycle_count = 0
+    cycle_examples: list[list[str]] = []
+    other_unchecked = 0
+    acyclic_graphs: list[tuple[FastDag, _Question]] = []
+    started = time.perf_counter()
+    engine_time = 0.0
+    for combo in combos:
+        choice = [items[i]["options"][k] for i, k in enumerate(combo)]
+        edges, _ = build(choice)
+        dag = FastDag(names, edges)
+        cycle = dag.find_cycle()
+        if cycle:
+            cycle_count += 1
+            if len(cycle_examples) < 3 and cycle not in cycle_examples:
+                cycle_examples.append(cycle)
+            continue
+        q = _Question(dag, xs, ys, observed)
+        acyclic_graphs.append((dag, q))
+        for c in unique_candidates:
+            if survivors[c] and not q.is_valid(set(c)):
+                survivors[c] = False
+        if q.is_valid(q.canonical()):
+            continue
+        # No adjustment set here; ask the engine about the other strategies, within a budget.
+        identified = None
+        if engine_time < OTHER_STRATEGY_BUDGET_S:
+            t0 = time.perf_counter()
+            status, value = engine(edges)
+            engine_time += time.perf_counter() - t0
+            if status == "ok":
+                identified = value[0]
+        else:
+            other_unchecked += 1
+        if identified:
+            continue
+        not_identified_count += 1
+        if len(not_identified) < 50:
+            not_identified.append(choice)
+
+    robust = [sorted(c) for c in unique_candidates if survivors[c]]
+    note_extra = ""
+    if not robust and acyclic_graphs:
+        # Try the largest set that avoids every combination's forbidden variables.
+        common = set(observed) - xs - ys
+        for _, q in acyclic_graphs:
+            common -= q.forb
+        ancestors = set()
+        for dag, _ in acyclic_graphs:
+            ancestors |= dag.ancestors(xs | ys)
+        common &= ancestors
+        if all(q.is_valid(common) for _, q in acyclic_graphs):
+            robust = [sorted(common)]
+            note_extra = " The set shown is the largest one allowed in every combination; smaller ones may exist."
+    robust.sort(key=lambda s: (len(s), s))
+    count = len(items)
+    if sampled:
+        note = (f"{count} disputed arrow(s) give {total} combinations; a random sample of "
+                f"{checked_total} was checked (seed {seed}).")
+    else:
+        note = f"{count} disputed arrow(s) give {total} combination(s); all were checked."
+    return {
+        "count": count,
+        "combinations_total": total,
+        "combinations_checked": checked_total,
+        "sampled": sampled,
+        "seed": seed if sampled else None,
+        "note": note,
+        "items": report_items,
+        "robust_sets": robust,
+        "robust_note": (f"Checked {len(unique_candidates)} candidate set(s): the minimal and optimal sets "
+                        "of the diagram as drawn and of each single change." + note_extra),
+        "not_identified": not_identified,
+        "not_identified_count": not_identified_count,
+        "cycle_count": cycle_count,
+        "cycle_examples": cycle_examples,
+        "other_strategies_unchecked": other_unchecked,
+        "elapsed_ms": round((time.perf_counter() - started) * 1000, 1),
+    }
+
+
+def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
+    """Arrows not drawn whose addition would change the adjustment answer."""
+    xs, ys = set(diagram.treatment), set(diagram.outcome)
+    observed = set(diagram.observed)
+    names = [v.name for v in diagram.variables]
+    edges = [(a.source, a.target) for a in diagram.arrows]
+    sets = [set(s) for s in base_result.get("minimal_adjustment_sets", [])]
+    if base_result.get("strategy") != "adjustment" or not sets:
+        return {"arrows": [], "checked": 0,
+                "note": "The effect is not identified by adjustment, and adding arrows can never make an "
+                        "adjustment set work, so no left-out arrow is listed."}
+    dag = FastDag(names, edges)
+    relevant = dag.ancestors(xs | ys | set().union(*sets))
+    linked = {frozenset(e) for e in edges}
+    found = []
+    checked = 0
+    for v in sorted(relevant):
+        descendants_of_v = dag.descendants([v])
+        for u in names:
+            if u == v or frozenset((u, v)) in linked or u in descendants_of_v:
+                continue  # drawn already, or the new arrow would close a cycle
+            checked += 1
+            dag.parents[v].add(u)
+            dag.children[u].add(v)
+            q = _Question(dag, xs, ys, observed)
+            broken = [sorted(s) for s in sets if not q.is_valid(s)]
+            if broken:
+                if len(broken) < len(sets):
+                    text = ("breaks " + ", ".join("{" + ", ".join(s) + "}" for s in broken)
+                            + "; other minimal sets still work")
+                    severity = 1
+                elif q.is_valid(q.canonical()):
+                    text = "every current minimal set stops working; a different set would be needed"
+                    severity = 2
+                else:
+                    text = "no adjustment set would remain: the effect would not be identified by adjustment"
+                    severity = 3
+                found.append({"from": u, "to": v, "text": text, "severity": severity, "breaks": broken})
+            dag.parents[v].discard(u)
+            dag.children[u].discard(v)
+    found.sort(key=lambda f: (-f["severity"], f["from"], f["to"]))
+    capped = len(found) > ABSENT_LIST_CAP
+    note = (f"Checked {checked} arrow(s) that could be added without a cycle; {len(found)} would change "
+            "the minimal adjustment sets. Confirm each on purpose: leaving an arrow out is an assumption.")
+    if base_result.get("more_sets_exist"):
+        note += " Only the listed minimal sets were checked."
+    return {"arrows": found[:ABSENT_LIST_CAP], "capped": capped, "total": len(found),
+            "checked": checked, "note": note}
+
+
 def analyse_workshop(w: Workshop) -> dict[str, Any]:
+    """Everything the side panel shows for the workshop's current diagram."""
     from ..graph.identification import analyze
 
+    empty = {"analysis": None, "disputes": None, "absent": None}
     if not w.variables:
-        return {"analysis": None, "problem": "add variables and arrows to see what the diagram implies",
-                "disputes": None, "absent": None}
+        return {**empty, "problem": "Add variables and arrows to see what the diagram implies."}
     if not w.treatment or not w.outcome:
-        return {"analysis": None,
-                "problem": "choose a treatment and an outcome to see what the diagram implies",
-                "disputes": None, "absent": None}
+        return {**empty, "problem": "Choose a treatment and an outcome (select a variable; the "
+                                    "facilitator sets the question) to see what the diagram implies."}
+    timings = {}
     try:
         diagram = w.diagram()
+        t0 = time.perf_counter()
         result = analyze(diagram)
+        timings["analysis_ms"] = round((time.perf_counter() - t0) * 1000, 1)
     except DiagramError as exc:
-        return {"analysis": None, "problem": exc.message, "disputes": None, "absent": None}
-    return {"analysis": result, "problem": None, "disputes": None, "absent": None}
+        return {**empty, "problem": exc.message}
+    items = disputed_items(w)
+    disputes = None
+    if items:
+        t0 = time.perf_counter()
+        disputes = dispute_report(diagram, items, result)
+        timings["disputes_ms"] = round((time.perf_counter() - t0) * 1000, 1)
+    t0 = time.perf_counter()
+    absent = absent_arrow_report(diagram, result)
+    timings["absent_ms"] = round((time.perf_counter() - t0) * 1000, 1)
+    return {"analysis": result, "problem": None, "disputes": disputes, "absent": absent,
+            "timings": timings}

@@ -1,0 +1,84 @@
+"""Shared fixtures: every test gets its own SQLite file under tmp_path."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from fastapi.testclient import TestClient
+
+from app.main import create_app
+from app.settings import Settings
+
+ROOT = Path(__file__).resolve().parent.parent
+TOKEN_HEADER = "X-Arrowmoot-Token"
+
+
+def make_app(tmp_path: Path, *, demo: bool = False):
+    settings = Settings(db_path=tmp_path / "arrowmoot.sqlite3", data_dir=tmp_path / "data",
+                        demo_session=demo)
+    return create_app(settings=settings)
+
+
+@pytest.fixture
+def app(tmp_path):
+    return make_app(tmp_path)
+
+
+@pytest.fixture
+def client(app):
+    with TestClient(app) as c:
+        yield c
+
+
+class Room:
+    """A session with a facilitator and helpers to act as its members."""
+
+    def __init__(self, client: TestClient, created: dict):
+        self.client = client
+        self.id = created["session_id"]
+        self.join_code = created["join_code"]
+        self.facilitator = created["token"]
+
+    def join(self, name: str) -> str:
+        r = self.client.post("/api/join", json={"code": self.join_code, "name": name})
+        assert r.status_code == 201, r.text
+        return r.json()["token"]
+
+    def send(self, token: str, command: dict):
+        return self.client.post(f"/api/sessions/{self.id}/commands", json=command,
+                                headers={TOKEN_HEADER: token})
+
+    def ok(self, token: str, command: dict) -> dict:
+        r = self.send(token, command)
+        assert r.status_code == 200, r.text
+        return r.json()
+
+    def state(self, token: str | None = None) -> dict:
+        r = self.client.get(f"/api/sessions/{self.id}", headers={TOKEN_HEADER: token or self.facilitator})
+        assert r.status_code == 200, r.text
+        return r.json()["state"]
+
+    def analysis(self, token: str | None = None) -> dict:
+        r = self.client.get(f"/api/sessions/{self.id}/analysis",
+                            headers={TOKEN_HEADER: token or self.facilitator})
+        assert r.status_code == 200, r.text
+        return r.json()
+
+
+def open_room(client: TestClient, **body) -> Room:
+    body.setdefault("title", "Cycle-to-work workshop")
+    r = client.post("/api/sessions", json=body)
+    assert r.status_code == 201, r.text
+    return Room(client, r.json())
+
+
+@pytest.fixture
+def room(client) -> Room:
+    return open_room(client, treatment="scheme", outcome="sick_days")
+
+
+@pytest.fixture
+def demo_document() -> dict:
+    return json.loads((ROOT / "sample_data" / "cycle_to_work.json").read_text())

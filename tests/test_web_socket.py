@@ -1,0 +1,99 @@
+"""The WebSocket: hello with a key, live state to everyone, acks, errors, resync."""
+
+from __future__ import annotations
+
+import threading
+
+from conftest import open_room
+
+
+def hello(ws, token, revision=None):
+    ws.send_json({"type": "hello", "token": token, "revision": revision})
+    welcome = ws.receive_json()
+    assert welcome["type"] == "welcome", welcome
+    state = ws.receive_json()
+    assert state["type"] == "state"
+    return welcome, state
+
+
+def receive_until(ws, kind, predicate=lambda m: True, limit=20):
+    for _ in range(limit):
+        message = ws.receive_json()
+        if message["type"] == kind and predicate(message):
+            return message
+    raise AssertionError(f"no {kind} message")
+
+
+def test_edit_reaches_every_client(room):
+    ann = room.join("Ann")
+    client = room.client
+    with client.websocket_connect(f"/ws/sessions/{room.id}") as fac_ws, \
+            client.websocket_connect(f"/ws/sessions/{room.id}") as ann_ws:
+        _, start = hello(fac_ws, room.facilitator)
+        hello(ann_ws, ann)
+        ann_ws.send_json({"type": "command", "id": 7,
+                          "command": {"type": "add_arrow", "from": "scheme", "to": "sick_days"}})
+        new_rev = start["revision"] + 1
+        for ws in (fac_ws, ann_ws):
+            state = receive_until(ws, "state", lambda m: m["revision"] == new_rev)
+            assert {"from": "scheme", "to": "sick_days"} in state["state"]["document"]["arrows"]
+        ack = receive_until(ann_ws, "ack")
+        assert ack["id"] == 7 and ack["revision"] == new_rev
+        analysis = receive_until(fac_ws, "analysis", lambda m: m["revision"] == new_rev)
+        assert analysis["analysis"]["identifiable"] is True
+
+
+def test_refused_command_gets_error_with_its_id(room):
+    with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+        hello(ws, room.facilitator)
+        ws.send_json({"type": "command", "id": "a1",
+                      "command": {"type": "add_arrow", "from": "scheme", "to": "ghost"}})
+        error = receive_until(ws, "error")
+        assert error["id"] == "a1" and error["status"] == 404
+        assert error["error"] == "there is no variable 'ghost'"
+        ws.send_text("not json")
+        assert receive_until(ws, "error")["code"] == "bad_json"
+
+
+def test_bad_key_is_refused_and_closed(room):
+    with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+        ws.send_json({"type": "hello", "token": "mnobody.xyz"})
+        message = ws.receive_json()
+        assert message["type"] == "error" and message["code"] == "bad_token"
+
+
+def test_reconnect_resyncs_from_last_revision(room):
+    with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+        _, state = hello(ws, room.facilitator)
+        seen = state["revision"]
+    room.ok(room.facilitator, {"type": "add_variable", "name": "age"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "age", "to": "scheme"})
+    with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+        _, state = hello(ws, room.facilitator, revision=seen)
+        assert state["revision"] == seen + 2
+        assert [e["kind"] for e in state["missed"]] == ["add_variable", "add_arrow"]
+        ws.send_json({"type": "resync", "revision": seen + 1})
+        again = receive_until(ws, "state")
+        assert [e["kind"] for e in again["missed"]] == ["add_arrow"]
+
+
+def test_simultaneous_edits_all_land(room):
+    tokens = [room.join(f"P{i}") for i in range(4)]
+    for i in range(4):
+        room.ok(room.facilitator, {"type": "add_variable", "name": f"v{i}"})
+    errors = []
+
+    def worker(i, token):
+        for j in range(5):
+            r = room.send(token, {"type": "add_variable", "name": f"w{i}_{j}"})
+            if r.status_code != 200:
+                errors.append(r.text)
+
+    threads = [threading.Thread(target=worker, args=(i, t)) for i, t in enumerate(tokens)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert errors == []
+    names = {v["name"] for v in room.state()["document"]["variables"]}
+    assert {f"w{i}_{j}" for i in range(4) for j in range(5)} <= names
