@@ -1,0 +1,170 @@
+"""Dispute and absent-arrow analysis, checked against networkx d-separation and textbook cases."""
+
+from __future__ import annotations
+
+import itertools
+
+import networkx as nx
+import pytest
+from hypothesis import given, settings, strategies as st
+
+from app.graph.document import parse_document
+from app.graph.identification import analyze
+from app.workshop.commands import apply_command, new_workshop
+from app.workshop.disputes import FastDag, absent_arrow_report, analyse_workshop, dispute_report
+
+
+@st.composite
+def dags(draw, max_nodes=8):
+    n = draw(st.integers(min_value=2, max_value=max_nodes))
+    names = [f"v{i}" for i in range(n)]
+    pairs = [(names[i], names[j]) for i in range(n) for j in range(i + 1, n)]
+    chosen = draw(st.lists(st.sampled_from(pairs), unique=True, max_size=len(pairs))) if pairs else []
+    return names, chosen
+
+
+@settings(max_examples=150, deadline=None)
+@given(data=st.data(), graph=dags())
+def test_d_separation_matches_networkx(data, graph):
+    """Reference: networkx.is_d_separator (networkx 3.x)."""
+    names, edges = graph
+    x = data.draw(st.sampled_from(names))
+    y = data.draw(st.sampled_from([n for n in names if n != x]))
+    rest = [n for n in names if n not in (x, y)]
+    z = set(data.draw(st.lists(st.sampled_from(rest), unique=True))) if rest else set()
+    g = nx.DiGraph()
+    g.add_nodes_from(names)
+    g.add_edges_from(edges)
+    assert FastDag(names, edges).d_separated({x}, {y}, z) == nx.is_d_separator(g, {x}, {y}, z)
+
+
+def _nx_valid_adjustment(names, edges, x, y, z, latent=()):
+    """The adjustment criterion written out with networkx calls only
+    (Shpitser, VanderWeele & Robins 2010; Perkovic et al. 2018, Definition 3.3)."""
+    g = nx.DiGraph()
+    g.add_nodes_from(names)
+    g.add_edges_from(edges)
+    if set(z) & set(latent):
+        return False
+    no_in = g.copy()
+    no_in.remove_edges_from(list(g.in_edges(x)))
+    no_out = g.copy()
+    no_out.remove_edges_from(list(g.out_edges(x)))
+    cn = (nx.descendants(no_in, x)) & (nx.ancestors(no_out, y) | {y})
+    forb = set().union(*(nx.descendants(g, c) | {c} for c in cn)) | {x} if cn else {x}
+    if set(z) & forb:
+        return False
+    pbd = g.copy()
+    pbd.remove_edges_from([(x, c) for c in g.successors(x) if c in cn])
+    return nx.is_d_separator(pbd, {x}, {y}, set(z))
+
+
+def _doc(names, edges, x="x", y="y", latent=()):
+    return {"variables": [{"name": n, "latent": n in latent} for n in names],
+            "arrows": [{"from": a, "to": b} for a, b in edges], "treatment": [x], "outcome": [y]}
+
+
+def _workshop(doc):
+    w, _ = new_workshop(session_id="s", title="t", join_code="ABCDEF", facilitator_id="f",
+                        facilitator_name="F", document=doc, now=0.0)
+    return w, w.members["f"]
+
+
+def test_confounder_arrow_is_decisive_and_robust_set_found():
+    """The confounding triangle z -> x -> y, z -> y (Pearl 2009, Sec. 3.3.1, back-door criterion).
+
+    Whether z -> y exists decides whether {} suffices; {z} is valid either way.
+    """
+    names, edges = ["x", "y", "z", "w"], [("z", "x"), ("x", "y"), ("z", "y"), ("w", "y")]
+    w, fac = _workshop(_doc(names, edges))
+    apply_command(w, fac, {"type": "flag_arrow", "from": "z", "to": "y", "flag": "disputed"}, now=1)
+    apply_command(w, fac, {"type": "flag_arrow", "from": "w", "to": "y", "flag": "disputed"}, now=1)
+    report = analyse_workshop(w)["disputes"]
+    by_pair = {tuple(i["pair"]): i for i in report["items"]}
+    assert by_pair[("y", "z")]["decisive"] is True
+    assert by_pair[("w", "y")]["decisive"] is False
+    assert report["combinations_total"] == 4 and not report["sampled"]
+    assert ["z"] in report["robust_sets"]
+    assert [] not in report["robust_sets"]
+    # every robust set is valid in every combination, by networkx
+    for keep_zy, keep_wy in itertools.product([True, False], repeat=2):
+        e = [("z", "x"), ("x", "y")] + ([("z", "y")] if keep_zy else []) + ([("w", "y")] if keep_wy else [])
+        for s in report["robust_sets"]:
+            assert _nx_valid_adjustment(names, e, "x", "y", s)
+    assert report["not_identified_count"] == 0
+
+
+def test_combination_with_a_cycle_is_reported_not_crashed():
+    names, edges = ["x", "y", "z"], [("z", "x"), ("x", "y")]
+    w, fac = _workshop(_doc(names, edges))
+    apply_command(w, fac, {"type": "set_stage", "stage": "debating"}, now=1)
+    apply_command(w, fac, {"type": "propose", "kind": "add", "from": "y", "to": "z"}, now=1)
+    report = analyse_workshop(w)["disputes"]
+    assert report["cycle_count"] == 1
+    assert sorted(report["cycle_examples"][0]) == ["x", "y", "z"]
+    item = report["items"][0]
+    assert item["decisive"] is True
+    assert "cycle" in item["effects"][1]["text"]
+
+
+def test_unidentified_combinations_are_listed():
+    """A latent confounder u of x and y: with u -> y drawn there is no adjustment set
+    (and no front-door or instrument in this small graph)."""
+    names, edges = ["x", "y", "u"], [("u", "x"), ("x", "y")]
+    w, fac = _workshop(_doc(names, edges, latent=("u",)))
+    apply_command(w, fac, {"type": "set_stage", "stage": "debating"}, now=1)
+    apply_command(w, fac, {"type": "propose", "kind": "add", "from": "u", "to": "y"}, now=1)
+    report = analyse_workshop(w)["disputes"]
+    assert report["not_identified_count"] == 1
+    assert report["not_identified"] == [[["u", "y"]]]
+    assert report["robust_sets"] == []
+
+
+def test_more_than_twelve_disputes_are_sampled_with_a_stated_seed():
+    names = ["x", "y"] + [f"c{i}" for i in range(13)]
+    edges = [("x", "y")] + [(f"c{i}", "y") for i in range(13)]
+    diagram = parse_document(_doc(names, edges))
+    items = [{"pair": sorted([f"c{i}", "y"]), "options": [[f"c{i}", "y"], None], "why": [], "current": 0}
+             for i in range(13)]
+    report = dispute_report(diagram, items, analyze(diagram))
+    assert report["combinations_total"] == 2 ** 13
+    assert report["sampled"] is True
+    assert report["combinations_checked"] == 4096
+    assert str(report["seed"]) in report["note"]
+    assert all(not i["decisive"] for i in report["items"])
+
+
+@settings(max_examples=40, deadline=None)
+@given(graph=dags(max_nodes=7))
+def test_absent_arrows_match_networkx(graph):
+    """Every arrow the report lists breaks a minimal set, and every unlisted one breaks none
+    (each addition checked with the networkx adjustment criterion above)."""
+    names, edges = graph
+    x, y = names[0], names[-1]
+    doc = _doc(names, edges, x=x, y=y)
+    diagram = parse_document(doc)
+    base = analyze(diagram)
+    report = absent_arrow_report(diagram, base)
+    if base["strategy"] != "adjustment" or not base["minimal_adjustment_sets"]:
+        assert report["arrows"] == []
+        return
+    listed = {(a["from"], a["to"]) for a in report["arrows"]}
+    g = nx.DiGraph(edges)
+    g.add_nodes_from(names)
+    linked = {frozenset(e) for e in edges}
+    for u, v in itertools.permutations(names, 2):
+        if frozenset((u, v)) in linked or nx.has_path(g, v, u):
+            continue
+        new_edges = edges + [(u, v)]
+        breaks = any(not _nx_valid_adjustment(names, new_edges, x, y, s)
+                     for s in base["minimal_adjustment_sets"])
+        assert ((u, v) in listed) == breaks, (u, v)
+
+
+def test_demo_diagram_disputes_run_on_the_engine_answer(demo_document):
+    w, fac = _workshop(demo_document)
+    apply_command(w, fac, {"type": "vote", "from": "age", "to": "scheme", "choice": "disagree"}, now=1)
+    result = analyse_workshop(w)
+    assert result["disputes"]["count"] == 1
+    assert result["disputes"]["items"][0]["pair"] == ["age", "scheme"]
+    assert result["absent"]["checked"] > 0
