@@ -110,7 +110,8 @@ def test_sensitivity_for_demo_has_benchmarks_and_contour(diagram, frame):
 def test_disputed_arrow_changes_the_answer(diagram, frame):
     out = service.disputed_estimates(diagram, frame, None, [{"from": "fitness", "to": "scheme"}])
     with_arrow, without = out["rows"]
-    assert with_arrow["arrows"][0]["present"] and not without["arrows"][0]["present"]
+    assert with_arrow["choice"][0]["arrow"] == ["fitness", "scheme"] and without["choice"][0]["arrow"] is None
+    assert with_arrow["as_drawn"] and not without["as_drawn"]
     assert "fitness" in with_arrow["adjustment_set"] and "fitness" not in without["adjustment_set"]
     assert _covers(with_arrow, TRUTH) and not _covers(without, TRUTH)
 

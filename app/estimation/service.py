@@ -218,45 +218,74 @@ def _toggle(diagram: Diagram, arrow: Arrow, present: bool) -> Diagram:
     return replace(diagram, arrows=tuple(arrows))
 
 
+def _option_text(pair: list[str], option) -> str:
+    if option is None:
+        return f"no {pair[0]}\u2013{pair[1]} arrow"
+    return f"{option[0]}\u2192{option[1]}"
+
+
+def _normalise_disputes(diagram: Diagram, disputed: list) -> list[dict]:
+    """Accept arrows ({"from","to"} or pairs: present or absent) or items with options."""
+    items = []
+    for raw in disputed:
+        if isinstance(raw, dict) and "options" in raw:
+            pair = [str(v) for v in raw.get("pair") or []]
+            options = [None if o is None else [str(o[0]), str(o[1])] for o in raw["options"]]
+        else:
+            source, target = (raw.get("from"), raw.get("to")) if isinstance(raw, dict) else raw
+            pair, options = [str(source), str(target)], [[str(source), str(target)], None]
+        for name in pair + [n for o in options if o for n in o]:
+            if not diagram.has_variable(name):
+                raise BadMapping(f"disputed arrow names {name!r}, which is not a variable of the diagram", item=name)
+        if len(options) < 2:
+            continue
+        items.append({"pair": pair, "options": options})
+    return items
+
+
 def disputed_estimates(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, disputed: list,
                        *, method: str | None = None) -> dict:
-    """The default estimate under each combination of the disputed arrows (present or absent)."""
-    arrows = []
-    for item in disputed:
-        if isinstance(item, dict):
-            source, target = item.get("from"), item.get("to")
-        else:
-            source, target = item
-        if not (diagram.has_variable(str(source)) and diagram.has_variable(str(target))):
-            raise BadMapping(f"disputed arrow {source} -> {target} names a variable not in the diagram")
-        arrows.append(Arrow(str(source), str(target)))
-    arrows = list(dict.fromkeys(arrows))
-    if len(arrows) > MAX_DISPUTES:
-        raise BadMethod(f"{len(arrows)} disputed arrows give {2 ** len(arrows)} diagrams; the limit is {MAX_DISPUTES} arrows")
+    """The default estimate under each combination of the disputed arrows.
+
+    ``disputed`` lists arrows (each either present or absent) or items
+    ``{"pair": [a, b], "options": [None | [from, to], ...]}`` (each option one
+    way to settle the dispute between a and b).
+    """
+    items = _normalise_disputes(diagram, disputed)
+    if len(items) > MAX_DISPUTES:
+        raise BadMethod(f"{len(items)} disputed arrows are too many to combine; the limit is {MAX_DISPUTES}")
     mapping = resolve_mapping(diagram, frame, mapping)
-    rows = []
     from app.graph.document import find_cycle, parse_document
 
-    for pattern in product((True, False), repeat=len(arrows)):
-        variant = diagram
-        for arrow, present in zip(arrows, pattern):
-            variant = _toggle(variant, arrow, present)
-        label = ", ".join(f"{'with' if p else 'without'} {a.source}\u2192{a.target}" for a, p in zip(arrows, pattern)) or "as agreed"
-        row = {"label": label, "arrows": [{"from": a.source, "to": a.target, "present": p} for a, p in zip(arrows, pattern)],
-               "estimate": None, "ci": None, "std_error": None, "strategy": None, "adjustment_set": None,
-               "method": None, "problem": None}
+    rows = []
+    for choice in product(*[item["options"] for item in items]):
+        arrows = list(diagram.arrows)
+        for item, option in zip(items, choice):
+            a, b = item["pair"]
+            arrows = [x for x in arrows if {x.source, x.target} != {a, b}]
+            if option is not None:
+                arrows.append(Arrow(option[0], option[1]))
+        variant = replace(diagram, arrows=tuple(arrows))
+        label = ", ".join(_option_text(item["pair"], option) for item, option in zip(items, choice)) or "as agreed"
+        as_drawn = all(
+            (option is None and not any({x.source, x.target} == set(item["pair"]) for x in diagram.arrows))
+            or (option is not None and diagram.has_arrow(*option))
+            for item, option in zip(items, choice)
+        )
+        row = {"label": label, "choice": [{"pair": item["pair"], "arrow": option} for item, option in zip(items, choice)],
+               "as_drawn": as_drawn, "estimate": None, "ci": None, "std_error": None, "strategy": None,
+               "adjustment_set": None, "instrument": None, "method": None, "problem": None}
         try:
-            cycle = find_cycle(variant.names, ((a.source, a.target) for a in variant.arrows))
+            cycle = find_cycle(variant.names, ((x.source, x.target) for x in variant.arrows))
             if cycle:
                 raise DataError("this combination makes a cycle: " + " -> ".join(cycle + cycle[:1]))
             variant = parse_document(variant.to_document())
             res = estimate(variant, frame, mapping, method=method, checks=False)
-            row.update({k: res[k] for k in ("estimate", "ci", "std_error", "strategy", "adjustment_set", "method")})
-            row["instrument"] = res["instrument"]
+            row.update({k: res[k] for k in ("estimate", "ci", "std_error", "strategy", "adjustment_set", "instrument", "method")})
         except (DataError, DiagramError) as exc:
             row["problem"] = exc.message
         rows.append(row)
-    return {"disputed": [{"from": a.source, "to": a.target} for a in arrows], "rows": rows}
+    return {"disputed": items, "rows": rows}
 
 
 def json_ready(value):

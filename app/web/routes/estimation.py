@@ -1,0 +1,248 @@
+"""The estimation stage over HTTP, within a session.
+
+Data is attached (streamed to the session's data directory with a size
+limit), profiled and mapped to the diagram's variables; then the analyst asks
+for the estimate (with the implication tests), the stability checks, the
+sensitivity analysis and the estimate under each combination of disputed
+arrows. Results are kept as session attachments and announced to everyone in
+the room. A refused upload or request changes nothing that was there.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from pathlib import Path
+from typing import Any
+
+from fastapi import APIRouter, Body, Request
+from starlette.concurrency import run_in_threadpool
+
+from ...errors import AppError, BadRequest, NotFound, PayloadTooLarge
+from ...estimation import service
+from ...estimation.design import check_mapping, propose_mapping
+from ...estimation.errors import DataError
+from ...estimation.tables import load_table, profile_table
+from ...graph.errors import DiagramError
+from ...reporting import charts
+from ..deps import AnalystDep, MemberDep
+
+router = APIRouter(prefix="/api/sessions/{session_id}/estimation", tags=["estimation"])
+
+STAGES = ("agreed", "estimation")
+DATA_KEY = "estimation.data"
+RESULT_KEYS = ("estimation.estimate", "estimation.stability", "estimation.sensitivity", "estimation.disputes")
+_CACHE: dict[str, tuple[tuple, Any]] = {}
+
+
+def _refuse(exc: Exception) -> AppError:
+    if isinstance(exc, DataError):
+        return AppError(exc.message, code=exc.code, status=exc.status)
+    return AppError(exc.message, code=getattr(exc, "code", "invalid_diagram"), status=422)
+
+
+def _data_info(access) -> dict:
+    info = access.get_attachment(DATA_KEY)
+    if not info:
+        raise BadRequest("no data is attached to this session yet; upload a CSV or Parquet file first",
+                         code="no_data")
+    return info
+
+
+def _frame(access, info: dict):
+    path = access.data_dir() / info["stored"]
+    if not path.is_file():
+        raise NotFound("the attached data file is missing on the server; upload it again", code="data_missing")
+    stat = path.stat()
+    key = (str(path), stat.st_mtime_ns, stat.st_size)
+    cached = _CACHE.get(access.session_id)
+    if cached and cached[0] == key:
+        return cached[1]
+    frame = load_table(path, max_bytes=None, name=info["name"])
+    _CACHE[access.session_id] = (key, frame)
+    if len(_CACHE) > 4:
+        _CACHE.pop(next(iter(_CACHE)))
+    return frame
+
+
+def _variables(access) -> list[dict]:
+    d = access.diagram()
+    return [{"name": v.name, "label": v.label, "latent": v.latent,
+             "role": "treatment" if v.name in d.treatment else "outcome" if v.name in d.outcome else None}
+            for v in d.variables]
+
+
+@router.get("")
+def read_estimation(access: MemberDep) -> dict:
+    """What is attached, how it is mapped, and the latest results."""
+    info = access.get_attachment(DATA_KEY)
+    out = {"ok": True, "stage": access.stage, "data": info, "variables": _variables(access)}
+    for key in RESULT_KEYS:
+        out[key.split(".", 1)[1]] = access.get_attachment(key)
+    return out
+
+
+@router.put("/data")
+async def upload_data(access: AnalystDep, request: Request, name: str = "data.csv") -> dict:
+    """Attach a data file (raw CSV or Parquet bytes as the body), streamed to disk with a size limit."""
+    access.require_stage(*STAGES)
+    limit = request.app.state.settings.upload_limit_bytes
+    declared = request.headers.get("content-length")
+    if declared and declared.isdigit() and int(declared) > limit:
+        raise PayloadTooLarge(f"the file is {int(declared) / 1048576:.1f} MB; the limit is {limit / 1048576:.1f} MB",
+                              code="file_too_large")
+    name = os.path.basename(name.strip()) or "data.csv"
+    folder = access.data_dir()
+    partial = folder / f"upload-{time.time_ns()}.part"
+    size = 0
+    try:
+        with open(partial, "wb") as handle:
+            async for chunk in request.stream():
+                size += len(chunk)
+                if size > limit:
+                    raise PayloadTooLarge(f"the file is over the limit of {limit / 1048576:.1f} MB",
+                                          code="file_too_large")
+                handle.write(chunk)
+        frame = await run_in_threadpool(load_table, partial, max_bytes=limit, name=name)
+        profile = await run_in_threadpool(profile_table, frame)
+    except DataError as exc:
+        partial.unlink(missing_ok=True)
+        raise _refuse(exc) from None
+    except BaseException:
+        partial.unlink(missing_ok=True)
+        raise
+    with open(partial, "rb") as handle:
+        suffix = ".parquet" if handle.read(4) == b"PAR1" else ".csv"
+    stored = f"data{suffix}"
+    for old in folder.glob("data.*"):
+        if old.name != stored:
+            old.unlink(missing_ok=True)
+    os.replace(partial, folder / stored)
+    diagram = access.diagram()
+    previous = (access.get_attachment(DATA_KEY) or {}).get("mapping") or {}
+    mapping = propose_mapping(diagram.names, frame.columns)
+    for var, col in previous.items():
+        if var in diagram.names and col in frame.columns and col not in mapping.values():
+            mapping[var] = col
+    info = {"name": name, "stored": stored, "bytes": size, "rows": int(len(frame)),
+            "columns": list(map(str, frame.columns)), "profile": service.json_ready(profile),
+            "mapping": mapping, "uploaded_at": time.time()}
+    access.put_attachment(DATA_KEY, info)
+    for key in RESULT_KEYS:
+        access.delete_attachment(key)
+    await access.log(f"attached data {name} ({len(frame)} rows, {frame.shape[1]} columns)", kind="estimation")
+    return {"ok": True, "data": info}
+
+
+@router.put("/mapping")
+async def update_mapping(access: AnalystDep, body: Any = Body(...)) -> dict:
+    """Say which column measures which variable (null or empty: unmeasured)."""
+    access.require_stage(*STAGES)
+    info = _data_info(access)
+    raw = body.get("mapping") if isinstance(body, dict) else None
+    try:
+        mapping = check_mapping(raw, access.diagram().names, info["columns"])
+    except DataError as exc:
+        raise _refuse(exc) from None
+    info = {**info, "mapping": mapping}
+    access.put_attachment(DATA_KEY, info)
+    unmeasured = sorted(set(access.diagram().names) - set(mapping))
+    await access.log("mapped measures to variables" + (f"; unmeasured: {', '.join(unmeasured)}" if unmeasured else ""),
+                     kind="estimation")
+    return {"ok": True, "data": info}
+
+
+def _options(body: Any) -> dict:
+    if body is None:
+        return {}
+    if not isinstance(body, dict):
+        raise BadRequest("send a JSON object of options", code="invalid_request")
+    method = body.get("method") or None
+    adjust = body.get("adjust")
+    if adjust is not None and (not isinstance(adjust, list) or not all(isinstance(a, str) for a in adjust)):
+        raise BadRequest("'adjust' must be a list of variable names", code="invalid_field")
+    return {"method": method, "adjust": adjust}
+
+
+async def _run(access, fn, **kwargs):
+    access.require_stage(*STAGES)
+    info = _data_info(access)
+    try:
+        diagram = access.diagram()
+        frame = await run_in_threadpool(_frame, access, info)
+        result = await run_in_threadpool(lambda: fn(diagram, frame, info.get("mapping"), **kwargs))
+    except (DataError, DiagramError) as exc:
+        raise _refuse(exc) from None
+    return service.json_ready(result)
+
+
+@router.post("/estimate")
+async def create_estimate(access: AnalystDep, body: Any = Body(None)) -> dict:
+    """The estimate the diagram identifies, with its implications tested against the data."""
+    opts = _options(body)
+    correction = (body or {}).get("correction", "holm")
+    if correction not in ("holm", "bh", "none"):
+        raise BadRequest("'correction' must be holm, bh or none", code="invalid_field")
+    result = await _run(access, service.estimate, correction=correction, **opts)
+    chart = {}
+    overlap = result["details"].get("overlap")
+    if overlap:
+        chart["overlap"] = charts.overlap_histogram(overlap, treated_label=f"{result['treatment']} = 1",
+                                                    untreated_label=f"{result['treatment']} = 0")
+    result["charts"] = chart
+    access.put_attachment("estimation.estimate", result)
+    lo, hi = result["ci"]
+    failing = (result["checks"] or {}).get("failing", 0)
+    await access.log(f"estimated the effect: {result['estimate']:.3g} [{lo:.3g}, {hi:.3g}] by {result['method']}"
+                     + (f"; {failing} implication(s) fail against the data" if failing else ""),
+                     kind="estimation", highlight=(result["checks"] or {}).get("highlight"))
+    return {"ok": True, "result": result}
+
+
+@router.post("/stability")
+async def create_stability(access: AnalystDep, body: Any = Body(None)) -> dict:
+    """Re-estimate on resampled rows, split halves, a shuffled treatment and with an invented common cause."""
+    opts = _options(body)
+    repeats = (body or {}).get("repeats", 100)
+    if not isinstance(repeats, int) or not 10 <= repeats <= 1000:
+        raise BadRequest("'repeats' must be a whole number from 10 to 1000", code="invalid_field")
+    result = await _run(access, service.stability, repeats=repeats, **opts)
+    access.put_attachment("estimation.stability", result)
+    await access.log("ran the stability checks", kind="estimation")
+    return {"ok": True, "result": result}
+
+
+@router.post("/sensitivity")
+async def create_sensitivity(access: AnalystDep, body: Any = Body(None)) -> dict:
+    """How strong an unmeasured confounder would have to be to change the conclusion."""
+    result = await _run(access, service.sensitivity, **_options(body))
+    reg = result.get("regression")
+    if reg:
+        result["charts"] = {"contour": charts.sensitivity_contour(
+            reg["contour"], benchmarks=reg["benchmarks"], estimate=reg["estimate"],
+            robustness_value=reg["robustness_value"])}
+    access.put_attachment("estimation.sensitivity", result)
+    await access.log("ran the sensitivity analysis", kind="estimation")
+    return {"ok": True, "result": result}
+
+
+@router.post("/disputes")
+async def create_disputes(access: AnalystDep, body: Any = Body(None)) -> dict:
+    """The estimate under each combination of the room's disputed arrows, as a forest plot."""
+    from ...workshop.voting import disputed_items
+
+    opts = _options(body)
+    items = (body or {}).get("disputed")
+    if items is None:
+        items = [{"pair": i["pair"], "options": i["options"]} for i in disputed_items(access.workshop)]
+    if not isinstance(items, list):
+        raise BadRequest("'disputed' must be a list of arrows", code="invalid_field")
+    result = await _run(access, service.disputed_estimates, disputed=items, method=opts["method"])
+    rows = [{"label": r["label"], "estimate": r["estimate"],
+             "low": r["ci"][0] if r["ci"] else None, "high": r["ci"][1] if r["ci"] else None,
+             "problem": r["problem"]} for r in result["rows"]]
+    drawn = next((i for i, r in enumerate(result["rows"]) if r["as_drawn"]), None)
+    result["charts"] = {"forest": charts.forest_plot(rows, highlight=drawn)} if rows else {}
+    access.put_attachment("estimation.disputes", result)
+    await access.log(f"estimated under {len(rows)} combination(s) of disputed arrows", kind="estimation")
+    return {"ok": True, "result": result}

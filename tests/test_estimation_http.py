@@ -1,0 +1,109 @@
+"""The estimation stage over HTTP within a session (tests/conftest.py builds the app)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from tests.conftest import make_app
+
+SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
+TRUTH = json.loads((SAMPLE / "cycle_to_work.truth.json").read_text())["true_effect"]
+CSV = (SAMPLE / "cycle_to_work.csv").read_bytes()
+
+
+@pytest.fixture(name="room")
+def fixture_room(tmp_path):
+    from fastapi.testclient import TestClient
+
+    app = make_app(tmp_path)
+    app.state.settings.upload_limit_bytes = 300_000
+    with TestClient(app) as client:
+        doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
+        made = client.post("/api/sessions", json={"title": "demo", "name": "Fac", "document": doc}).json()
+        sid, headers = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
+        assert client.post(f"/api/sessions/{sid}/commands", json={"type": "set_stage", "stage": "agreed"},
+                           headers=headers).status_code == 200
+        yield client, f"/api/sessions/{sid}/estimation", headers, made
+
+
+def test_upload_profile_estimate_and_results_are_kept(room):
+    client, base, headers, _ = room
+    r = client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    assert r.status_code == 200, r.text
+    data = r.json()["data"]
+    assert data["rows"] == 4000 and data["mapping"]["scheme"] == "scheme"
+    assert "health_consciousness" not in data["mapping"]
+    r = client.post(f"{base}/estimate", json={}, headers=headers)
+    assert r.status_code == 200, r.text
+    result = r.json()["result"]
+    assert result["ci"][0] <= TRUTH <= result["ci"][1]
+    assert result["checks"]["tested"] > 0
+    state = client.get(base, headers=headers).json()
+    assert state["estimate"]["estimate"] == pytest.approx(result["estimate"])
+
+
+def test_weighting_estimate_carries_overlap_svg(room):
+    client, base, headers, _ = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    r = client.post(f"{base}/estimate", json={"method": "weighting"}, headers=headers)
+    assert r.status_code == 200, r.text
+    assert r.json()["result"]["charts"]["overlap"].startswith("<svg")
+
+
+def test_sensitivity_and_disputes_return_svg_charts(room):
+    client, base, headers, _ = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    sens = client.post(f"{base}/sensitivity", json={}, headers=headers).json()["result"]
+    assert "am-contour" in sens["charts"]["contour"]
+    disputes = client.post(f"{base}/disputes", json={"disputed": [{"from": "fitness", "to": "scheme"}]},
+                           headers=headers).json()["result"]
+    assert len(disputes["rows"]) == 2 and "am-forest" in disputes["charts"]["forest"]
+
+
+def test_bad_upload_keeps_previous_data(room):
+    client, base, headers, _ = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    r = client.put(f"{base}/data?name=broken.csv", content=b"a,b\n1,2\n", headers=headers)
+    assert r.status_code == 422
+    assert r.json() == {"ok": False, "error": "broken.csv has only one data row; estimation needs many rows",
+                        "status": 422, "code": "too_few_rows"}
+    assert client.get(base, headers=headers).json()["data"]["name"] == "cycle.csv"
+    assert client.post(f"{base}/estimate", json={}, headers=headers).status_code == 200
+
+
+def test_upload_over_limit_is_refused_with_413(room):
+    client, base, headers, _ = room
+    r = client.put(f"{base}/data?name=big.csv", content=CSV + CSV, headers=headers)
+    assert r.status_code == 413 and "limit" in r.json()["error"]
+    assert client.get(base, headers=headers).json()["data"] is None
+
+
+def test_mapping_refusal_and_unmeasured_fallback(room):
+    client, base, headers, _ = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    bad = client.put(f"{base}/mapping", json={"mapping": {"scheme": "nope"}}, headers=headers)
+    assert bad.status_code == 422 and "'nope', which is not in the data" in bad.json()["error"]
+    mapping = client.get(base, headers=headers).json()["data"]["mapping"]
+    mapping.pop("fitness")
+    assert client.put(f"{base}/mapping", json={"mapping": mapping}, headers=headers).status_code == 200
+    result = client.post(f"{base}/estimate", json={}, headers=headers).json()["result"]
+    assert result["strategy"] == "instrument" and result["fixes"] == [["fitness"]]
+
+
+def test_estimate_without_data_and_wrong_method(room):
+    client, base, headers, _ = room
+    r = client.post(f"{base}/estimate", json={}, headers=headers)
+    assert r.status_code == 400 and r.json()["code"] == "no_data"
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    r = client.post(f"{base}/estimate", json={"method": "magic"}, headers=headers)
+    assert r.status_code == 422 and "unknown method 'magic'" in r.json()["error"]
+
+
+def test_participant_cannot_estimate(room):
+    client, base, headers, made = room
+    joined = client.post("/api/join", json={"code": made["join_code"], "name": "Pat"}).json()
+    r = client.post(f"{base}/estimate", json={}, headers={"X-Arrowmoot-Token": joined["token"]})
+    assert r.status_code == 403
