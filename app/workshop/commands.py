@@ -244,31 +244,31 @@ def _add_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     _require_variable(w, source)
     _require_variable(w, target)
     if w.has_arrow(source, target):
-        raise Conflict(f"there is already an arrow {source} -> {target}", code="duplicate_arrow")
+        raise Conflict(f"there is already an arrow {source} → {target}", code="duplicate_arrow")
     arrows = w.arrows + [(source, target)]
     _validate(w, arrows=arrows)
     w.arrows = arrows
-    return _Change(f"drew arrow {source} -> {target}", undoable=True)
+    return _Change(f"drew arrow {source} → {target}", undoable=True)
 
 
 def _delete_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     _check_arrow_edit(w, m, "remove an arrow")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
-        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+        raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
     w.arrows = [a for a in w.arrows if a != (source, target)]
-    return _Change(f"removed arrow {source} -> {target}", undoable=True)
+    return _Change(f"removed arrow {source} → {target}", undoable=True)
 
 
 def _reverse_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     _check_arrow_edit(w, m, "reverse an arrow")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
-        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+        raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
     arrows = [(target, source) if a == (source, target) else a for a in w.arrows]
     _validate(w, arrows=arrows)
     w.arrows = arrows
-    return _Change(f"reversed arrow {source} -> {target} to {target} -> {source}", undoable=True)
+    return _Change(f"reversed arrow {source} → {target} to {target} → {source}", undoable=True)
 
 
 def _set_question(w: Workshop, m: Member, c: dict) -> _Change:
@@ -336,11 +336,11 @@ def _propose(w: Workshop, m: Member, c: dict) -> _Change:
     reason = _text(c, "reason", limit=MAX_PROPOSAL_REASON, what="the reason")
     if kind == "add":
         if w.has_arrow(source, target):
-            raise Conflict(f"the arrow {source} -> {target} is already drawn", code="duplicate_arrow")
+            raise Conflict(f"the arrow {source} → {target} is already drawn", code="duplicate_arrow")
         if source == target:
             raise BadRequest("an arrow needs two different variables", code="self_loop")
     elif not w.has_arrow(source, target):
-        raise NotFound(f"there is no arrow {source} -> {target} to {kind}", code="unknown_arrow")
+        raise NotFound(f"there is no arrow {source} → {target} to {kind}", code="unknown_arrow")
     for p in w.proposals.values():
         if p.status in ("open", "disputed") and (p.kind, p.source, p.target) == (kind, source, target):
             raise Conflict(f"proposal #{p.id} already proposes to {p.describe()}",
@@ -376,8 +376,8 @@ def _vote(w: Workshop, m: Member, c: dict) -> _Change:
     else:
         source, target = _arrow_ends(c)
         if not w.has_arrow(source, target):
-            raise NotFound(f"there is no arrow {source} -> {target} to vote on", code="unknown_arrow")
-        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} -> {target}"
+            raise NotFound(f"there is no arrow {source} → {target} to vote on", code="unknown_arrow")
+        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} → {target}"
     w.votes.setdefault(subject, {})[m.id] = Vote(choice=choice, reason=reason, at=c["_now"])
     return _Change(f"voted {choice} on {what}" + (f": {reason}" if reason else ""))
 
@@ -389,7 +389,7 @@ def _withdraw_vote(w: Workshop, m: Member, c: dict) -> _Change:
         subject, what = p.subject, f"proposal #{p.id}"
     else:
         source, target = _arrow_ends(c)
-        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} -> {target}"
+        subject, what = f"arrow:{arrow_key(source, target)}", f"arrow {source} → {target}"
     if m.id not in w.votes.get(subject, {}):
         raise NotFound(f"you have no vote on {what}", code="no_vote")
     del w.votes[subject][m.id]
@@ -410,12 +410,12 @@ def _settle(w: Workshop, m: Member, c: dict) -> _Change:
         arrows = list(w.arrows)
         if p.kind == "add":
             if (p.source, p.target) in arrows:
-                raise Conflict(f"the arrow {p.source} -> {p.target} is already drawn",
+                raise Conflict(f"the arrow {p.source} → {p.target} is already drawn",
                                code="duplicate_arrow")
             arrows.append((p.source, p.target))
         else:
             if (p.source, p.target) not in arrows:
-                raise Conflict(f"the arrow {p.source} -> {p.target} is no longer drawn",
+                raise Conflict(f"the arrow {p.source} → {p.target} is no longer drawn",
                                code="unknown_arrow")
             if p.kind == "remove":
                 arrows.remove((p.source, p.target))
@@ -447,7 +447,7 @@ def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     _require_unlocked(w, "change disputes")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
-        raise NotFound(f"there is no arrow {source} -> {target}", code="unknown_arrow")
+        raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
     flag = c.get("flag")
     if flag not in ("disputed", "settled", None):
         raise BadRequest("'flag' must be disputed, settled or null", code="invalid_field")
@@ -458,7 +458,7 @@ def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     else:
         w.arrow_flags[key] = flag
         text = f"marked {flag}:"
-    return _Change(f"{text} arrow {source} -> {target}", undoable=True)
+    return _Change(f"{text} arrow {source} → {target}", undoable=True)
 
 
 # -- facilitation -------------------------------------------------------------------
@@ -634,10 +634,14 @@ def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id:
         if not isinstance(names, list):
             raise BadRequest(f"'{part}' must be a variable name or a list of names",
                              code="invalid_field")
-        for n in names:
+        for i, n in enumerate(names):
             n = _name({part: n}, part)
             if w.variable(n) is None:
-                x, y = layout.free_spot(w.variables, prefer_left=(part == "treatment"))
+                if document is None:
+                    # A fresh diagram: treatment on the left, outcome on the right, room between.
+                    x, y = (160.0 if part == "treatment" else 660.0), 300.0 + 110.0 * i
+                else:
+                    x, y = layout.free_spot(w.variables)
                 w.variables.append({"name": n, "latent": False, "x": x, "y": y})
         setattr(w, part, list(names))
     _validate(w)

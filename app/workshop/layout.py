@@ -77,13 +77,12 @@ def layered_positions(names: Iterable[str], arrows: Iterable[tuple[str, str]]) -
     return positions
 
 
-def free_spot(variables: list[dict], *, prefer_left: bool = False) -> tuple[float, float]:
+def free_spot(variables: list[dict]) -> tuple[float, float]:
     """A grid point at least one box away from every placed variable."""
     taken = [(v.get("x") or 0.0, v.get("y") or 0.0) for v in variables]
-    columns = range(0, 12) if not prefer_left else range(0, 12)
     for row in range(0, 40):
-        for col in columns:
-            x = MARGIN + col * 200.0 if prefer_left else MARGIN + 200.0 * (col + (1 if variables else 0))
+        for col in range(0, 12):
+            x = MARGIN + 200.0 * col
             y = MARGIN + row * 100.0
             if all(abs(x - tx) > 170 or abs(y - ty) > 80 for tx, ty in taken):
                 return x, y

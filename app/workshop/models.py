@@ -87,7 +87,7 @@ class Proposal:
 
     def describe(self) -> str:
         verb = {"add": "add", "remove": "remove", "reverse": "reverse"}[self.kind]
-        return f"{verb} {self.source} -> {self.target}"
+        return f"{verb} {self.source} → {self.target}"
 
 
 @dataclass

@@ -82,7 +82,7 @@ def disputed_items(workshop: Workshop) -> list[dict[str, Any]]:
             item = item_for(a, b)
             add_option(item, None)
             item["why"].append(
-                f"arrow {a} -> {b} " + ("marked disputed" if flag == "disputed" else "voted against")
+                f"arrow {a} → {b} " + ("marked disputed" if flag == "disputed" else "voted against")
             )
     out = []
     for item in items.values():

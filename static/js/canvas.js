@@ -137,7 +137,7 @@ export class Canvas {
     const bottom = (legend && !legend.hidden ? legend.offsetHeight + 16 : 0) + pad;
     const usableH = Math.max(120, rect.height - top - bottom);
     const usableW = rect.width - 2 * pad;
-    const k = Math.max(0.3, Math.min(1.5, Math.min(usableW / (maxX - minX), usableH / (maxY - minY))));
+    const k = Math.max(0.3, Math.min(1.15, Math.min(usableW / (maxX - minX), usableH / (maxY - minY))));
     this.view = { k, x: pad + (usableW - (maxX - minX) * k) / 2 - minX * k, y: top + (usableH - (maxY - minY) * k) / 2 - minY * k };
     this.applyView();
   }
@@ -224,14 +224,20 @@ export class Canvas {
     const mx = (x1 + x2) / 2, my = (y1 + y2) / 2;
     const badges = [];
     if (info.proposal) badges.push(`#${info.proposal.id} add?`);
-    if (classes.includes('edge-disputed')) badges.push('?');
+    if (classes.includes('edge-disputed')) badges.push('disputed');
     for (const p of info.pending || []) badges.push(`#${p.id} ${p.kind === 'remove' ? 'drop?' : 'flip?'}`);
     const tally = info.arrow?.tally || info.proposal?.tally;
     if (tally && tally.total) badges.push(`+${tally.agree} −${tally.disagree} ?${tally.unsure}`);
     if (badges.length) {
       const text = badges.join('  ');
       const w = textWidth(text) * 0.8 + 14;
-      const badge = svg('g', { class: 'edge-badge', transform: `translate(${mx},${my})` },
+      // Sit beside the line (on its left-hand normal), not on top of it.
+      const length = Math.hypot(x2 - x1, y2 - y1) || 1;
+      let nx = -(y2 - y1) / length, ny = (x2 - x1) / length;
+      if (ny > 0) { nx = -nx; ny = -ny; }
+      const offset = 15 + Math.abs(nx) * (w / 2 - 8);
+      const bx = mx + nx * offset, by = my + ny * offset;
+      const badge = svg('g', { class: 'edge-badge', transform: `translate(${bx},${by})` },
         svg('rect', { x: -w / 2, y: -11, width: w, height: 22, rx: 4 }),
         svg('text', { x: 0, y: 5, 'text-anchor': 'middle', text }));
       group.append(badge);
@@ -276,11 +282,11 @@ export class Canvas {
     if (v.latent) tags.push('UNMEASURED');
     if (flags.adjusted) tags.push('ADJUSTED');
     if (tags.length) {
-      group.append(svg('text', { class: 'tag', x: 0, y: -hh - 7, 'text-anchor': 'middle', text: tags.join(' · ') }));
+      group.append(svg('text', { class: 'tag', x: 0, y: -hh - (flags.adjusted ? 13 : 7), 'text-anchor': 'middle', text: tags.join(' · ') }));
     }
     const roles = (this.model.roles?.[v.name] || []).filter((r) => !['treatment', 'outcome', 'unrelated'].includes(r));
     if (roles.length) {
-      group.append(svg('text', { class: 'role', x: 0, y: hh + 16, 'text-anchor': 'middle', text: roles.join(', ').replaceAll('_', ' ') }));
+      group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? 24 : 16), 'text-anchor': 'middle', text: roles.join(', ').replaceAll('_', ' ') }));
     }
     group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? 14 : 0), cy: 0, r: 7 }));
     const title = svg('title', { text: v.description ? `${v.name}: ${v.description}` : v.name });

@@ -14,12 +14,12 @@ function setChips(app, sets, label) {
   if (!sets?.length) return el('p', { class: 'muted', text: 'none' });
   return el('div', { class: 'chips' }, sets.map((set) => {
     const key = JSON.stringify(set);
-    const active = JSON.stringify(app.view.adjusted) === key;
+    const active = app.view.adjusted !== null && JSON.stringify(app.view.adjusted) === key;
     return el('button', {
       class: `chip${active ? ' chip-active' : ''}`, type: 'button', 'aria-pressed': active ? 'true' : 'false',
       title: `Show ${label} on the diagram`,
       text: set.length ? `{ ${set.join(', ')} }` : '{ } (nothing to adjust for)',
-      on: { click: () => app.showAdjusted(active ? [] : set) },
+      on: { click: () => app.showAdjusted(active ? null : set) },
     });
   }));
 }
@@ -56,6 +56,12 @@ export function renderAnalysis(app) {
   box.append(el('h3', { text: 'Minimal adjustment sets' }));
   box.append(setChips(app, a.minimal_adjustment_sets, 'this adjustment set'));
   if (a.more_sets_exist) box.append(el('p', { class: 'muted', text: 'More sets exist; the first ones are listed.' }));
+  if (app.view.adjusted !== null && a.adjustment_check) {
+    const check = a.adjustment_check;
+    box.append(el('div', { class: `set-check ${check.valid ? 'set-valid' : 'set-invalid'}` },
+      el('strong', { text: `{ ${check.set.join(', ')} } ${check.valid ? 'is a valid adjustment set' : 'is not a valid adjustment set'}` }),
+      check.reasons?.length ? el('ul', {}, check.reasons.map((r) => el('li', { text: r }))) : null));
+  }
   box.append(el('h3', { text: 'Optimal adjustment set' }));
   if (a.optimal_adjustment_set) box.append(setChips(app, [a.optimal_adjustment_set], 'the optimal set'));
   else box.append(el('p', { class: 'muted', text: 'none' }));
@@ -74,7 +80,7 @@ export function renderAnalysis(app) {
   const biasing = paths.filter((p) => !p.causal && p.open);
   const blocked = paths.filter((p) => !p.causal && !p.open);
   const causal = paths.filter((p) => p.causal);
-  const adjustedText = app.view.adjusted.length ? ` given { ${app.view.adjusted.join(', ')} }` : ' (adjusting for nothing)';
+  const adjustedText = app.view.adjusted?.length ? ` given { ${app.view.adjusted.join(', ')} }` : ' (adjusting for nothing)';
   box.append(el('h3', { text: `Open non-causal paths${adjustedText}` }));
   box.append(pathList(app, biasing, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
   box.append(el('h3', { text: 'Causal paths' }));

@@ -20,7 +20,7 @@ class SessionApp {
     this.me = null;
     this.online = new Set();
     this.tab = 'analysis';
-    this.view = { selection: null, highlight: null, adjusted: [] };
+    this.view = { selection: null, highlight: null, adjusted: null };
     this.status = 'connecting';
   }
 
@@ -42,7 +42,7 @@ class SessionApp {
     this.buildLayout();
     this.live = new LiveSession(this.sessionId, this.token, {
       onState: (state, missed) => this.receiveState(state, missed),
-      onAnalysis: (message) => { this.analysis = message; this.refreshPanel(); this.renderCanvas(); },
+      onAnalysis: (message) => { this.analysis = message; this.refreshAdjustedPaths(); this.refreshPanel(); this.renderCanvas(); },
       onPresence: (online) => { this.online = new Set(online); if (this.tab === 'people') this.refreshPanel(); this.renderBar(); },
       onStatus: (status) => { this.status = status; this.renderStatus(); },
       onWelcome: (message) => { this.me = message.member; },
@@ -110,13 +110,25 @@ class SessionApp {
   showAdjusted(set) {
     this.view.adjusted = set;
     this.view.highlight = null;
-    callApi('POST', '/api/identify', { ...this.state.document, adjust: set }).then((result) => {
-      if (this.analysis?.analysis) {
-        this.analysis = { ...this.analysis, analysis: { ...this.analysis.analysis, paths: result.paths, paths_total: result.paths_total, paths_capped: result.paths_capped, adjustment_check: result.adjustment_check } };
-        this.refreshPanel();
-      }
-    }).catch((err) => toast(err.message, 'error'));
+    this.refreshAdjustedPaths();
     this.renderAll();
+  }
+
+  /** With a set shown on the diagram, list the paths as they stand given that set. */
+  refreshAdjustedPaths() {
+    const set = this.view.adjusted;
+    if (!set || !this.analysis?.analysis) return;
+    const revision = this.analysis.revision;
+    callApi('POST', '/api/identify', { ...this.state.document, adjust: set }).then((result) => {
+      if (!this.analysis?.analysis || this.analysis.revision !== revision || this.view.adjusted !== set) return;
+      this.analysis = { ...this.analysis, analysis: { ...this.analysis.analysis, paths: result.paths, paths_total: result.paths_total, paths_capped: result.paths_capped, adjustment_check: result.adjustment_check } };
+      this.refreshPanel();
+    }).catch((err) => {
+      // The set may name a variable that was just deleted or renamed; stop showing it.
+      this.view.adjusted = null;
+      toast(err.message, 'error');
+      this.renderAll();
+    });
   }
 
   async addVariableAt(x, y) {
@@ -312,7 +324,7 @@ class SessionApp {
     const arrows = s.arrows.map((a) => ({ ...a, contested: contested.has(JSON.stringify([a.from, a.to])) && a.flag !== 'settled' && (a.tally.disagree > 0 || pendingByArrow.has(JSON.stringify([a.from, a.to]))) }));
     this.canvas.render({
       document: s.document, arrows, proposals: s.proposals, pendingByArrow,
-      selection: this.view.selection, highlight: this.view.highlight, adjusted: this.view.adjusted,
+      selection: this.view.selection, highlight: this.view.highlight, adjusted: this.view.adjusted || [],
       roles: this.analysis?.revision === s.revision ? this.analysis?.analysis?.roles : this.canvas.model?.roles,
     });
   }

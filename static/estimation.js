@@ -1,0 +1,344 @@
+// The estimation stage panel: attach data, map measures, estimate, test the diagram
+// against the data, stability and sensitivity, and the disputed-arrow forest plot.
+// Mounted by the session page through mountEstimation(element, context).
+
+import { el, clear } from './js/dom.js';
+import { TOKEN_HEADER, ApiError } from './js/api.js';
+
+const METHODS = [
+  ['auto', 'Chosen from the diagram and the data'],
+  ['regression', 'Linear regression, robust errors'],
+  ['standardization', 'Standardization (binary outcome)'],
+  ['weighting', 'Inverse probability weighting'],
+  ['doubly-robust', 'Doubly robust (augmented weighting)'],
+  ['two-stage', 'Two-stage least squares (instrument)'],
+  ['front-door', 'Front-door product of coefficients'],
+];
+
+/** Format a number for people: 3 significant digits, no exponent for ordinary sizes. */
+function fmt(value, digits = 3) {
+  if (value === null || value === undefined || Number.isNaN(value)) return '–';
+  if (typeof value !== 'number') return String(value);
+  if (value !== 0 && (Math.abs(value) < 0.001 || Math.abs(value) >= 1e6)) return value.toExponential(2);
+  return Number(value.toPrecision(digits)).toString();
+}
+
+function pct(value) { return value === null || value === undefined ? '–' : `${(100 * value).toFixed(1)}%`; }
+
+/** Put a server-built SVG string into the page (parsed as XML, never as HTML). */
+function chart(svgText, label) {
+  const box = el('figure', { class: 'am-figure' });
+  if (!svgText) return box;
+  const parsed = new DOMParser().parseFromString(svgText, 'image/svg+xml');
+  const root = parsed.documentElement;
+  if (root.nodeName !== 'svg') return box;
+  box.append(document.importNode(root, true));
+  if (label) box.append(el('figcaption', { class: 'note', text: label }));
+  return box;
+}
+
+function table(headers, rows, cls = '') {
+  return el('table', { class: `am-table ${cls}` },
+    el('thead', {}, el('tr', {}, ...headers.map((h) => el('th', { text: h })))),
+    el('tbody', {}, ...rows));
+}
+
+class EstimationPanel {
+  constructor(root, context) {
+    this.root = root;
+    this.context = context;
+    this.data = null;
+    this.variables = [];
+    this.results = { estimate: null, stability: null, sensitivity: null, disputes: null };
+    this.busy = null;
+    this.message = null;
+    this.flagged = null;
+  }
+
+  get base() { return `/api/sessions/${encodeURIComponent(this.context.sessionId)}/estimation`; }
+
+  get canEdit() {
+    const id = this.context.member?.id;
+    const me = this.context.state?.()?.members?.find((m) => m.id === id) || this.context.member;
+    return me?.role === 'facilitator' || !!me?.analyst;
+  }
+
+  get stage() { return this.context.state?.()?.session?.stage; }
+
+  async call(method, path = '', body) {
+    return this.context.api(method, this.base + path, body, this.context.token);
+  }
+
+  async load() {
+    try {
+      const data = await this.call('GET');
+      this.data = data.data;
+      this.variables = data.variables;
+      for (const key of Object.keys(this.results)) this.results[key] = data[key];
+    } catch (err) {
+      this.message = { kind: 'error', text: err.message };
+    }
+    this.render();
+  }
+
+  async act(name, work) {
+    this.busy = name;
+    this.message = null;
+    this.render();
+    try {
+      await work();
+    } catch (err) {
+      this.message = { kind: 'error', text: err.message || String(err) };
+    }
+    this.busy = null;
+    this.render();
+  }
+
+  upload(file) {
+    return this.act('upload', async () => {
+      const response = await fetch(`${this.base}/data?name=${encodeURIComponent(file.name)}`, {
+        method: 'PUT', body: file,
+        headers: { [TOKEN_HEADER]: this.context.token, 'Content-Type': 'application/octet-stream', Accept: 'application/json' },
+      });
+      let body = null;
+      try { body = await response.json(); } catch { body = null; }
+      if (!response.ok) throw new ApiError(body, response.status);
+      this.data = body.data;
+      for (const key of Object.keys(this.results)) this.results[key] = null;
+      this.message = { kind: 'ok', text: `Attached ${file.name}: ${body.data.rows} rows, ${body.data.columns.length} columns.` };
+    });
+  }
+
+  saveMapping() {
+    const mapping = {};
+    for (const select of this.root.querySelectorAll('select[data-variable]')) {
+      if (select.value) mapping[select.dataset.variable] = select.value;
+    }
+    return this.act('mapping', async () => {
+      const body = await this.call('PUT', '/mapping', { mapping });
+      this.data = body.data;
+      this.message = { kind: 'ok', text: 'Mapping saved.' };
+    });
+  }
+
+  options() {
+    const method = this.root.querySelector('select[name="method"]')?.value;
+    const correction = this.root.querySelector('select[name="correction"]')?.value;
+    return { method: method === 'auto' ? null : method, correction: correction || 'holm' };
+  }
+
+  run(kind) {
+    return this.act(kind, async () => {
+      const opts = this.options();
+      const body = kind === 'estimate' ? opts : { method: opts.method };
+      const out = await this.call('POST', `/${kind}`, body);
+      this.results[kind] = out.result;
+    });
+  }
+
+  /** Show a failing implication on the diagram: the two variables and the conditioning set. */
+  flag(test) {
+    const same = this.flagged && this.flagged.x === test.x && this.flagged.y === test.y;
+    this.flagged = same ? null : test;
+    const detail = same ? null : { nodes: [test.x, test.y], given: test.given, causal: false, kind: 'implication' };
+    if (typeof this.context.highlight === 'function') this.context.highlight(detail);
+    window.dispatchEvent(new CustomEvent('arrowmoot:highlight', { detail }));
+    this.render();
+  }
+
+  // -- rendering --------------------------------------------------------------------
+  render() {
+    const parts = [el('h3', { text: 'Estimation' })];
+    if (!['agreed', 'estimation'].includes(this.stage)) {
+      parts.push(el('p', { class: 'note', text: 'Data is attached once the room has agreed the diagram. The facilitator moves the session to “Agreed” or “Estimation” first.' }));
+    }
+    if (this.message) parts.push(el('p', { class: `am-message am-${this.message.kind}`, role: this.message.kind === 'error' ? 'alert' : 'status', text: this.message.text }));
+    parts.push(this.renderData(), this.renderMapping(), this.renderEstimate(), this.renderChecks(),
+      this.renderStability(), this.renderSensitivity(), this.renderDisputes());
+    clear(this.root).append(...parts.filter(Boolean));
+  }
+
+  button(text, name, onClick, primary = false) {
+    return el('button', {
+      type: 'button', class: primary ? 'primary' : '', text: this.busy === name ? 'Working…' : text,
+      disabled: !this.canEdit || !!this.busy, dataset: { action: name }, on: { click: onClick },
+    });
+  }
+
+  renderData() {
+    const box = el('section', { class: 'am-section', 'aria-label': 'Data' }, el('h4', { text: '1. Data' }));
+    if (this.canEdit) {
+      const input = el('input', { type: 'file', accept: '.csv,.parquet,text/csv', name: 'data-file', 'aria-label': 'Data file (CSV or Parquet)' });
+      box.append(el('div', { class: 'row' }, input,
+        this.button('Attach', 'upload', () => { if (input.files?.[0]) this.upload(input.files[0]); }, true)));
+    }
+    if (!this.data) {
+      box.append(el('p', { class: 'note', text: 'No data attached yet.' }));
+      return box;
+    }
+    box.append(el('p', { class: 'note', text: `${this.data.name}: ${this.data.rows.toLocaleString()} rows, ${this.data.columns.length} columns.` }));
+    const rows = this.data.profile.map((p) => el('tr', {},
+      el('th', { text: p.name }), el('td', { text: p.kind }), el('td', { text: pct(p.missing_share) }),
+      el('td', { text: String(p.distinct) }),
+      el('td', { text: p.min !== null ? `${fmt(p.min)} – ${fmt(p.max)}` : p.examples.join(', ') })));
+    box.append(el('details', {}, el('summary', { text: 'Column profile' }),
+      table(['column', 'kind', 'missing', 'distinct', 'range / values'], rows, 'am-profile')));
+    return box;
+  }
+
+  renderMapping() {
+    if (!this.data) return null;
+    const mapping = this.data.mapping || {};
+    const box = el('section', { class: 'am-section', 'aria-label': 'Measures' }, el('h4', { text: '2. Which column measures which variable' }));
+    const rows = this.variables.map((v) => {
+      const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit, 'aria-label': `Column for ${v.name}` },
+        el('option', { value: '', text: '— not measured —' }),
+        ...this.data.columns.map((c) => el('option', { value: c, text: c, selected: mapping[v.name] === c })));
+      const tag = v.role ? ` (${v.role})` : v.latent ? ' (unmeasured in the diagram)' : '';
+      return el('tr', {}, el('th', { text: v.name + tag }), el('td', {}, select));
+    });
+    box.append(table(['variable', 'column'], rows, 'am-mapping'));
+    if (this.canEdit) box.append(el('div', { class: 'row end' }, this.button('Save mapping', 'mapping', () => this.saveMapping())));
+    return box;
+  }
+
+  renderEstimate() {
+    if (!this.data) return null;
+    const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
+    const method = el('select', { name: 'method', 'aria-label': 'Method' }, ...METHODS.map(([v, t]) => el('option', { value: v, text: t })));
+    const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction' },
+      el('option', { value: 'holm', text: 'Holm' }), el('option', { value: 'bh', text: 'Benjamini–Hochberg' }));
+    const last = this.results.estimate;
+    if (last?.method) method.value = last.method;
+    if (last?.checks?.correction) correction.value = last.checks.correction;
+    box.append(el('div', { class: 'row' }, el('label', {}, 'Method', method), el('label', {}, 'Correction', correction)),
+      el('div', { class: 'row end' }, this.button('Estimate', 'estimate', () => this.run('estimate'), true)));
+    if (!last) return box;
+    const r = last;
+    const card = el('div', { class: 'am-result', dataset: { result: 'estimate' } },
+      el('p', { class: 'am-headline' },
+        el('strong', { text: fmt(r.estimate) }),
+        ` [${fmt(r.ci[0])}, ${fmt(r.ci[1])}]`,
+        el('span', { class: 'note', text: ' 95% interval' })),
+      el('p', { class: 'summary', text: r.explanation }));
+    const facts = [
+      ['method', r.method_label], ['strategy', r.strategy],
+      r.adjustment_set ? ['adjusted for', r.adjustment_set.length ? r.adjustment_set.join(', ') : 'nothing (none needed)'] : null,
+      r.instrument ? ['instrument', r.instrument + (r.given?.length ? ` given ${r.given.join(', ')}` : '')] : null,
+      r.mediators ? ['mediators', r.mediators.join(', ')] : null,
+      ['standard error', fmt(r.std_error)], ['rows used', `${r.n_used} (${r.n_dropped} dropped)`],
+      r.unmeasured?.length ? ['unmeasured', r.unmeasured.join(', ')] : null,
+      r.details?.risk_ratio !== undefined ? ['risk ratio', `${fmt(r.details.risk_ratio)} [${fmt(r.details.risk_ratio_ci?.[0])}, ${fmt(r.details.risk_ratio_ci?.[1])}]`] : null,
+      r.details?.odds_ratio !== undefined ? ['odds ratio', `${fmt(r.details.odds_ratio)} [${fmt(r.details.odds_ratio_ci?.[0])}, ${fmt(r.details.odds_ratio_ci?.[1])}]`] : null,
+      r.details?.first_stage_f !== undefined ? ['first-stage F', fmt(r.details.first_stage_f)] : null,
+    ].filter(Boolean);
+    card.append(el('dl', { class: 'am-facts' }, ...facts.flatMap(([k, v]) => [el('dt', { text: k }), el('dd', { text: String(v) })])));
+    if (r.fixes?.length) card.append(el('p', { class: 'notice', text: `Adjustment is not possible with what is measured. Measuring ${r.fixes.map((g) => `{${g.join(', ')}}`).join(' or ')} would allow it.` }));
+    for (const w of r.warnings || []) card.append(el('p', { class: 'notice', role: 'alert', text: w }));
+    card.append(el('details', {}, el('summary', { text: 'What must be true for this to be a causal effect' }),
+      el('ul', {}, ...r.assumptions.map((a) => el('li', { text: a })))));
+    card.append(el('div', { class: 'am-caution' }, el('strong', { text: 'Caution. ' }), ...r.cautions.map((c) => el('span', { text: c + ' ' }))));
+    if (r.charts?.overlap) {
+      card.append(chart(r.charts.overlap, 'Overlap: where both arms have people with similar chances of treatment.'));
+      const o = r.details.overlap;
+      card.append(el('p', { class: 'note', text: `Largest weight ${fmt(o.largest_weight)} (${pct(o.largest_weight_share)} of the total); effective sizes ${fmt(o.effective_n_treated)} treated, ${fmt(o.effective_n_untreated)} untreated; ${o.near_zero_or_one} scores below 0.01 or above 0.99.` }));
+      const rows = r.details.balance.map((b) => el('tr', { class: b.balanced_after ? '' : 'am-fail' },
+        el('th', { text: b.column }), el('td', { text: fmt(b.smd_before, 2) }), el('td', { text: fmt(b.smd_after, 2) })));
+      card.append(el('details', {}, el('summary', { text: 'Balance before and after weighting (standardized mean differences; below 0.1 is the usual target)' }),
+        table(['column', 'before', 'after'], rows)));
+    }
+    box.append(card);
+    return box;
+  }
+
+  renderChecks() {
+    const checks = this.results.estimate?.checks;
+    if (!checks) return null;
+    const box = el('section', { class: 'am-section', 'aria-label': 'Diagram against the data' },
+      el('h4', { text: '4. Does the data contradict the diagram?' }),
+      el('p', { class: `summary ${checks.failing ? 'am-bad' : ''}`, text: checks.summary }));
+    const rows = checks.tests.map((t) => {
+      const claim = `${t.x} ⫫ ${t.y}${t.given.length ? ` | ${t.given.join(', ')}` : ''}`;
+      const active = this.flagged && this.flagged.x === t.x && this.flagged.y === t.y;
+      const verdict = t.verdict === 'fails'
+        ? el('button', { type: 'button', class: `am-flag${active ? ' chip-active' : ''}`, text: active ? 'shown' : 'fails: show', title: 'Show these variables on the diagram', on: { click: () => this.flag(t) } })
+        : el('span', { text: t.verdict });
+      return el('tr', { class: t.verdict === 'fails' ? 'am-fail' : '', title: t.test || t.reason || '' },
+        el('td', { class: 'am-claim', text: claim }), el('td', { text: String(t.n) }),
+        el('td', { text: t.statistic === null ? '–' : fmt(t.statistic) }), el('td', { text: fmt(t.p_adjusted) }), el('td', {}, verdict));
+    });
+    box.append(table(['independence claimed', 'n', 'statistic', 'adjusted p', 'verdict'], rows, 'am-checks'));
+    if (checks.total > checks.listed) box.append(el('p', { class: 'note', text: `${checks.listed} of ${checks.total} implications listed.` }));
+    return box;
+  }
+
+  renderStability() {
+    if (!this.data) return null;
+    const box = el('section', { class: 'am-section', 'aria-label': 'Stability' }, el('h4', { text: '5. Stability checks' }),
+      el('div', { class: 'row end' }, this.button('Run the checks', 'stability', () => this.run('stability'))));
+    const s = this.results.stability;
+    if (!s) return box;
+    const rows = s.checks.map((c) => el('tr', { class: c.verdict === 'warns' ? 'am-fail' : '', title: c.detail },
+      el('th', { text: c.label }), el('td', { text: fmt(c.original) }), el('td', { text: fmt(c.new) }),
+      el('td', { text: fmt(c.p_value, 2) }), el('td', { text: c.verdict })));
+    box.append(table(['check', 'original', 'new', 'p', 'verdict'], rows, 'am-stability'));
+    box.append(el('p', { class: 'note', text: 'Resampled rows and split halves should centre on the original; with a shuffled treatment the estimate should vanish; an invented common cause should not move it.' }));
+    return box;
+  }
+
+  renderSensitivity() {
+    if (!this.data) return null;
+    const box = el('section', { class: 'am-section', 'aria-label': 'Sensitivity' }, el('h4', { text: '6. Sensitivity to unmeasured confounding' }),
+      el('div', { class: 'row end' }, this.button('Analyse sensitivity', 'sensitivity', () => this.run('sensitivity'))));
+    const s = this.results.sensitivity;
+    if (!s) return box;
+    if (s.regression) {
+      const g = s.regression;
+      box.append(el('dl', { class: 'am-facts' },
+        el('dt', { text: 'robustness value' }), el('dd', { text: pct(g.robustness_value) }),
+        el('dt', { text: `… to lose significance (α = ${g.alpha})` }), el('dd', { text: pct(g.robustness_value_alpha) }),
+        el('dt', { text: 'partial R² of the treatment' }), el('dd', { text: pct(g.partial_r2_treatment) })),
+      el('p', { class: 'summary', text: g.reading }),
+      chart(s.charts?.contour, 'Curves: the estimate after removing the bias of a confounder of the given strengths (Cinelli & Hazlett 2020). Diamonds: a confounder k times as strong as a measured variable.'));
+    }
+    if (s.e_value) {
+      box.append(el('p', { class: 'summary', text: `E-value ${fmt(s.e_value.e_value)} (interval: ${fmt(s.e_value.e_value_ci)}). ${s.e_value.reading || ''}${s.e_value.approximation ? ` (${s.e_value.approximation}.)` : ''}` }));
+    }
+    if (s.note) box.append(el('p', { class: 'note', text: s.note }));
+    return box;
+  }
+
+  renderDisputes() {
+    if (!this.data) return null;
+    const box = el('section', { class: 'am-section', 'aria-label': 'Disputed arrows' }, el('h4', { text: '7. Does the disagreement change the answer?' }),
+      el('div', { class: 'row end' }, this.button('Estimate under each version', 'disputes', () => this.run('disputes'))));
+    const d = this.results.disputes;
+    if (!d) return box;
+    if (!d.rows.length || !d.disputed.length) {
+      box.append(el('p', { class: 'note', text: 'No arrow is in dispute: there is one version of the diagram.' }));
+    }
+    if (d.charts?.forest) box.append(chart(d.charts.forest, 'One row per way of settling the disputed arrows; the shaded row is the diagram as drawn.'));
+    return box;
+  }
+}
+
+function loadStyles() {
+  if (document.querySelector('link[data-estimation-styles]')) return;
+  document.head.append(el('link', { rel: 'stylesheet', href: '/static/estimation.css', dataset: { estimationStyles: '1' } }));
+}
+
+/**
+ * Entry point called by the session page.
+ * @param {HTMLElement} element the panel to fill
+ * @param {{sessionId: string, token: string, member: any, state: () => any, api: Function, highlight?: Function}} context
+ */
+export function mountEstimation(element, context) {
+  loadStyles();
+  element.classList.add('am-estimation');
+  const panel = new EstimationPanel(element, context);
+  const widen = () => document.body.classList.toggle('am-estimation-open', !element.hidden);
+  new MutationObserver(() => { widen(); if (!element.hidden) panel.load(); }).observe(element, { attributes: true, attributeFilter: ['hidden'] });
+  widen();
+  panel.load();
+  return panel;
+}

@@ -1,0 +1,137 @@
+"""A real workshop in two chromium windows: facilitator and participant.
+
+Screenshots land in tests/artifacts/ (git-ignored).
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import httpx
+import pytest
+
+CHROMIUM = "/usr/bin/chromium"
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
+ROOT = Path(__file__).resolve().parent.parent
+
+pytestmark = [
+    pytest.mark.browser,
+    pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian chromium is not installed"),
+]
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture
+def server(tmp_path):
+    port = _free_port()
+    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "b.sqlite3"),
+               ARROWMOOT_DATA_DIR=str(tmp_path), ARROWMOOT_DEMO_SESSION="0")
+    code = ("import uvicorn; from app.main import create_app; "
+            f"uvicorn.run(create_app(), host='127.0.0.1', port={port}, log_level='warning')")
+    proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
+                            stdout=subprocess.PIPE, stderr=subprocess.STDOUT)
+    base = f"http://127.0.0.1:{port}"
+    for _ in range(100):
+        try:
+            httpx.get(base + "/", timeout=0.5)
+            break
+        except httpx.HTTPError:
+            time.sleep(0.1)
+    else:
+        proc.kill()
+        raise RuntimeError("server did not start: " + proc.stdout.read().decode())
+    yield base
+    proc.terminate()
+    proc.wait(timeout=10)
+
+
+def _watch(page, errors):
+    page.on("console", lambda m: errors.append(f"console {m.type}: {m.text}") if m.type == "error" else None)
+    page.on("pageerror", lambda e: errors.append(f"page error: {e}"))
+
+
+def _node_centre(page, name):
+    box = page.locator(f'.node[data-name="{name}"] .shape').first.bounding_box()
+    return box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+
+
+def test_two_people_draw_and_vote(server):
+    from playwright.sync_api import expect, sync_playwright
+
+    ARTIFACTS.mkdir(exist_ok=True)
+    errors: list[str] = []
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        fac_ctx = browser.new_context(viewport={"width": 1440, "height": 900})
+        par_ctx = browser.new_context(viewport={"width": 1280, "height": 820})
+        fac, par = fac_ctx.new_page(), par_ctx.new_page()
+        _watch(fac, errors)
+        _watch(par, errors)
+
+        # The facilitator opens a session with its question.
+        fac.goto(server + "/")
+        fac.fill("input[name=title]", "Does the cycle-to-work scheme cut sick days?")
+        fac.fill("input[name=name]", "Dana")
+        fac.fill("input[name=treatment]", "scheme")
+        fac.fill("input[name=outcome]", "sick_days")
+        fac.click("#create-form button[type=submit]")
+        expect(fac.locator(".live-status")).to_have_text("Live")
+        expect(fac.locator('.node[data-name="scheme"]')).to_be_visible()
+        assert "#key=" not in fac.url  # the key is dropped from the address bar
+        summary_before = fac.locator(".summary").inner_text()
+        code = fac.locator(".join-code strong").inner_text()
+
+        # A participant joins with the code.
+        par.goto(server + f"/join/{code}")
+        par.fill("input[name=name]", "Sam")
+        par.click("#join-form button[type=submit]")
+        expect(par.locator(".live-status")).to_have_text("Live")
+        expect(fac.locator(".who")).to_contain_text("2 online")
+
+        # Sam draws scheme -> sick_days by Shift-dragging.
+        sx, sy = _node_centre(par, "scheme")
+        tx, ty = _node_centre(par, "sick_days")
+        par.keyboard.down("Shift")
+        par.mouse.move(sx, sy)
+        par.mouse.down()
+        par.mouse.move((sx + tx) / 2, (sy + ty) / 2, steps=5)
+        par.mouse.move(tx, ty, steps=5)
+        par.mouse.up()
+        par.keyboard.up("Shift")
+
+        edge = '.edge[data-key=\'["scheme","sick_days"]\']'
+        expect(fac.locator(edge)).to_have_count(1)
+        expect(fac.locator(".summary")).not_to_have_text(summary_before)
+        fac.get_by_role("tab", name="Implications").click()
+        expect(fac.locator(".paths")).to_contain_text("scheme → sick_days")
+
+        # Sam votes on the arrow; the tally shows on both screens.
+        box = par.locator(edge + " .edge-hit").bounding_box()
+        par.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
+        expect(par.locator(".panel h3").first).to_have_text("Arrow scheme → sick_days")
+        par.fill(".vote-reason", "cycling builds fitness")
+        par.click(".vote-agree")
+        expect(par.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
+        expect(fac.locator(edge + " .edge-badge")).to_contain_text("+1 −0 ?0")
+        fbox = fac.locator(edge + " .edge-hit").bounding_box()
+        fac.mouse.click(fbox["x"] + fbox["width"] / 2, fbox["y"] + fbox["height"] / 2)
+        expect(fac.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
+        expect(fac.locator(".votes")).to_contain_text("cycling builds fitness")
+
+        fac.wait_for_timeout(300)
+        fac.screenshot(path=str(ARTIFACTS / "workshop_facilitator.png"))
+        par.screenshot(path=str(ARTIFACTS / "workshop_participant.png"))
+        browser.close()
+    assert errors == []
