@@ -51,12 +51,11 @@ from dataclasses import dataclass
 from itertools import combinations
 from typing import Iterable
 
-import networkx as nx
-
 from .dag import Dag
 from .document import Diagram
 from .errors import BadQuestion
-from .paths import arrow_text, describe_path, iter_paths, relevant_nodes
+from .implications import implied_independencies
+from .paths import arrow_text, colliders_on_paths, describe_path, iter_paths, relevant_nodes
 from .separators import iter_minimal_separators, moral_graph, reduce_graph
 
 __all__ = [
@@ -77,12 +76,11 @@ __all__ = [
 ]
 
 PATH_CAP = 500
-PATH_STEP_BUDGET = 40_000
+PATH_STEP_BUDGET = 5_000
 SET_CAP = 100
 FRONT_DOOR_CAP = 20
 FRONT_DOOR_CHECK_BUDGET = 2_000
 IMPLICATION_CAP = 1_000
-IMPLICATION_SEARCH_BUDGET = 400
 INSTRUMENT_EXHAUSTIVE_LIMIT = 10
 INSTRUMENT_SEPARATOR_TRIES = 8
 
@@ -376,49 +374,13 @@ def _find_instrument_conditioning(q: Question, z: str, allowed: list[str]) -> se
 # ---------------------------------------------------------------------------
 
 def implications(diagram: Diagram, cap: int = IMPLICATION_CAP) -> tuple[list[dict], int, bool]:
-    """One conditional independence per non-adjacent pair of observed variables.
+    """One conditional independence per separable non-adjacent measured pair.
 
-    Without unmeasured parents this is the local Markov basis: the later
-    variable of the pair (in a topological order) is independent of the
-    earlier one given its own parents (Pearl 2009, Theorem 1.2.7). When those
-    parents include an unmeasured variable, a minimal separator over measured
-    variables is searched for (networkx ``find_minimal_d_separator``); a pair
-    with none implies nothing testable. Returns (listed, total, incomplete).
+    See :mod:`app.graph.implications` (ordered local Markov statements of the
+    latent projection). Returns (listed, total, capped).
     """
-    dag = Dag.from_diagram(diagram)
-    observed = diagram.observed
-    order = [v for v in dag.topological_order() if v in observed]
-    position = {v: i for i, v in enumerate(order)}
-    listed: list[dict] = []
-    total = 0
-    searches = 0
-    incomplete = False
-    graph = None
-    for later in order:
-        parents = dag.parents[later]
-        hidden_parent = bool(parents - observed)
-        for earlier in order[: position[later]]:
-            if earlier in parents or later in dag.parents[earlier]:
-                continue
-            if not hidden_parent:
-                given = sorted(parents)
-            else:
-                if searches >= IMPLICATION_SEARCH_BUDGET:
-                    incomplete = True
-                    continue
-                searches += 1
-                if graph is None:
-                    graph = diagram.to_networkx()
-                sep = nx.find_minimal_d_separator(graph, {earlier}, {later}, restricted=set(observed))
-                if sep is None:
-                    continue
-                given = sorted(sep)
-            total += 1
-            if len(listed) < cap:
-                x, y = sorted((earlier, later))
-                listed.append({"x": x, "y": y, "given": given})
-    listed.sort(key=lambda i: (i["x"], i["y"]))
-    return listed, total, incomplete
+    listed, total = implied_independencies(Dag.from_diagram(diagram), diagram.observed, cap)
+    return listed, total, total > len(listed)
 
 
 # ---------------------------------------------------------------------------
@@ -490,48 +452,8 @@ def roles(q: Question, instrument_names: Iterable[str] = ()) -> dict[str, list[s
 
 
 def _colliders_on_paths(q: Question) -> set[str]:
-    """Nodes that are a collider on at least one proper X-Y path.
-
-    c is one iff two of its parents reach X and Y by vertex-disjoint paths
-    avoiding c (and inner nodes outside X u Y): a unit-capacity flow of 2.
-    """
-    dag = q.dag
-    relevant = relevant_nodes(dag, set(q.xs), set(q.ys))
-    out = set()
-    for c in relevant:
-        parents = [p for p in dag.parents[c] if p in relevant or p in q.xs or p in q.ys]
-        if len(parents) < 2:
-            continue
-        if _two_disjoint_paths(dag, q, c, parents, relevant):
-            out.add(c)
-    return out
-
-
-def _two_disjoint_paths(dag: Dag, q: Question, c: str, parents: list[str], relevant: set[str]) -> bool:
-    # Split each inner node v into (v, in) -> (v, out) with capacity 1.
-    flow = nx.DiGraph()
-    src, sink = "\0s", "\0t"
-    inner = relevant - {c}
-    for v in inner:
-        flow.add_edge((v, 0), (v, 1), capacity=1)
-        for w in dag.neighbours(v):
-            if w in inner:
-                flow.add_edge((v, 1), (w, 0), capacity=1)
-            elif w in q.xs:
-                flow.add_edge((v, 1), "\0X", capacity=1)
-            elif w in q.ys:
-                flow.add_edge((v, 1), "\0Y", capacity=1)
-    flow.add_edge("\0X", sink, capacity=1)
-    flow.add_edge("\0Y", sink, capacity=1)
-    for p in parents:
-        if p in q.xs:
-            flow.add_edge(src, "\0X", capacity=1)
-        elif p in q.ys:
-            flow.add_edge(src, "\0Y", capacity=1)
-        else:
-            flow.add_edge(src, (p, 0), capacity=1)
-    value = nx.maximum_flow_value(flow, src, sink)
-    return value >= 2
+    relevant = relevant_nodes(q.dag, set(q.xs), set(q.ys))
+    return colliders_on_paths(q.dag, set(q.xs), set(q.ys), relevant)
 
 
 # ---------------------------------------------------------------------------

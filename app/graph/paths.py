@@ -169,11 +169,12 @@ def iter_paths(
     stops when it reaches zero.
     """
     only_open = given is not None
+    neighbours = {v: sorted(dag.neighbours(v)) for v in allowed | xs}
     for x in sorted(xs):
         # Each frame: (node, arrived_with_head_at_node, iterator over neighbours)
         path = [x]
         on_path = {x}
-        stack = [(x, False, iter(sorted(dag.neighbours(x))))]
+        stack = [(x, False, iter(neighbours[x]))]
         while stack:
             if budget[0] <= 0:
                 return
@@ -201,4 +202,107 @@ def iter_paths(
                 continue
             path.append(w)
             on_path.add(w)
-            stack.append((w, head_at_w, iter(sorted(dag.neighbours(w)))))
+            stack.append((w, head_at_w, iter(neighbours[w])))
+
+
+def colliders_on_paths(dag: Dag, xs: set[str], ys: set[str], relevant: set[str]) -> set[str]:
+    """Inner nodes that are a collider on at least one proper path from xs to ys.
+
+    c qualifies iff two of its parents reach the treatment side and the
+    outcome side by vertex-disjoint paths that avoid c (inner nodes outside
+    xs and ys), i.e. a unit-capacity flow of 2 in the node-split skeleton
+    (Menger's theorem). Each candidate costs two breadth-first augmentations,
+    O(n + m), on one residual network built once.
+    """
+    inner = sorted(relevant)
+    index = {v: i for i, v in enumerate(inner)}
+    k = len(inner)
+    side_x, side_y, sink, source = 2 * k, 2 * k + 1, 2 * k + 2, 2 * k + 3
+    adjacency: list[list[int]] = [[] for _ in range(2 * k + 4)]
+    capacity: dict[tuple[int, int], int] = {}
+
+    def arc(a: int, b: int) -> None:
+        if (a, b) not in capacity:
+            adjacency[a].append(b)
+            adjacency[b].append(a)
+            capacity.setdefault((b, a), 0)
+        capacity[(a, b)] = 1
+
+    for v in inner:
+        i = index[v]
+        arc(2 * i, 2 * i + 1)
+        for w in dag.neighbours(v):
+            if w in index:
+                arc(2 * i + 1, 2 * index[w])
+            elif w in xs:
+                arc(2 * i + 1, side_x)
+            elif w in ys:
+                arc(2 * i + 1, side_y)
+    arc(side_x, sink)
+    arc(side_y, sink)
+
+    far = 4 * k + 8
+    distance = [far] * (2 * k + 4)
+    distance[sink] = 0
+    frontier = [sink]
+    while frontier:  # breadth-first over reversed arcs from the sink
+        nxt = []
+        for b in frontier:
+            for a in adjacency[b]:
+                if capacity.get((a, b), 0) > 0 and distance[a] == far:
+                    distance[a] = distance[b] + 1
+                    nxt.append(a)
+        frontier = nxt
+    for a in range(len(adjacency)):
+        adjacency[a].sort(key=lambda v: -distance[v])
+
+    found: set[str] = set()
+    for c in inner:
+        starts = set()
+        for p in dag.parents[c]:
+            if p in index:
+                starts.add(2 * index[p])
+            elif p in xs:
+                starts.add(side_x)
+            elif p in ys:
+                starts.add(side_y)
+        if len(starts) < 2:
+            continue
+        blocked = {2 * index[c], 2 * index[c] + 1}
+        changed: list[tuple[int, int]] = []
+        used_starts: set[int] = set()
+        flow = 0
+        for _ in range(2):
+            # Depth-first, nearest-to-a-side first (distances precomputed once on
+            # the full network), so a path is usually found after a few steps.
+            back: dict[int, int] = {}
+            stack = [(s, source) for s in sorted(starts, key=lambda v: -distance[v])
+                     if s not in used_starts and s not in blocked]
+            reached = False
+            while stack:
+                a, parent = stack.pop()
+                if a in back:
+                    continue
+                back[a] = parent
+                if a == sink:
+                    reached = True
+                    break
+                stack.extend((b, a) for b in adjacency[a]
+                             if b not in back and b not in blocked and capacity[(a, b)] > 0)
+            if not reached:
+                break
+            flow += 1
+            b = sink
+            while back[b] != source:
+                a = back[b]
+                capacity[(a, b)] -= 1
+                capacity[(b, a)] += 1
+                changed.append((a, b))
+                b = a
+            used_starts.add(b)
+        for a, b in changed:
+            capacity[(a, b)] += 1
+            capacity[(b, a)] -= 1
+        if flow >= 2:
+            found.add(c)
+    return found
