@@ -53,6 +53,9 @@ class EstimationPanel {
     this.busy = null;
     this.message = null;
     this.flagged = null;
+    this.choice = { method: 'auto', correction: 'holm' };
+    this.pendingFile = null;
+    this.version = 0;
   }
 
   get base() { return `/api/sessions/${encodeURIComponent(this.context.sessionId)}/estimation`; }
@@ -70,8 +73,10 @@ class EstimationPanel {
   }
 
   async load() {
+    const version = this.version;
     try {
       const data = await this.call('GET');
+      if (version !== this.version) return; // an action answered meanwhile; its result is newer
       this.data = data.data;
       this.variables = data.variables;
       for (const key of Object.keys(this.results)) this.results[key] = data[key];
@@ -82,6 +87,7 @@ class EstimationPanel {
   }
 
   async act(name, work) {
+    this.version += 1;
     this.busy = name;
     this.message = null;
     this.render();
@@ -104,6 +110,7 @@ class EstimationPanel {
       try { body = await response.json(); } catch { body = null; }
       if (!response.ok) throw new ApiError(body, response.status);
       this.data = body.data;
+      this.pendingFile = null;
       for (const key of Object.keys(this.results)) this.results[key] = null;
       this.message = { kind: 'ok', text: `Attached ${file.name}: ${body.data.rows} rows, ${body.data.columns.length} columns.` };
     });
@@ -122,14 +129,13 @@ class EstimationPanel {
   }
 
   options() {
-    const method = this.root.querySelector('select[name="method"]')?.value;
-    const correction = this.root.querySelector('select[name="correction"]')?.value;
-    return { method: method === 'auto' ? null : method, correction: correction || 'holm' };
+    const method = this.choice.method;
+    return { method: method === 'auto' ? null : method, correction: this.choice.correction };
   }
 
   run(kind) {
+    const opts = this.options();
     return this.act(kind, async () => {
-      const opts = this.options();
       const body = kind === 'estimate' ? opts : { method: opts.method };
       const out = await this.call('POST', `/${kind}`, body);
       this.results[kind] = out.result;
@@ -168,9 +174,14 @@ class EstimationPanel {
   renderData() {
     const box = el('section', { class: 'am-section', 'aria-label': 'Data' }, el('h4', { text: '1. Data' }));
     if (this.canEdit) {
-      const input = el('input', { type: 'file', accept: '.csv,.parquet,text/csv', name: 'data-file', 'aria-label': 'Data file (CSV or Parquet)' });
-      box.append(el('div', { class: 'row' }, input,
-        this.button('Attach', 'upload', () => { if (input.files?.[0]) this.upload(input.files[0]); }, true)));
+      const input = el('input', {
+        type: 'file', accept: '.csv,.parquet,text/csv', name: 'data-file', 'aria-label': 'Data file (CSV or Parquet)',
+        on: { change: (e) => { this.pendingFile = e.target.files?.[0] || null; this.render(); } },
+      });
+      const attach = this.button('Attach', 'upload', () => { if (this.pendingFile) this.upload(this.pendingFile); }, true);
+      if (!this.pendingFile) attach.disabled = true;
+      box.append(el('div', { class: 'row' }, input, attach));
+      if (this.pendingFile) box.append(el('p', { class: 'note', text: `Chosen: ${this.pendingFile.name} (${(this.pendingFile.size / 1048576).toFixed(1)} MB)` }));
     }
     if (!this.data) {
       box.append(el('p', { class: 'note', text: 'No data attached yet.' }));
@@ -205,12 +216,12 @@ class EstimationPanel {
   renderEstimate() {
     if (!this.data) return null;
     const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
-    const method = el('select', { name: 'method', 'aria-label': 'Method' }, ...METHODS.map(([v, t]) => el('option', { value: v, text: t })));
-    const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction' },
-      el('option', { value: 'holm', text: 'Holm' }), el('option', { value: 'bh', text: 'Benjamini–Hochberg' }));
+    const method = el('select', { name: 'method', 'aria-label': 'Method', on: { change: (e) => { this.choice.method = e.target.value; } } },
+      ...METHODS.map(([v, t]) => el('option', { value: v, text: t, selected: this.choice.method === v })));
+    const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction', on: { change: (e) => { this.choice.correction = e.target.value; } } },
+      el('option', { value: 'holm', text: 'Holm', selected: this.choice.correction === 'holm' }),
+      el('option', { value: 'bh', text: 'Benjamini–Hochberg', selected: this.choice.correction === 'bh' }));
     const last = this.results.estimate;
-    if (last?.method) method.value = last.method;
-    if (last?.checks?.correction) correction.value = last.checks.correction;
     box.append(el('div', { class: 'row' }, el('label', {}, 'Method', method), el('label', {}, 'Correction', correction)),
       el('div', { class: 'row end' }, this.button('Estimate', 'estimate', () => this.run('estimate'), true)));
     if (!last) return box;
@@ -258,7 +269,7 @@ class EstimationPanel {
       el('h4', { text: '4. Does the data contradict the diagram?' }),
       el('p', { class: `summary ${checks.failing ? 'am-bad' : ''}`, text: checks.summary }));
     const rows = checks.tests.map((t) => {
-      const claim = `${t.x} ⫫ ${t.y}${t.given.length ? ` | ${t.given.join(', ')}` : ''}`;
+      const claim = `${t.x} ⊥ ${t.y}${t.given.length ? ` | ${t.given.join(', ')}` : ''}`;
       const active = this.flagged && this.flagged.x === t.x && this.flagged.y === t.y;
       const verdict = t.verdict === 'fails'
         ? el('button', { type: 'button', class: `am-flag${active ? ' chip-active' : ''}`, text: active ? 'shown' : 'fails: show', title: 'Show these variables on the diagram', on: { click: () => this.flag(t) } })
@@ -339,6 +350,7 @@ export function mountEstimation(element, context) {
   const widen = () => document.body.classList.toggle('am-estimation-open', !element.hidden);
   new MutationObserver(() => { widen(); if (!element.hidden) panel.load(); }).observe(element, { attributes: true, attributeFilter: ['hidden'] });
   widen();
-  panel.load();
+  panel.render();
+  if (!element.hidden) panel.load();
   return panel;
 }

@@ -189,6 +189,10 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
                 alpha: float = 0.05) -> dict:
     mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
     out: dict = {"method": chosen, "regression": None, "e_value": None}
+    if chosen in ("weighting", "doubly-robust"):
+        chosen = out["method"] = "regression"
+        out["note"] = ("the partial R-squared sensitivity is defined for the regression estimate; "
+                       "it is shown for the regression with the same adjustment set")
     if chosen == "regression":
         fit = estimators.regression(design)
         out["regression"] = regression_sensitivity(design, fit, q=q, alpha=alpha)
@@ -198,9 +202,8 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
         fit = estimators.standardization(design)
         out["e_value"] = e_value(fit["risk_ratio"], *fit["risk_ratio_ci"])
     else:
-        fit = _fit(design, chosen)
-        out["note"] = ("the partial R-squared sensitivity applies to the regression estimate; "
-                       "choose method 'regression' to see it")
+        out["note"] = ("the partial R-squared sensitivity and the E-value here apply to adjustment "
+                       f"estimates; the {chosen} estimate relies on other assumptions (see its list)")
     if out["e_value"]:
         ev = out["e_value"]
         out["e_value"]["reading"] = (

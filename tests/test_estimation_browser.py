@@ -1,0 +1,122 @@
+"""The estimation panel in a real browser: upload, estimate, charts, and a
+failing implication shown on the diagram. Screenshots in tests/artifacts/."""
+
+from __future__ import annotations
+
+import json
+import os
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import httpx
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+SAMPLE = ROOT / "sample_data"
+ARTIFACTS = ROOT / "tests" / "artifacts"
+CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+pytestmark = pytest.mark.browser
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture(name="server")
+def fixture_server(tmp_path):
+    port = _free_port()
+    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "db.sqlite3"), ARROWMOOT_DATA_DIR=str(tmp_path / "data"),
+               ARROWMOOT_DEMO_SESSION="0")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--host", "127.0.0.1",
+         "--port", str(port), "--log-level", "warning"],
+        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+    )
+    base = f"http://127.0.0.1:{port}"
+    for _ in range(100):
+        try:
+            httpx.get(base + "/", timeout=0.5)
+            break
+        except httpx.HTTPError:
+            time.sleep(0.1)
+    else:
+        proc.kill()
+        pytest.fail("server did not start: " + proc.stderr.read().decode()[-2000:])
+    yield base
+    proc.terminate()
+    proc.wait(timeout=10)
+
+
+def _prepare_session(base: str) -> tuple[str, str]:
+    doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
+    made = httpx.post(base + "/api/sessions", json={"title": "Cycle-to-work scheme", "name": "Fac", "document": doc}).json()
+    sid, headers = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
+
+    def send(command):
+        r = httpx.post(f"{base}/api/sessions/{sid}/commands", json=command, headers=headers)
+        assert r.status_code == 200, r.text
+
+    # the room forgot that age shapes fitness: the data will contradict that
+    send({"type": "delete_arrow", "from": "age", "to": "fitness"})
+    send({"type": "flag_arrow", "from": "fitness", "to": "scheme", "flag": "disputed"})
+    send({"type": "set_stage", "stage": "agreed"})
+    return sid, made["token"]
+
+
+def test_estimation_panel_shows_results_and_charts(server):
+    from playwright.sync_api import sync_playwright
+
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    sid, token = _prepare_session(server)
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1500, "height": 1000})
+        errors = []
+        page.on("pageerror", lambda exc: errors.append(str(exc)))
+        page.goto(f"{server}/s/{sid}#key={token}")
+        page.click("button[data-tab='estimation']")
+        page.set_input_files("input[name='data-file']", str(SAMPLE / "cycle_to_work.csv"))
+        page.click("button[data-action='upload']")
+        page.wait_for_selector("text=Attached cycle_to_work.csv")
+        assert page.locator("select[data-variable='scheme']").input_value() == "scheme"
+        assert page.locator("select[data-variable='health_consciousness']").input_value() == ""
+
+        page.select_option("select[name='method']", "weighting")
+        page.click("button[data-action='estimate']")
+        page.wait_for_selector(".am-result")
+        page.wait_for_selector("figure svg.am-overlap")
+        headline = page.locator(".am-headline strong").inner_text()
+        assert float(headline) == pytest.approx(-1.6, abs=0.2)
+        assert "not a substitute" in page.locator(".am-caution").inner_text()
+
+        failing = page.locator("tr.am-fail .am-claim")
+        assert failing.count() >= 1
+        assert "age ⊥ fitness" in failing.first.inner_text() or "fitness ⊥ age" in failing.first.inner_text()
+        page.evaluate("window.__flags = []; window.addEventListener('arrowmoot:highlight', (e) => window.__flags.push(e.detail));")
+        page.locator("button.am-flag").first.click()
+        flags = page.evaluate("window.__flags")
+        assert flags and set(flags[0]["nodes"]) == {"age", "fitness"}
+
+        page.click("button[data-action='stability']")
+        page.wait_for_selector("table.am-stability")
+        page.click("button[data-action='sensitivity']")
+        page.wait_for_selector("figure svg.am-contour")
+        page.click("button[data-action='disputes']")
+        page.wait_for_selector("figure svg.am-forest")
+
+        page.screenshot(path=str(ARTIFACTS / "estimation_panel.png"))
+        page.locator("figure:has(svg.am-overlap)").screenshot(path=str(ARTIFACTS / "estimation_overlap.png"))
+        page.locator("figure:has(svg.am-contour)").screenshot(path=str(ARTIFACTS / "estimation_contour.png"))
+        page.locator("figure:has(svg.am-forest)").screenshot(path=str(ARTIFACTS / "estimation_forest.png"))
+        page.locator("section[aria-label='Diagram against the data']").screenshot(path=str(ARTIFACTS / "estimation_checks.png"))
+        forest_rows = page.locator("svg.am-forest .am-point").count()
+        assert forest_rows == 2
+        assert not errors, errors
+        browser.close()
