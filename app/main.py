@@ -42,7 +42,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
         settings.data_dir = Path(data_dir)
 
     store = Store(settings.db_path, data_dir=settings.data_dir)
-    hub = Hub(store)
+    hub = Hub(store, use_processes=settings.analysis_in_process)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):

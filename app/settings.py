@@ -20,6 +20,8 @@ SETTING_HELP = {
     "empty means same origin only.",
     "demo_session": "Create the cycle-to-work demo session when the database has no sessions.",
     "demo_document": "Graph document used for the demo session.",
+    "analysis_in_process": "Run the diagram analysis in a child process (true) so it never slows "
+    "the live updates, or in a thread of the server (false).",
 }
 
 
@@ -46,6 +48,10 @@ class Settings:
         default_factory=lambda: Path(
             _env("demo_document", str(Path(__file__).resolve().parent.parent / "sample_data" / "cycle_to_work.json"))
         )
+    )
+
+    analysis_in_process: bool = field(
+        default_factory=lambda: _env("analysis_in_process", "1") not in ("0", "false", "no")
     )
 
     def __post_init__(self) -> None:

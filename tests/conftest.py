@@ -17,7 +17,7 @@ TOKEN_HEADER = "X-Arrowmoot-Token"
 
 def make_app(tmp_path: Path, *, demo: bool = False):
     settings = Settings(db_path=tmp_path / "arrowmoot.sqlite3", data_dir=tmp_path / "data",
-                        demo_session=demo)
+                        demo_session=demo, analysis_in_process=False)
     return create_app(settings=settings)
 
 

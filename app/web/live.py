@@ -13,17 +13,20 @@ from __future__ import annotations
 
 import asyncio
 import hashlib
+import os
+import sys
 import hmac
 import json
 import logging
 import secrets
 import time
+from pathlib import Path
 from typing import Any
 
 from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
 from ..store import Store
-from ..workshop.commands import add_member, apply_command, new_workshop
-from ..workshop.disputes import analyse_workshop, analysis_key
+from ..workshop.commands import add_member, apply_command, new_workshop, public_event
+from ..workshop.disputes import analyse_workshop, analysis_key, slim_for_push
 from ..workshop.models import Member, Workshop
 from ..workshop.views import public_state
 
@@ -34,6 +37,58 @@ log = logging.getLogger("arrowmoot")
 TOKEN_HEADER = "X-Arrowmoot-Token"
 JOIN_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"
 SEND_QUEUE_LIMIT = 200
+
+
+ROOT = Path(__file__).resolve().parent.parent.parent
+WORKER_TIMEOUT = 60.0
+
+
+class AnalysisWorker:
+    """A child process (``python -m app.web.worker``) that runs the analysis, one state at a time."""
+
+    def __init__(self):
+        self.process: asyncio.subprocess.Process | None = None
+        self.lock: asyncio.Lock | None = None
+
+    async def _ensure(self) -> asyncio.subprocess.Process:
+        if self.process is None or self.process.returncode is not None:
+            env = dict(os.environ)
+            env["PYTHONPATH"] = os.pathsep.join(p for p in (str(ROOT), env.get("PYTHONPATH")) if p)
+            self.process = await asyncio.create_subprocess_exec(
+                sys.executable, "-m", "app.web.worker", cwd=str(ROOT), env=env,
+                stdin=asyncio.subprocess.PIPE, stdout=asyncio.subprocess.PIPE, limit=64 * 1024 * 1024,
+            )
+        return self.process
+
+    async def analyse(self, state: dict) -> dict:
+        if self.lock is None:
+            self.lock = asyncio.Lock()
+        async with self.lock:
+            proc = await self._ensure()
+            try:
+                proc.stdin.write((json.dumps(state) + "\n").encode())
+                await proc.stdin.drain()
+                line = await asyncio.wait_for(proc.stdout.readline(), WORKER_TIMEOUT)
+            except (asyncio.TimeoutError, ConnectionError, BrokenPipeError):
+                await self.stop()
+                raise RuntimeError("the analysis worker did not answer")
+            if not line:
+                await self.stop()
+                raise RuntimeError("the analysis worker stopped")
+            answer = json.loads(line)
+            if not answer["ok"]:
+                raise RuntimeError(answer["error"])
+            return answer["result"]
+
+    async def stop(self) -> None:
+        proc, self.process = self.process, None
+        if proc is None or proc.returncode is not None:
+            return
+        try:
+            proc.stdin.close()
+            await asyncio.wait_for(proc.wait(), 3)
+        except Exception:
+            proc.kill()
 
 
 def hash_token(token: str) -> str:
@@ -88,8 +143,9 @@ class Connection:
 
 
 class Hub:
-    def __init__(self, store: Store):
+    def __init__(self, store: Store, *, use_processes: bool = True):
         self.store = store
+        self.worker = AnalysisWorker() if use_processes else None
         self._workshops: dict[str, Workshop] = {}
         self._locks: dict[str, asyncio.Lock] = {}
         self._connections: dict[str, set[Connection]] = {}
@@ -185,7 +241,7 @@ class Hub:
                 w.members, w.revision = backup[0], backup[1]
                 del w.log[backup[2]:]
                 raise
-        await self._publish(w)
+        await self._publish(w, event)
         return w, member, token
 
     # -- changes ------------------------------------------------------------------
@@ -207,7 +263,7 @@ class Hub:
                     e["undone"] = f
                 self._workshops[session_id] = fresh
                 raise
-        await self._publish(w)
+        await self._publish(w, event)
         return event
 
     async def note(self, session_id: str, member: Member | None, summary: str,
@@ -229,21 +285,31 @@ class Hub:
                 w.revision -= 1
                 w.log.pop()
                 raise
-        await self._publish(w)
+        await self._publish(w, event)
         return event
 
     # -- pushing ---------------------------------------------------------------------
     def state_message(self, w: Workshop, **extra: Any) -> str:
-        return json.dumps({"type": "state", "revision": w.revision, "state": public_state(w),
-                           **extra})
+        return json.dumps({"type": "state", "revision": w.revision,
+                           "state": public_state(w, compact=True), **extra})
 
-    async def _publish(self, w: Workshop) -> None:
+    async def _publish(self, w: Workshop, event: dict[str, Any] | None = None) -> None:
         conns = self._connections.get(w.id)
         if conns:
-            text = self.state_message(w)
+            shown = public_event(event) if event else None
+            if event and event.get("kind") == "move_variable":
+                # A move changes one position: send just that; a client that is
+                # not at the previous revision asks for a resync.
+                var = w.variable(event["command"]["name"])
+                text = json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
+                                   "moves": [{"name": var["name"], "x": var["x"], "y": var["y"]}],
+                                   "event": shown})
+            else:
+                text = self.state_message(w, event=shown)
             for conn in list(conns):
                 conn.send(text)
-        self.schedule_analysis(w.id)
+        if not (event and event.get("kind") == "move_variable"):
+            self.schedule_analysis(w.id)  # positions do not change the analysis
 
     def _broadcast(self, session_id: str, text: str) -> None:
         for conn in list(self._connections.get(session_id, ())):
@@ -312,10 +378,11 @@ class Hub:
             w = self.workshop(session_id)
             cached = self.cached_analysis(session_id)
             if cached is None:
-                snapshot = Workshop.from_state(w.to_state())
+                state = w.to_state()
+                snapshot = Workshop.from_state(state)
                 key = analysis_key(snapshot)
                 try:
-                    result = await asyncio.to_thread(analyse_workshop, snapshot)
+                    result = await self._compute(state, snapshot)
                 except Exception:
                     log.exception("analysis failed for a session")
                     result = {"analysis": None, "problem": "the analysis failed on this diagram",
@@ -325,9 +392,21 @@ class Hub:
                 if snapshot.revision == self.workshop(session_id).revision:
                     self._analysis[session_id] = payload
                 cached = self.cached_analysis(session_id) or payload
-            self._broadcast(session_id, json.dumps({"type": "analysis", **cached}))
+            self._broadcast(session_id, self.analysis_message(cached))
             if session_id not in self._analysis_dirty:
                 return
+
+    async def _compute(self, state: dict, snapshot: Workshop) -> dict:
+        if self.worker is not None:
+            try:
+                return await self.worker.analyse(state)
+            except Exception as exc:
+                log.warning("analysis worker failed (%s); analysing in a thread instead", exc)
+        return await asyncio.to_thread(analyse_workshop, snapshot)
+
+    def analysis_message(self, payload: dict[str, Any]) -> str:
+        return json.dumps({"type": "analysis", "revision": payload.get("revision"),
+                           **slim_for_push(payload)})
 
     async def wait_analysis(self, session_id: str) -> None:
         task = self._analysis_tasks.get(session_id)
@@ -345,6 +424,8 @@ class Hub:
                 await conn.stop()
         for task in self._analysis_tasks.values():
             task.cancel()
+        if self.worker is not None:
+            await self.worker.stop()
 
     # -- helpers for others -------------------------------------------------------------
     def require_stage(self, session_id: str, *stages: str) -> Workshop:

@@ -87,7 +87,7 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
     try:
         cached = hub.cached_analysis(session_id)
         if cached is not None:
-            conn.send(json.dumps({"type": "analysis", **cached}))
+            conn.send(hub.analysis_message(cached))
         else:
             hub.schedule_analysis(session_id)
         while True:

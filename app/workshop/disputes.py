@@ -38,7 +38,7 @@ from ..graph.errors import DiagramError
 from .models import Workshop
 from .voting import disputed_items
 
-__all__ = ["FastDag", "analysis_key", "analyse_workshop", "dispute_report", "absent_arrow_report",
+__all__ = ["FastDag", "analysis_key", "analyse_workshop", "analyse_state", "slim_for_push", "dispute_report", "absent_arrow_report",
            "EXACT_LIMIT", "SAMPLE_SEED"]
 
 EXACT_LIMIT = 4096
@@ -419,6 +419,49 @@ def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
         note += " Only the listed minimal sets were checked."
     return {"arrows": found[:ABSENT_LIST_CAP], "capped": capped, "total": len(found),
             "checked": checked, "note": note}
+
+
+PUSH_PATHS_PER_KIND = 60
+PUSH_IMPLICATIONS = 60
+PUSH_ABSENT = 40
+
+
+def slim_for_push(payload: dict[str, Any]) -> dict[str, Any]:
+    """The analysis as pushed to every client: long lists cut to what the panel shows.
+
+    Totals stay, and ``"trimmed": true`` tells the page the full lists are at
+    GET /api/sessions/{id}/analysis.
+    """
+    analysis = payload.get("analysis")
+    out = dict(payload)
+    trimmed = False
+    if analysis:
+        analysis = dict(analysis)
+        paths = analysis.get("paths", [])
+        kinds: dict[tuple, int] = {}
+        kept = []
+        for p in paths:
+            kind = (p.get("causal"), p.get("open"))
+            kinds[kind] = kinds.get(kind, 0) + 1
+            if kinds[kind] <= PUSH_PATHS_PER_KIND:
+                kept.append(p)
+        if len(kept) < len(paths):
+            analysis["paths"], analysis["paths_capped"], trimmed = kept, True, True
+        imps = analysis.get("implications", [])
+        if len(imps) > PUSH_IMPLICATIONS:
+            analysis["implications"], analysis["implications_capped"], trimmed = imps[:PUSH_IMPLICATIONS], True, True
+        out["analysis"] = analysis
+    absent = payload.get("absent")
+    if absent and len(absent.get("arrows", [])) > PUSH_ABSENT:
+        out["absent"] = dict(absent, arrows=absent["arrows"][:PUSH_ABSENT], capped=True)
+        trimmed = True
+    out["trimmed"] = trimmed
+    return out
+
+
+def analyse_state(state: dict[str, Any]) -> dict[str, Any]:
+    """:func:`analyse_workshop` for a workshop's stored state (for a worker process)."""
+    return analyse_workshop(Workshop.from_state(state))
 
 
 def analyse_workshop(w: Workshop) -> dict[str, Any]:

@@ -14,30 +14,43 @@ __all__ = ["public_state", "history"]
 RECENT_EVENTS = 30
 
 
-def public_state(w: Workshop) -> dict[str, Any]:
+def public_state(w: Workshop, *, compact: bool = False) -> dict[str, Any]:
+    """The state every member sees.
+
+    ``compact`` (used for live pushes) leaves out the recent log and lists only
+    arrows that carry votes or a mark; the page fills in the rest from the
+    document (``"arrows_compact": true`` says so).
+    """
     arrows = []
     for a, b in w.arrows:
         key = arrow_key(a, b)
         subject = f"arrow:{key}"
+        flag = w.arrow_flags.get(key)
+        votes = w.votes.get(subject)
+        if compact and not flag and not votes:
+            continue
         arrows.append({
-            "from": a, "to": b, "flag": w.arrow_flags.get(key),
-            "tally": tally(w.votes.get(subject)), "votes": votes_public(w, subject),
+            "from": a, "to": b, "flag": flag,
+            "tally": tally(votes), "votes": votes_public(w, subject),
         })
     disputes = disputed_items(w)
-    return {
+    out = {
         "session": {"id": w.id, "title": w.title, "join_code": w.join_code,
                     "created": w.created, "stage": w.stage,
                     "stage_title": STAGE_TITLES[w.stage], "stages": list(STAGES)},
         "revision": w.revision,
         "document": w.document(),
         "arrows": arrows,
+        "arrows_compact": compact,
         "members": [m.to_public() for m in w.members.values()],
         "proposals": [proposal_public(w, p) for p in sorted(w.proposals.values(), key=lambda p: p.id)],
         "disputed": disputes,
         "can_undo": any(e.get("undoable") and not e.get("undone") and e.get("before")
                         for e in w.log),
-        "recent": [public_event(e) for e in w.log[-RECENT_EVENTS:]],
     }
+    if not compact:
+        out["recent"] = [public_event(e) for e in w.log[-RECENT_EVENTS:]]
+    return out
 
 
 def history(w: Workshop) -> list[dict[str, Any]]:

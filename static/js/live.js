@@ -57,7 +57,14 @@ export class LiveSession {
       case 'state':
         if (this.revision === null || message.revision >= this.revision) {
           this.revision = message.revision;
-          this.handlers.onState(message.state, message.missed || []);
+          this.handlers.onState(message.state, message.missed || [], message.event || null);
+        }
+        break;
+      case 'patch':
+        if (this.revision !== null && message.base === this.revision && this.handlers.onPatch(message)) {
+          this.revision = message.revision;
+        } else if (this.revision === null || message.revision > this.revision) {
+          this.socket?.send(JSON.stringify({ type: 'resync', revision: this.revision }));
         }
         break;
       case 'analysis':

@@ -319,7 +319,7 @@ export function renderHistory(app) {
   if (app.isFacilitator) {
     box.append(el('div', { class: 'row' }, el('button', { type: 'button', text: 'Undo the last change', disabled: !app.state.can_undo || ['agreed', 'estimation'].includes(app.state.session.stage), on: { click: () => app.send({ type: 'undo' }) } })));
   }
-  const events = app.history || app.state.recent;
+  const events = app.history || app.state.recent || [];
   if (!app.history) box.append(el('p', { class: 'muted', text: 'Latest changes (loading the full log)…' }));
   box.append(el('ol', { class: 'history', reversed: true }, events.slice().reverse().map((e) => el('li', { class: e.undone ? 'undone' : '' },
     el('span', { class: 'when', text: clock(e.at) }), ' ',

@@ -36,12 +36,13 @@ class SessionApp {
       return;
     }
     this.me = data.member;
-    this.state = data.state;
+    this.state = normalizeState(data.state);
     this.online = new Set(data.online);
     saveKey(this.sessionId, this.token, this.state.session.title, this.me.role);
     this.buildLayout();
     this.live = new LiveSession(this.sessionId, this.token, {
-      onState: (state, missed) => this.receiveState(state, missed),
+      onState: (state, missed, event) => this.receiveState(state, missed, event),
+      onPatch: (message) => this.receivePatch(message),
       onAnalysis: (message) => { this.analysis = message; this.refreshAdjustedPaths(); this.refreshPanel(); this.renderCanvas(); },
       onPresence: (online) => { this.online = new Set(online); if (this.tab === 'people') this.refreshPanel(); this.renderBar(); },
       onStatus: (status) => { this.status = status; this.renderStatus(); },
@@ -54,13 +55,34 @@ class SessionApp {
     this.mountEstimation();
   }
 
-  receiveState(state, missed) {
+  receivePatch(message) {
+    if (!this.state) return false;
+    for (const move of message.moves) {
+      const v = this.state.document.variables.find((x) => x.name === move.name);
+      if (!v) return false;
+      v.x = move.x; v.y = move.y;
+    }
+    this.state.revision = message.revision;
+    if (this.analysis && this.analysis.revision === message.base) this.analysis.revision = message.revision;
+    this.noteEvent(message.event);
+    this.renderCanvas();
+    return true;
+  }
+
+  noteEvent(event) {
+    if (!event || !this.history) return;
+    if (event.kind === 'undo') { this.loadHistory(); return; }
+    if (!this.history.some((e) => e.revision === event.revision)) this.history.push(event);
+    if (this.tab === 'history') this.refreshPanel();
+  }
+
+  receiveState(state, missed, event) {
     const before = this.state;
-    this.state = state;
+    this.state = normalizeState(state);
     const me = state.members.find((m) => m.id === this.me.id);
     if (me) this.me = me;
     if (missed.length > 1 && before) toast(`Caught up on ${missed.length} changes made while you were away.`);
-    if (this.history) this.loadHistory();
+    if (missed.length) { if (this.history) this.loadHistory(); } else this.noteEvent(event);
     this.checkSelection();
     this.renderAll();
   }
@@ -370,6 +392,16 @@ class SessionApp {
       console.warn('estimation panel not loaded', err);
     }
   }
+}
+
+/** Live pushes list only arrows with votes or marks; fill in the rest from the document. */
+function normalizeState(state) {
+  if (!state.arrows_compact) return state;
+  const notes = new Map(state.arrows.map((a) => [JSON.stringify([a.from, a.to]), a]));
+  state.arrows = state.document.arrows.map((a) => notes.get(JSON.stringify([a.from, a.to]))
+    || { from: a.from, to: a.to, flag: null, tally: { agree: 0, disagree: 0, unsure: 0, total: 0 }, votes: [] });
+  state.arrows_compact = false;
+  return state;
 }
 
 function statusText(status) {
