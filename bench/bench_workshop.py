@@ -203,6 +203,8 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--no-deflate", action="store_true",
                         help="clients decline per-message compression")
+    parser.add_argument("--server-deflate", action="store_true",
+                        help="leave uvicorn's per-message compression on (its default)")
     args = parser.parse_args()
     global COMPRESSION
     if args.no_deflate:
@@ -212,8 +214,9 @@ def main() -> None:
         port = free_port()
         env = dict(os.environ, ARROWMOOT_DB_PATH=str(Path(tmp) / "bench.sqlite3"),
                    ARROWMOOT_DATA_DIR=tmp, ARROWMOOT_DEMO_SESSION="0")
+        deflate = "" if args.server_deflate else ", ws_per_message_deflate=False"
         code = ("import uvicorn; from app.main import create_app; "
-                f"uvicorn.run(create_app(), host='127.0.0.1', port={port}, log_level='warning')")
+                f"uvicorn.run(create_app(), host='127.0.0.1', port={port}, log_level='warning'{deflate})")
         server = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env)
         base = f"http://127.0.0.1:{port}"
         try:
@@ -230,8 +233,9 @@ def main() -> None:
     disputes = dispute_timing(args.seed)
 
     s, a = result["state_ms"], result["analysis_ms"]
+    compression = "on" if args.server_deflate and not args.no_deflate else "off"
     print(f"### Fan-out: {args.clients} WebSocket clients, 50 variables / {result['arrows']} arrows, "
-          f"{len(s)} edits (half moves, half arrow edits)\n")
+          f"{len(s)} edits (half moves, half arrow edits), per-message compression {compression}\n")
     print("| measure | p50 ms | p95 ms | max ms | target |")
     print("|---|---|---|---|---|")
     print(f"| edit sent → every client has the new state | {percentile(s, .5):.1f} | {percentile(s, .95):.1f} | {max(s):.1f} | p95 < 50 |")

@@ -37,6 +37,7 @@ log = logging.getLogger("arrowmoot")
 TOKEN_HEADER = "X-Arrowmoot-Token"
 JOIN_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"
 SEND_QUEUE_LIMIT = 200
+MEMBER_EVENTS = frozenset({"create", "join", "grant_role"})
 
 
 ROOT = Path(__file__).resolve().parent.parent.parent
@@ -289,9 +290,13 @@ class Hub:
         return event
 
     # -- pushing ---------------------------------------------------------------------
-    def state_message(self, w: Workshop, **extra: Any) -> str:
-        return json.dumps({"type": "state", "revision": w.revision,
-                           "state": public_state(w, compact=True), **extra})
+    def state_message(self, w: Workshop, *, members: bool = True, **extra: Any) -> str:
+        """A full state push; ``members=False`` leaves out the member list (the page keeps
+        the one it has), which only changes when someone joins or gets a role."""
+        state = public_state(w, compact=True)
+        if not members:
+            del state["members"]
+        return json.dumps({"type": "state", "revision": w.revision, "state": state, **extra})
 
     async def _publish(self, w: Workshop, event: dict[str, Any] | None = None) -> None:
         conns = self._connections.get(w.id)
@@ -305,7 +310,8 @@ class Hub:
                                    "moves": [{"name": var["name"], "x": var["x"], "y": var["y"]}],
                                    "event": shown})
             else:
-                text = self.state_message(w, event=shown)
+                text = self.state_message(w, event=shown,
+                                          members=event is None or event.get("kind") in MEMBER_EVENTS)
             for conn in list(conns):
                 conn.send(text)
         if not (event and event.get("kind") == "move_variable"):

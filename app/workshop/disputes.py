@@ -60,7 +60,36 @@ class FastDag:
             self.parents[b].add(a)
             self.children[a].add(b)
 
+    @classmethod
+    def derived(cls, base: "FastDag", added: Iterable[tuple[str, str]]) -> "FastDag":
+        """``base`` plus some arrows, sharing every adjacency set the new arrows leave alone."""
+        dag = cls.__new__(cls)
+        dag.nodes = base.nodes
+        dag.parents = dict(base.parents)
+        dag.children = dict(base.children)
+        for a, b in added:
+            dag.parents[b] = dag.parents[b] | {a}
+            dag.children[a] = dag.children[a] | {b}
+        return dag
+
+    def is_acyclic(self) -> bool:
+        """Kahn's algorithm: every node can be removed once its parents are gone."""
+        indegree = {n: len(p) for n, p in self.parents.items()}
+        ready = [n for n, d in indegree.items() if d == 0]
+        removed = 0
+        children = self.children
+        while ready:
+            n = ready.pop()
+            removed += 1
+            for c in children[n]:
+                indegree[c] -= 1
+                if indegree[c] == 0:
+                    ready.append(c)
+        return removed == len(indegree)
+
     def find_cycle(self) -> list[str] | None:
+        if self.is_acyclic():
+            return None
         colour = {n: 0 for n in self.nodes}
         for root in self.nodes:
             if colour[root]:
@@ -107,42 +136,53 @@ class FastDag:
         up = self._closure(ys - xs, self.parents, avoid=xs)
         return down & up
 
-    def d_separated(self, xs: set[str], ys: set[str], zs: set[str],
-                    removed: set[tuple[str, str]] = frozenset()) -> bool:
-        """Is X d-separated from Y given Z, ignoring the arrows in ``removed``?
+    def without(self, removed: Iterable[tuple[str, str]]) -> "FastDag":
+        """This graph minus some arrows (adjacency sets shared where untouched)."""
+        dag = FastDag.__new__(FastDag)
+        dag.nodes = self.nodes
+        dag.parents = dict(self.parents)
+        dag.children = dict(self.children)
+        for a, b in removed:
+            dag.parents[b] = dag.parents[b] - {a}
+            dag.children[a] = dag.children[a] - {b}
+        return dag
+
+    def d_separated(self, xs: set[str], ys: set[str], zs: set[str]) -> bool:
+        """Is X d-separated from Y given Z?
 
         The reachability ("Bayes-ball") search of Koller & Friedman (2009),
-        Algorithm 3.1, over (node, direction) states.
+        Algorithm 3.1: a trail may enter a node from a child (moving up) or
+        from a parent (moving down); Y is d-connected if the search reaches it.
         """
         an_z = self.ancestors(zs)
-        visited: set[tuple[str, bool]] = set()
-        # direction True: arrived from a child (moving up); False: from a parent (moving down)
-        todo = [(x, True) for x in xs]
-        while todo:
-            node, up = todo.pop()
-            if (node, up) in visited:
-                continue
-            visited.add((node, up))
-            if node in ys and node not in zs:
-                return False
+        parents, children = self.parents, self.children
+        seen_up: set[str] = set()
+        seen_down: set[str] = set()
+        up = [x for x in xs]     # nodes entered from a child
+        down: list[str] = []     # nodes entered from a parent
+        while up or down:
             if up:
+                node = up.pop()
+                if node in seen_up:
+                    continue
+                seen_up.add(node)
                 if node in zs:
                     continue
-                for p in self.parents[node]:
-                    if (p, node) not in removed:
-                        todo.append((p, True))
-                for c in self.children[node]:
-                    if (node, c) not in removed:
-                        todo.append((c, False))
+                if node in ys:
+                    return False
+                up.extend(parents[node])
+                down.extend(children[node])
             else:
+                node = down.pop()
+                if node in seen_down:
+                    continue
+                seen_down.add(node)
                 if node not in zs:
-                    for c in self.children[node]:
-                        if (node, c) not in removed:
-                            todo.append((c, False))
+                    if node in ys:
+                        return False
+                    down.extend(children[node])
                 if node in an_z:
-                    for p in self.parents[node]:
-                        if (p, node) not in removed:
-                            todo.append((p, True))
+                    up.extend(parents[node])
         return True
 
 
@@ -153,13 +193,14 @@ class _Question:
         self.dag, self.xs, self.ys = dag, xs, ys
         self.cn = dag.causal_nodes(xs, ys)
         self.forb = dag.descendants(self.cn) | xs
-        self.removed = {(x, c) for x in xs for c in dag.children[x] if c in self.cn}
+        removed = [(x, c) for x in xs for c in dag.children[x] if c in self.cn]
+        self.back_door = dag.without(removed)  # the proper back-door graph
         self.observed = observed
 
     def is_valid(self, zs: set[str]) -> bool:
         if zs & self.forb or not zs <= self.observed:
             return False
-        return self.dag.d_separated(self.xs, self.ys, zs, self.removed)
+        return self.back_door.d_separated(self.xs, self.ys, zs)
 
     def canonical(self) -> set[str]:
         return (self.dag.ancestors(self.xs | self.ys) & self.observed) - self.xs - self.ys - self.forb
@@ -297,10 +338,11 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
     acyclic_graphs: list[tuple[FastDag, _Question]] = []
     started = time.perf_counter()
     engine_time = 0.0
+    fixed_dag = FastDag(names, fixed)
     for combo in combos:
         choice = [items[i]["options"][k] for i, k in enumerate(combo)]
-        edges, _ = build(choice)
-        dag = FastDag(names, edges)
+        added = [e for option in choice for e in _option_edges(option)]
+        dag = FastDag.derived(fixed_dag, added)
         cycle = dag.find_cycle()
         if cycle:
             cycle_count += 1
@@ -318,7 +360,7 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
         identified = None
         if engine_time < OTHER_STRATEGY_BUDGET_S:
             t0 = time.perf_counter()
-            status, value = engine(edges)
+            status, value = engine(fixed + added)
             engine_time += time.perf_counter() - t0
             if status == "ok":
                 identified = value[0]

@@ -78,6 +78,7 @@ class SessionApp {
 
   receiveState(state, missed, event) {
     const before = this.state;
+    if (!state.members && before) state.members = before.members;  // unchanged, so not sent
     this.state = normalizeState(state);
     const me = state.members.find((m) => m.id === this.me.id);
     if (me) this.me = me;
