@@ -74,7 +74,38 @@ def layered_positions(names: Iterable[str], arrows: Iterable[tuple[str, str]]) -
         offset = (tallest - len(row)) * ROW_GAP / 2
         for i, n in enumerate(row):
             positions[n] = (MARGIN + li * LAYER_GAP, MARGIN + offset + i * ROW_GAP)
-    return positions
+    _clear_long_arrows(positions, rows, layer, arrows)
+    top = min(y for _, y in positions.values())
+    return {n: (x, round(y - top + MARGIN, 1)) for n, (x, y) in positions.items()}
+
+
+def _clear_long_arrows(positions, rows, layer, arrows, rounds: int = 4) -> None:
+    """Nudge variables off straight arrows that skip over their layer, keeping each
+    layer's order and spacing (drawn arrows are straight, so a box sitting on one
+    would hide it)."""
+    long_arrows = [(a, b) for a, b in arrows if a in layer and b in layer and layer[b] - layer[a] >= 2]
+    if not long_arrows:
+        return
+    for _ in range(rounds):
+        moved = False
+        for a, b in long_arrows:
+            (xa, ya), (xb, yb) = positions[a], positions[b]
+            for li in range(layer[a] + 1, layer[b]):
+                for n in rows[li]:
+                    x, y = positions[n]
+                    line_y = ya + (yb - ya) * (x - xa) / (xb - xa)
+                    if abs(y - line_y) < 34:
+                        step = ROW_GAP * 0.6 if y >= line_y else -ROW_GAP * 0.6
+                        positions[n] = (x, y + step)
+                        moved = True
+        for row in rows:
+            ordered = sorted(row, key=lambda n: positions[n][1])
+            for prev, n in zip(ordered, ordered[1:]):
+                x, y = positions[n]
+                if y - positions[prev][1] < ROW_GAP * 0.8:
+                    positions[n] = (x, positions[prev][1] + ROW_GAP * 0.8)
+        if not moved:
+            return
 
 
 def free_spot(variables: list[dict]) -> tuple[float, float]:

@@ -127,7 +127,7 @@ export class Canvas {
     let minX = Infinity, minY = Infinity, maxX = -Infinity, maxY = -Infinity;
     for (const v of variables) {
       const p = this.position(v);
-      const half = this.boxWidth(v) / 2;
+      const half = this.boxWidth(v) / 2 + 40;  // room for the role caption under the box
       minX = Math.min(minX, p.x - half); maxX = Math.max(maxX, p.x + half);
       minY = Math.min(minY, p.y - BOX_HEIGHT); maxY = Math.max(maxY, p.y + BOX_HEIGHT);
     }
