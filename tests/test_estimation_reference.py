@@ -257,3 +257,23 @@ def test_multiple_testing_reproduces_benjamini_hochberg_example():
     assert holm == pytest.approx(list(multipletests(BH_EXAMPLE, method="holm")[1]))
     # Holm's adjusted p-value for the smallest: 15 x 0.0001 (Holm 1979)
     assert holm[0] == pytest.approx(0.0015)
+
+
+@pytest.mark.parametrize("frame_name", ["demo", "longley"])
+def test_chunked_regression_path_matches_statsmodels(frame_name, demo_frame):
+    """The memory-bounded path used above LARGE_ROWS rows gives statsmodels' OLS/HC1 numbers."""
+    from app.estimation.estimators import _chunked_hc1
+
+    if frame_name == "demo":
+        frame, treatment, others = demo_frame, "scheme", ["age", "commute_km", "department", "fitness"]
+        outcome = "sick_days"
+    else:
+        frame = sm.datasets.longley.load_pandas().data
+        treatment, others, outcome = "UNEMP", [c for c in LONGLEY_CERTIFIED if c != "UNEMP"], "TOTEMP"
+    design = build_design(frame, _identity(frame), treatment=treatment, outcome=outcome, adjust=others)
+    direct = sm.OLS(design.y, design.x).fit(cov_type="HC1")
+    ours = _chunked_hc1(design.x, design.y, chunk=7)
+    assert ours["estimate"] == pytest.approx(direct.params[1], rel=1e-8)
+    assert ours["std_error"] == pytest.approx(direct.bse[1], rel=1e-6)
+    assert ours["ci"] == pytest.approx(list(direct.conf_int()[1]), rel=1e-6)
+    assert ours["p_value"] == pytest.approx(direct.pvalues[1], rel=1e-6, abs=1e-300)

@@ -129,10 +129,22 @@ class Design:
     y_binary: bool = False
     n_dropped: int = 0
     rows: np.ndarray | None = None  # positions of the used rows in the table
+    _x: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def n(self) -> int:
         return int(self.y.shape[0])
+
+    @property
+    def x(self) -> np.ndarray:
+        """The regression matrix [1, treatment, covariates] (built once)."""
+        if self._x is None:
+            x = np.empty((self.n, 2 + self.covariates.shape[1]))
+            x[:, 0] = 1.0
+            x[:, 1] = self.t
+            x[:, 2:] = self.covariates
+            self._x = x
+        return self._x
 
     def take(self, index: np.ndarray) -> "Design":
         """The design restricted to (or resampled at) the given row positions."""
@@ -141,17 +153,17 @@ class Design:
             y=self.y[index], t=self.t[index], covariates=self.covariates[index],
             instruments=self.instruments[index] if self.instruments.size else self.instruments,
             mediators=self.mediators[index] if self.mediators.size else self.mediators,
-            rows=None,
+            rows=None, _x=None,
         )
 
     def with_treatment(self, t: np.ndarray) -> "Design":
-        return replace(self, t=t)
+        return replace(self, t=t, _x=None)
 
     def with_covariate(self, values: np.ndarray, name: str) -> "Design":
         cov = np.column_stack([self.covariates, values]) if self.covariates.size else values[:, None]
         groups = dict(self.groups)
         groups[name] = [cov.shape[1] - 1]
-        return replace(self, covariates=cov, covariate_names=self.covariate_names + [name], groups=groups)
+        return replace(self, covariates=cov, covariate_names=self.covariate_names + [name], groups=groups, _x=None)
 
 
 def _all_missing(frame: pd.DataFrame, var: str, col: str) -> None:
@@ -163,62 +175,84 @@ def _all_missing(frame: pd.DataFrame, var: str, col: str) -> None:
         )
 
 
-def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[pd.Series, str, str | None]:
-    """A column that must be a number (or 0/1). Returns (values, kind, level coded 1)."""
-    if pd.api.types.is_bool_dtype(series):
-        return series.astype(float), "binary", "True"
-    if pd.api.types.is_numeric_dtype(series):
-        values = series.astype(float)
-        if not np.isfinite(values.dropna()).all():
+def _lines(series: pd.Series, bad: list) -> str:
+    rows = np.flatnonzero(series.isin(bad).to_numpy())[:3]
+    return ", ".join(str(int(i) + 2) for i in rows)  # +1 for the header, +1 for counting from 1
+
+
+def _text_levels(series: pd.Series) -> tuple[pd.Series, list[str]]:
+    """The column as stripped text (missing stays missing) and its sorted distinct values."""
+    raw = [u for u in series.dropna().unique()]
+    stripped = {u: str(u).strip() for u in raw}
+    if any(k != v for k, v in stripped.items()) or not all(isinstance(u, str) for u in raw):
+        series = series.map(stripped, na_action="ignore")
+    return series, sorted(set(stripped.values()))
+
+
+def _numbers(series: pd.Series) -> np.ndarray:
+    return series.to_numpy(dtype=float, na_value=np.nan)
+
+
+def _is_binary(values: np.ndarray) -> bool:
+    present = values[~np.isnan(values)]
+    zero, one = present == 0, present == 1
+    return bool(zero.any() and one.any() and (zero | one).all())
+
+
+def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.ndarray, str, str | None]:
+    """A column that must be a number (or 0/1). Returns (values with NaN, kind, level coded 1)."""
+    if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
+        values = _numbers(series.astype(float) if pd.api.types.is_bool_dtype(series) else series)
+        if np.isinf(values).any():
             raise NonNumericColumn(f"column {col!r} ({role} {var!r}) holds infinite values", item=col)
-        kind = "binary" if set(np.unique(values.dropna())) <= {0.0, 1.0} and values.nunique() == 2 else "number"
+        kind = "binary" if _is_binary(values) else "number"
         return values, kind, ("1" if kind == "binary" else None)
-    present = series.dropna().astype(str).str.strip()
-    levels = sorted(present.unique())
+    text, levels = _text_levels(series)
     if len(levels) == 2:
         low, high = levels
         if low.lower() in TRUE_WORDS and high.lower() not in TRUE_WORDS:
             low, high = high, low
-        return series.map({low: 0.0, high: 1.0}, na_action="ignore").astype(float), "binary", high
-    parsed = pd.to_numeric(present, errors="coerce")
-    bad = present[parsed.isna()]
-    shown = ", ".join(repr(v) for v in bad.unique()[:3])
-    where = ", ".join(str(int(i) + 2) for i in bad.index[:3])
+        return _numbers(text.map({low: 0.0, high: 1.0}, na_action="ignore").astype(float)), "binary", high
+    parsed = pd.to_numeric(pd.Series(levels, dtype=object), errors="coerce")
+    bad = [lv for lv, num in zip(levels, parsed) if pd.isna(num)]
+    shown = ", ".join(repr(v) for v in bad[:3])
     raise NonNumericColumn(
         f"column {col!r} ({role} {var!r}) must hold numbers, but has text such as {shown} "
-        f"(file lines {where}); fix those cells or map another column",
+        f"(file lines {_lines(text, bad)}); fix those cells or map another column",
         item=col,
     )
 
 
-def _as_covariate(series: pd.Series, var: str, col: str):
-    """Numbers stay; text with few levels becomes indicator columns."""
+def _as_covariate(series: pd.Series, var: str, col: str) -> tuple[np.ndarray, list[str], str, str | None]:
+    """Numbers stay; text with few levels becomes indicator columns (first level omitted)."""
     if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
         values, kind, _ = _as_number(series, var, col, "adjustment variable")
-        return values.to_frame(col), kind, None
-    present = series.dropna().astype(str).str.strip()
-    parsed = pd.to_numeric(present, errors="coerce")
-    if parsed.notna().mean() >= 0.5:
-        bad = present[parsed.isna()]
-        shown = ", ".join(repr(v) for v in bad.unique()[:3])
-        where = ", ".join(str(int(i) + 2) for i in bad.index[:3])
+        return values[:, None], [col], kind, None
+    text, levels = _text_levels(series)
+    parsed = pd.to_numeric(pd.Series(levels, dtype=object), errors="coerce")
+    if len(levels) > 2 and parsed.notna().mean() >= 0.5:
+        bad = [lv for lv, num in zip(levels, parsed) if pd.isna(num)]
+        shown = ", ".join(repr(v) for v in bad[:3])
         raise NonNumericColumn(
             f"column {col!r} (adjustment variable {var!r}) is mostly numbers but has text such as "
-            f"{shown} (file lines {where}); fix those cells or map another column",
+            f"{shown} (file lines {_lines(text, bad)}); fix those cells or map another column",
             item=col,
         )
-    levels = sorted(present.unique())
     if len(levels) > MAX_LEVELS:
         raise NonNumericColumn(
             f"column {col!r} (adjustment variable {var!r}) has {len(levels)} different text values; "
             f"at most {MAX_LEVELS} categories can be adjusted for (is it an identifier?)",
             item=col,
         )
-    text = series.astype("object").where(series.isna(), series.astype(str).str.strip())
-    dummies = pd.get_dummies(pd.Categorical(text, categories=levels), prefix=col, prefix_sep="=", dtype=float)
-    dummies.index = series.index
-    dummies[series.isna().to_numpy()] = np.nan
-    return dummies.iloc[:, 1:], "categorical", levels[0]
+    found, uniques = pd.factorize(text)
+    order = {lv: i for i, lv in enumerate(levels)}
+    lookup = np.array([order[str(u)] for u in uniques] + [-1])
+    codes = lookup[found]  # factorize marks missing as -1, which indexes the trailing -1
+    block = np.empty((len(codes), len(levels) - 1))
+    for j in range(1, len(levels)):
+        block[:, j - 1] = codes == j
+    block[codes < 0] = np.nan
+    return block, [f"{col}={lv}" for lv in levels[1:]], "categorical", levels[0]
 
 
 def build_design(
@@ -239,38 +273,59 @@ def build_design(
             raise BadMapping(f"variable {var!r} is needed for this estimate but has no column", item=var)
         _all_missing(frame, var, mapping[var])
 
-    parts: list[pd.DataFrame] = []
     columns: dict[str, Column] = {}
 
-    def number(var: str, role: str) -> str:
+    def number(var: str, role: str) -> np.ndarray:
         col = mapping[var]
         values, kind, level = _as_number(frame[col], var, col, role)
-        key = f"{role}:{var}"
-        parts.append(values.rename(key).to_frame())
-        columns[var] = Column(var, col, kind, (key,), treated_level=level if kind == "binary" else None)
-        return key
+        columns[var] = Column(var, col, kind, (f"{role}:{var}",), treated_level=level if kind == "binary" else None)
+        return values
 
-    t_key = number(treatment, "treatment")
-    y_key = number(outcome, "outcome")
-    z_keys = [number(v, "instrument") for v in instruments]
-    m_keys = [number(v, "mediator") for v in mediators]
+    # Text covariates become indicator blocks first (their width is needed); numeric
+    # columns are written straight into the one regression matrix, so the peak memory
+    # is that matrix plus one column.
     cov_names: list[str] = []
-    groups_by_var: dict[str, list[str]] = {}
+    groups: dict[str, list[int]] = {}
+    pending: list[tuple[str, np.ndarray | None]] = []
     for var in adjust:
         col = mapping[var]
-        block, kind, reference = _as_covariate(frame[col], var, col)
-        block = block.copy()
-        block.columns = [str(c) for c in block.columns]
-        parts.append(block)
-        cov_names.extend(block.columns)
-        groups_by_var[var] = list(block.columns)
-        columns[var] = Column(var, col, kind, tuple(block.columns), reference_level=reference)
+        series = frame[col]
+        if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
+            names, kind, reference, block = [col], None, None, None
+        else:
+            block, names, kind, reference = _as_covariate(series, var, col)
+        groups[var] = list(range(len(cov_names), len(cov_names) + len(names)))
+        cov_names.extend(names)
+        pending.append((var, block))
+        if kind is not None:
+            columns[var] = Column(var, col, kind, tuple(names), reference_level=reference)
 
-    data = pd.concat(parts, axis=1) if len(parts) > 1 else parts[0]
-    complete = data.notna().all(axis=1).to_numpy()
-    n_total = len(data)
-    used = data[complete] if not complete.all() else data
-    n_used = len(used)
+    n_total = len(frame)
+    x = np.empty((n_total, 2 + len(cov_names)))
+    x[:, 0] = 1.0
+    x[:, 1] = number(treatment, "treatment")
+    y = number(outcome, "outcome")
+    for var, block in pending:
+        at = 2 + groups[var][0]
+        if block is None:
+            col = mapping[var]
+            values, kind, _ = _as_number(frame[col], var, col, "adjustment variable")
+            x[:, at] = values
+            columns[var] = Column(var, col, kind, (col,))
+        else:
+            x[:, at:at + block.shape[1]] = block
+    del pending
+    z = np.column_stack([number(v, "instrument") for v in instruments]) if instruments else np.empty((n_total, 0))
+    m = np.column_stack([number(v, "mediator") for v in mediators]) if mediators else np.empty((n_total, 0))
+
+    complete = ~np.isnan(y)
+    for j in range(1, x.shape[1]):
+        complete &= ~np.isnan(x[:, j])
+    if z.size:
+        complete &= ~np.isnan(z).any(axis=1)
+    if m.size:
+        complete &= ~np.isnan(m).any(axis=1)
+    n_used = int(complete.sum())
     n_dropped = n_total - n_used
     if n_used < min_rows:
         raise TooFewRows(
@@ -278,9 +333,12 @@ def build_design(
             f"({n_dropped} of {n_total} dropped for missing values); too few to estimate",
             item={"n_used": n_used, "n_dropped": n_dropped},
         )
-
-    t = used[t_key].to_numpy(dtype=float)
-    y = used[y_key].to_numpy(dtype=float)
+    everything = n_dropped == 0
+    if not everything:
+        x, y = x[complete], y[complete]
+        z = z[complete] if z.size else np.empty((n_used, 0))
+        m = m[complete] if m.size else np.empty((n_used, 0))
+    t = x[:, 1]
     if np.all(t == t[0]):
         raise ConstantColumn(
             f"the treatment column {mapping[treatment]!r} takes the single value {t[0]:g} on the "
@@ -293,53 +351,54 @@ def build_design(
             f"{n_used} rows used; there is nothing to explain",
             item=mapping[outcome],
         )
-    cov = used[cov_names].to_numpy(dtype=float) if cov_names else np.empty((n_used, 0))
-    groups = {var: [cov_names.index(c) for c in names] for var, names in groups_by_var.items()}
-    z = used[z_keys].to_numpy(dtype=float) if z_keys else np.empty((n_used, 0))
-    m = used[m_keys].to_numpy(dtype=float) if m_keys else np.empty((n_used, 0))
+    cov = x[:, 2:]
 
-    labelled = [(f"treatment {mapping[treatment]!r}", t)] + [
-        (f"column {c!r}", cov[:, i]) for i, c in enumerate(cov_names)
-    ]
-    _refuse_collinear(labelled, columns, groups_by_var)
+    _refuse_collinear([f"treatment {mapping[treatment]!r}"] + [f"column {c!r}" for c in cov_names], t, cov)
     if m.size:
-        _refuse_collinear(
-            [(f"treatment {mapping[treatment]!r}", t)]
-            + [(f"mediator {mapping[v]!r}", m[:, i]) for i, v in enumerate(mediators)],
-            columns, {},
-        )
+        _refuse_collinear([f"treatment {mapping[treatment]!r}"] + [f"mediator {mapping[v]!r}" for v in mediators],
+                          t, m)
     return Design(
         y=y, t=t, covariates=cov, covariate_names=cov_names, groups=groups,
         instruments=z, instrument_names=list(instruments), mediators=m, mediator_names=list(mediators),
         columns=columns, t_binary=columns[treatment].kind == "binary",
         y_binary=columns[outcome].kind == "binary", n_dropped=n_dropped,
-        rows=np.flatnonzero(complete),
+        rows=None if everything else np.flatnonzero(complete), _x=x,
     )
 
 
-def _refuse_collinear(labelled: list[tuple[str, np.ndarray]], columns, groups_by_var) -> None:
-    """Refuse constant or perfectly collinear columns (an intercept is always present)."""
-    if len(labelled) < 1:
-        return
-    matrix = np.column_stack([v for _, v in labelled])
-    centred = matrix - matrix.mean(axis=0)
-    scale = np.sqrt((centred ** 2).mean(axis=0))
-    for (label, _), s in zip(labelled, scale):
-        if s == 0:
+def _refuse_collinear(labels: list[str], first: np.ndarray, rest: np.ndarray, chunk: int = 65536) -> None:
+    """Refuse constant or perfectly collinear columns (an intercept is always present).
+
+    Works on the correlation matrix of [first, rest], accumulated over row
+    chunks so no full-size centred copy is made.
+    """
+    n, k = len(first), 1 + rest.shape[1]
+    means = np.concatenate([[first.mean()], rest.mean(axis=0)]) if rest.size else np.array([first.mean()])
+    gram = np.zeros((k, k))
+    for start in range(0, n, chunk):
+        block = np.empty((min(chunk, n - start), k))
+        block[:, 0] = first[start:start + chunk]
+        if rest.size:
+            block[:, 1:] = rest[start:start + chunk]
+        block -= means
+        gram += block.T @ block
+    scale = np.sqrt(np.diag(gram) / n)
+    spread = np.sqrt(np.abs(means) ** 2 + 1.0)
+    for label, s, sp in zip(labels, scale, spread):
+        if s <= 1e-12 * sp:
             raise CollinearColumns(
                 f"{label} takes a single value on the rows used, so it cannot be adjusted for; "
                 "remove it from the mapping or choose another adjustment set",
                 item=label,
             )
-    if len(labelled) < 2:
+    if k < 2:
         return
-    z = centred / scale
-    gram = (z.T @ z) / len(z)
-    values, vectors = np.linalg.eigh(gram)
-    if values[0] > 1e-9 * len(labelled):
+    corr = gram / n / np.outer(scale, scale)
+    values, vectors = np.linalg.eigh(corr)
+    if values[0] > 1e-9 * k:
         return
     weights = np.abs(vectors[:, 0])
-    involved = [labelled[i][0] for i in np.flatnonzero(weights > 1e-3 * weights.max())]
+    involved = [labels[i] for i in np.flatnonzero(weights > 1e-3 * weights.max())]
     raise CollinearColumns(
         "perfectly collinear columns: " + ", ".join(involved)
         + " (one is an exact linear combination of the others, with the intercept); "

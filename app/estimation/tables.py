@@ -16,6 +16,8 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.csv as pa_csv
 
 from .errors import EmptyTable, FileTooLarge, NotATable, TooFewRows
 
@@ -23,6 +25,8 @@ __all__ = ["DEFAULT_MAX_BYTES", "load_table", "read_table_bytes", "profile_table
 
 DEFAULT_MAX_BYTES = 500 * 1024 * 1024
 PARQUET_MAGIC = b"PAR1"
+_STRINGS = {pa.string(): pd.StringDtype("pyarrow", na_value=np.nan),
+            pa.large_string(): pd.StringDtype("pyarrow", na_value=np.nan)}
 
 
 def _human(size: int) -> str:
@@ -107,13 +111,19 @@ def _refuse_duplicate_header(head: bytes, shown: str) -> None:
 
 
 def _read_csv(source, shown: str) -> pd.DataFrame:
+    # pyarrow reads in parallel; converting with split_blocks + self_destruct hands
+    # numeric buffers to pandas without a second copy (peak memory ~ one table)
     try:
-        return pd.read_csv(source, engine="pyarrow")
-    except pd.errors.EmptyDataError:
-        raise EmptyTable(f"{shown} is empty") from None
-    except Exception as exc:  # pyarrow raises its own ArrowInvalid and friends
+        table = pa_csv.read_csv(source)
+    except pa.ArrowInvalid as exc:
+        text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        if "Empty CSV file" in text:
+            raise EmptyTable(f"{shown} is empty") from None
+        raise NotATable(f"{shown} could not be read as a CSV table: {text}") from None
+    except Exception as exc:
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise NotATable(f"{shown} could not be read as a CSV table: {text}") from None
+    return table.to_pandas(split_blocks=True, self_destruct=True, types_mapper=_STRINGS.get)
 
 
 def _read_parquet(source, shown: str) -> pd.DataFrame:

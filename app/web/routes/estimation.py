@@ -118,6 +118,8 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
         if old.name != stored:
             old.unlink(missing_ok=True)
     os.replace(partial, folder / stored)
+    stat = (folder / stored).stat()
+    _CACHE[access.session_id] = ((str(folder / stored), stat.st_mtime_ns, stat.st_size), frame)
     diagram = access.diagram()
     previous = (access.get_attachment(DATA_KEY) or {}).get("mapping") or {}
     mapping = propose_mapping(diagram.names, frame.columns)
@@ -183,7 +185,10 @@ async def create_estimate(access: AnalystDep, body: Any = Body(None)) -> dict:
     correction = (body or {}).get("correction", "holm")
     if correction not in ("holm", "bh", "none"):
         raise BadRequest("'correction' must be holm, bh or none", code="invalid_field")
-    result = await _run(access, service.estimate, correction=correction, **opts)
+    checks = (body or {}).get("checks", True)
+    if not isinstance(checks, bool):
+        raise BadRequest("'checks' must be true or false", code="invalid_field")
+    result = await _run(access, service.estimate, correction=correction, checks=checks, **opts)
     chart = {}
     overlap = result["details"].get("overlap")
     if overlap:
