@@ -75,9 +75,9 @@ __all__ = [
     "list_paths",
 ]
 
-PATH_CAP = 500
-PATH_STEP_BUDGET = 5_000
-SET_CAP = 100
+PATH_CAP = 200
+PATH_STEP_BUDGET = 2_000
+SET_CAP = 50
 FRONT_DOOR_CAP = 20
 FRONT_DOOR_CHECK_BUDGET = 2_000
 IMPLICATION_CAP = 1_000
@@ -123,6 +123,15 @@ class Question:
         forb = frozenset(dag.descendants(cn) | xset)
         pbd = dag.without_edges((x, w) for x in xset for w in dag.children[x] if w in cn)
         return cls(diagram, dag, xset, yset, diagram.observed, cn, forb, pbd)
+
+    @property
+    def relevant(self) -> set[str]:
+        """Inner nodes on at least one proper treatment-outcome path (computed once)."""
+        cached = self.__dict__.get("_relevant")
+        if cached is None:
+            cached = relevant_nodes(self.dag, set(self.xs), set(self.ys))
+            self.__dict__["_relevant"] = cached
+        return cached
 
     def name_set(self, names: Iterable[str]) -> str:
         names = sorted(names)
@@ -391,7 +400,7 @@ def list_paths(q: Question, given: Iterable[str] = (), cap: int = PATH_CAP) -> t
     """Proper paths from X to Y, open ones first; (listed, counted, capped)."""
     given = set(given)
     opened = q.dag.ancestors(given)
-    allowed = relevant_nodes(q.dag, set(q.xs), set(q.ys))
+    allowed = q.relevant
     seen: set[tuple[str, ...]] = set()
     reports = []
     # First the open paths (pruned search), so the ones that matter are listed.
@@ -414,13 +423,23 @@ def list_paths(q: Question, given: Iterable[str] = (), cap: int = PATH_CAP) -> t
     return [r.to_json(q.dag) for r in reports], count, capped or count > cap
 
 
-def roles(q: Question, instrument_names: Iterable[str] = ()) -> dict[str, list[str]]:
+def roles(
+    q: Question, instrument_names: Iterable[str] = (), paths: Iterable[dict] = ()
+) -> dict[str, list[str]]:
+    """Each variable's roles for this question. ``paths`` (as from :func:`list_paths`)
+    only saves work: colliders seen on them need no further search."""
     dag = q.dag
     an_x = dag.ancestors(q.xs)
     an_y_not_via_x = dag.ancestors(q.ys, avoid=q.xs)
     de_x = dag.descendants(q.xs)
     de_y = dag.descendants(q.ys)
-    colliders = _colliders_on_paths(q)
+    seen = set()
+    for path in paths:
+        nodes = path["nodes"]
+        for i in range(1, len(nodes) - 1):
+            if nodes[i] in dag.children[nodes[i - 1]] and nodes[i] in dag.children[nodes[i + 1]]:
+                seen.add(nodes[i])
+    colliders = _colliders_on_paths(q, seen)
     instruments_ = set(instrument_names)
     out: dict[str, list[str]] = {}
     for v in sorted(dag.nodes):
@@ -451,9 +470,8 @@ def roles(q: Question, instrument_names: Iterable[str] = ()) -> dict[str, list[s
     return out
 
 
-def _colliders_on_paths(q: Question) -> set[str]:
-    relevant = relevant_nodes(q.dag, set(q.xs), set(q.ys))
-    return colliders_on_paths(q.dag, set(q.xs), set(q.ys), relevant)
+def _colliders_on_paths(q: Question, known: set[str]) -> set[str]:
+    return colliders_on_paths(q.dag, set(q.xs), set(q.ys), q.relevant, known)
 
 
 # ---------------------------------------------------------------------------
@@ -515,7 +533,7 @@ def analyze(
     out["implications"] = listed
     out["implications_total"] = imp_total
     out["implications_capped"] = incomplete or imp_total > len(listed)
-    out["roles"] = roles(q, (i["instrument"] for i in out["instruments"]))
+    out["roles"] = roles(q, (i["instrument"] for i in out["instruments"]), paths)
     out["causal_path_exists"] = bool(q.cn)
     out["summary"] = _summary(q, out)
     return out

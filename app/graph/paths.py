@@ -205,7 +205,9 @@ def iter_paths(
             stack.append((w, head_at_w, iter(neighbours[w])))
 
 
-def colliders_on_paths(dag: Dag, xs: set[str], ys: set[str], relevant: set[str]) -> set[str]:
+def colliders_on_paths(
+    dag: Dag, xs: set[str], ys: set[str], relevant: set[str], known: set[str] = frozenset()
+) -> set[str]:
     """Inner nodes that are a collider on at least one proper path from xs to ys.
 
     c qualifies iff two of its parents reach the treatment side and the
@@ -256,8 +258,10 @@ def colliders_on_paths(dag: Dag, xs: set[str], ys: set[str], relevant: set[str])
     for a in range(len(adjacency)):
         adjacency[a].sort(key=lambda v: -distance[v])
 
-    found: set[str] = set()
+    found: set[str] = set(known) & relevant
     for c in inner:
+        if c in found:
+            continue
         starts = set()
         for p in dag.parents[c]:
             if p in index:
