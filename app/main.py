@@ -17,6 +17,7 @@ from .errors import install_error_handlers
 from .settings import Settings
 from .store import Store
 from .web import pages, ws
+from .web.guards import BodyLimit, JoinLimiter, OriginGuard
 from .web.live import Hub
 from .web.routes import identify, sessions
 
@@ -55,6 +56,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     app.state.settings = settings
     app.state.store = store
     app.state.hub = hub
+    app.state.join_limiter = JoinLimiter(limit=settings.join_attempts_per_minute, window=60.0)
     app.state.static_dir = STATIC_DIR
     templates = Jinja2Templates(directory=str(TEMPLATES_DIR))
     app.state.templates = templates
@@ -67,6 +69,10 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
         response.headers.setdefault("X-Content-Type-Options", "nosniff")
         response.headers.setdefault("Referrer-Policy", "no-referrer")
         return response
+
+    # Added last, so they run first: refuse foreign origins and oversized bodies up front.
+    app.add_middleware(BodyLimit, limit=settings.request_limit_bytes)
+    app.add_middleware(OriginGuard, allowed=settings.allowed_origins)
 
     app.include_router(identify.router)
     app.include_router(sessions.router)

@@ -18,6 +18,10 @@ SETTING_HELP = {
     "upload_limit_bytes": "Largest data upload accepted, in bytes (default 500 MB).",
     "allowed_origins": "Origins allowed to open the WebSocket and call the API from a browser; "
     "empty means same origin only.",
+    "request_limit_bytes": "Largest request body accepted other than a data upload, in bytes "
+    "(default 2 MB); a bigger one gets 413 before it is read.",
+    "join_attempts_per_minute": "Wrong join codes one address may try per minute before it gets "
+    "429 (default 10).",
     "demo_session": "Create the cycle-to-work demo session when the database has no sessions.",
     "demo_document": "Graph document used for the demo session.",
     "analysis_in_process": "Run the diagram analysis in a child process (true) so it never slows "
@@ -41,6 +45,12 @@ class Settings:
             o.strip() for o in _env("allowed_origins", "").split(",") if o.strip()
         )
     )
+    request_limit_bytes: int = field(
+        default_factory=lambda: int(_env("request_limit_bytes", str(2 * 1024 * 1024)))
+    )
+    join_attempts_per_minute: int = field(
+        default_factory=lambda: int(_env("join_attempts_per_minute", "10"))
+    )
     demo_session: bool = field(
         default_factory=lambda: _env("demo_session", "1") not in ("0", "false", "no")
     )
@@ -60,6 +70,8 @@ class Settings:
         self.demo_document = Path(self.demo_document)
         if self.upload_limit_bytes <= 0:
             raise ValueError("upload_limit_bytes must be positive")
+        if self.request_limit_bytes <= 0 or self.join_attempts_per_minute <= 0:
+            raise ValueError("request_limit_bytes and join_attempts_per_minute must be positive")
 
     @classmethod
     def names(cls) -> list[str]:

@@ -154,6 +154,7 @@ class Hub:
         self._analysis_by_key: dict[str, tuple[str, dict[str, Any]]] = {}
         self._analysis_tasks: dict[str, asyncio.Task] = {}
         self._analysis_dirty: set[str] = set()
+        self._keyed: dict[str, tuple[int, dict[str, dict[str, Any]]]] = {}
 
     # -- loading ----------------------------------------------------------------
     def workshop(self, session_id: str) -> Workshop:
@@ -246,14 +247,30 @@ class Hub:
         return w, member, token
 
     # -- changes ------------------------------------------------------------------
-    async def submit(self, session_id: str, member: Member, command: Any) -> dict[str, Any]:
-        """Apply, store and broadcast one command; return its event."""
+    async def submit(self, session_id: str, member: Member, command: Any,
+                     key: Any = None) -> dict[str, Any]:
+        """Apply, store and broadcast one command; return its event.
+
+        ``key`` (optional, text of at most 100 characters, unique per member) makes a
+        resent command harmless: a key already applied returns the event it made,
+        marked ``"replayed": True``, and changes nothing. Keys are kept in the stored
+        events, so they still match after a restart.
+        """
+        if key is not None and (not isinstance(key, str) or not 0 < len(key) <= 100):
+            raise BadRequest("a command key must be text of 1 to 100 characters",
+                             code="invalid_key")
         w = self.workshop(session_id)
         async with self._lock(session_id):
+            if key is not None:
+                earlier = self._find_keyed(session_id, f"{member.id}:{key}")
+                if earlier is not None:
+                    return dict(earlier, replayed=True)
             state_before = w.to_state()
             log_len = len(w.log)
             flags = [e.get("undone") for e in w.log]
             event = apply_command(w, w.members.get(member.id, member), command, now=time.time())
+            if key is not None:
+                event["key"] = f"{member.id}:{key}"
             try:
                 self.store.save_change(session_id=session_id, state=w.to_state(),
                                        revision=w.revision, event=event,
@@ -266,6 +283,18 @@ class Hub:
                 raise
         await self._publish(w, event)
         return event
+
+    def _find_keyed(self, session_id: str, full_key: str) -> dict[str, Any] | None:
+        w = self.workshop(session_id)
+        keyed = self._keyed.get(session_id)
+        if keyed is None or keyed[0] > len(w.log):
+            keyed = (0, {})
+        seen_len, table = keyed
+        for event in w.log[seen_len:]:
+            if "key" in event:
+                table[event["key"]] = event
+        self._keyed[session_id] = (len(w.log), table)
+        return table.get(full_key)
 
     async def note(self, session_id: str, member: Member | None, summary: str,
                    kind: str = "note", **extra: Any) -> dict[str, Any]:

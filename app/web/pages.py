@@ -5,6 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 
 from .deps import HubDep
+from .guards import guarded_join_lookup
 
 router = APIRouter(include_in_schema=False)
 
@@ -27,7 +28,7 @@ def join_form_page(request: Request):
 @router.get("/join/{code}")
 def join_page(code: str, request: Request, hub: HubDep):
     """The join form for one session (the code is checked again on submit)."""
-    w = hub.find_by_join_code(code)
+    w = guarded_join_lookup(request, hub, code)
     return _render(request, "join.html", title=w.title,
                    page_data={"page": "join", "code": w.join_code, "title": w.title})
 

@@ -6,8 +6,8 @@ client -> {"type": "hello", "token": "...", "revision": <last seen or null>}   (
 server -> {"type": "welcome", "member": {...}, "online": [...]}
 server -> {"type": "state", "revision": n, "state": {...}, "missed": [events after the client's revision]}
 server -> {"type": "analysis", "revision": n, "analysis": {...} | null, "problem": str | null, ...}
-client -> {"type": "command", "id": <any>, "command": {"type": "add_arrow", ...}}
-server -> {"type": "ack", "id": <same>, "revision": n}  or  {"type": "error", "id": ..., "error": ..., "code": ..., "status": ...}
+client -> {"type": "command", "id": <any>, "key": "<optional, unique per member>", "command": {"type": "add_arrow", ...}}
+server -> {"type": "ack", "id": <same>, "revision": n}   (+ "replayed": true when the key was applied before: nothing changed)  or  {"type": "error", "id": ..., "error": ..., "code": ..., "status": ...}
 client -> {"type": "resync", "revision": n}   server answers with a state message
 client -> {"type": "ping"}                    server -> {"type": "pong"}
 server -> {"type": "presence", "online": [member ids]}
@@ -104,12 +104,14 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
             if kind == "command":
                 msg_id = message.get("id")
                 try:
-                    event = await hub.submit(session_id, member, message.get("command"))
+                    event = await hub.submit(session_id, member, message.get("command"),
+                                             key=message.get("key"))
                 except (AppError, DiagramError) as exc:
                     conn.send(_error(from_exception(exc), msg_id))
                     continue
                 conn.send(json.dumps({"type": "ack", "id": msg_id, "revision": event["revision"],
-                                      "event": public_event(event)}))
+                                      "event": public_event(event),
+                                      **({"replayed": True} if event.get("replayed") else {})}))
             elif kind == "resync":
                 conn.send(_state_with_missed(hub, session_id, message.get("revision")))
             elif kind == "ping":

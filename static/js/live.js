@@ -17,6 +17,8 @@ export class LiveSession {
     this.socket = null;
     this.pending = new Map();
     this.nextId = 1;
+    // Commands carry a key unique to this page, so a resent one is applied once.
+    this.keyPrefix = Array.from(crypto.getRandomValues(new Uint32Array(2)), (n) => n.toString(36)).join('');
     this.retryDelay = 500;
     this.stopped = false;
   }
@@ -98,7 +100,7 @@ export class LiveSession {
     const id = this.nextId++;
     return new Promise((resolve, reject) => {
       this.pending.set(id, { resolve, reject });
-      socket.send(JSON.stringify({ type: 'command', id, command }));
+      socket.send(JSON.stringify({ type: 'command', id, key: `${this.keyPrefix}-${id}`, command }));
     });
   }
 

@@ -4,11 +4,12 @@ from __future__ import annotations
 
 from typing import Any
 
-from fastapi import APIRouter, Body
+from fastapi import APIRouter, Body, Request
 
 from ...errors import BadRequest
 from ...workshop.views import history, public_state
 from ..deps import HubDep, MemberDep
+from ..guards import guarded_join_lookup
 
 router = APIRouter(prefix="/api", tags=["sessions"])
 
@@ -38,17 +39,18 @@ def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
 
 
 @router.get("/join/{code}")
-def read_join_code(code: str, hub: HubDep) -> dict:
+def read_join_code(code: str, hub: HubDep, request: Request) -> dict:
     """What a join code leads to (title and stage only)."""
-    w = hub.find_by_join_code(code)
+    w = guarded_join_lookup(request, hub, code)
     return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
 
 
 @router.post("/join", status_code=201)
-async def join_session(hub: HubDep, body: Any = Body(...)) -> dict:
+async def join_session(hub: HubDep, request: Request, body: Any = Body(...)) -> dict:
     """Join a session with its code and a display name; returns the participant's key."""
     if not isinstance(body, dict):
         raise BadRequest("send a JSON object with 'code' and 'name'", code="invalid_request")
+    guarded_join_lookup(request, hub, body.get("code"))
     w, member, token = await hub.join(body.get("code"), body.get("name"))
     return {"ok": True, "session_id": w.id, "token": token, "member": member.to_public(),
             **_links(w.id, w.join_code)}
@@ -63,10 +65,15 @@ def read_session(access: MemberDep) -> dict:
 
 
 @router.post("/sessions/{session_id}/commands")
-async def submit_command(access: MemberDep, body: Any = Body(...)) -> dict:
-    """Apply one change (see app.workshop.commands for the command types)."""
-    event = await access.hub.submit(access.session_id, access.member, body)
-    return {"ok": True, "revision": event["revision"], "event": _public(event)}
+async def submit_command(access: MemberDep, request: Request, body: Any = Body(...)) -> dict:
+    """Apply one change (see app.workshop.commands for the command types).
+
+    An ``Idempotency-Key`` header makes a resent request harmless: the same key
+    from the same member is applied once and answered with ``"replayed": true`` after."""
+    event = await access.hub.submit(access.session_id, access.member, body,
+                                    key=request.headers.get("idempotency-key"))
+    return {"ok": True, "revision": event["revision"], "event": _public(event),
+            **({"replayed": True} if event.get("replayed") else {})}
 
 
 @router.get("/sessions/{session_id}/history")

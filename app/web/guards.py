@@ -1,0 +1,193 @@
+"""Guards in front of every route: request size, cross-origin requests, join-code guessing.
+
+* :class:`BodyLimit` refuses a request body over ``settings.request_limit_bytes``
+  with 413 before the app reads it (the data upload route has its own, larger
+  limit and streams to disk, so it is left to that route).
+* :class:`OriginGuard` refuses a browser request whose ``Origin`` is neither this
+  server nor one of ``settings.allowed_origins`` (403), and answers the
+  browser's pre-flight for the allowed ones. Requests without an ``Origin``
+  header (scripts, curl) are not browsers acting for someone else and pass.
+* :class:`JoinLimiter` counts wrong join codes per client address in a sliding
+  window; past the limit that address gets 429 until the window moves on.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import threading
+import time
+from collections import deque
+from urllib.parse import urlparse
+
+from ..errors import AppError, NotFound, error_body
+
+__all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin_allowed",
+           "guarded_join_lookup"]
+
+UPLOAD_PATH = re.compile(r"^/api/sessions/[^/]+/estimation/data$")
+
+
+class TooManyAttempts(AppError):
+    status = 429
+    code = "too_many_attempts"
+
+
+async def _send_json(send, status: int, body: dict, headers: list | None = None) -> None:
+    raw = json.dumps(body).encode("utf-8")
+    await send({"type": "http.response.start", "status": status,
+                "headers": [(b"content-type", b"application/json"),
+                            (b"content-length", str(len(raw)).encode())] + (headers or [])})
+    await send({"type": "http.response.body", "body": raw})
+
+
+class BodyLimit:
+    """ASGI middleware: at most ``limit`` bytes of request body (declared or streamed)."""
+
+    def __init__(self, app, limit: int):
+        self.app = app
+        self.limit = limit
+
+    async def __call__(self, scope, receive, send):
+        if scope["type"] != "http" or UPLOAD_PATH.match(scope.get("path", "")):
+            return await self.app(scope, receive, send)
+        limit = self.limit
+        message = (f"the request body is over the limit of {limit // 1024} KB; "
+                   "send a smaller document")
+        for name, value in scope.get("headers", ()):
+            if name == b"content-length":
+                if not value.isdigit() or int(value) > limit:
+                    return await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+        seen = 0
+        refused = False
+
+        async def limited_receive():
+            nonlocal seen, refused
+            event = await receive()
+            if event["type"] == "http.request":
+                seen += len(event.get("body", b""))
+                if seen > limit:
+                    refused = True
+                    raise _BodyTooLarge()
+            return event
+
+        started = False
+
+        async def tracking_send(event):
+            nonlocal started
+            if event["type"] == "http.response.start":
+                started = True
+            await send(event)
+
+        try:
+            await self.app(scope, limited_receive, tracking_send)
+        except _BodyTooLarge:
+            if not started:
+                await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+        except Exception:
+            if refused and not started:
+                await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+            else:
+                raise
+
+
+class _BodyTooLarge(Exception):
+    pass
+
+
+def origin_allowed(origin: str | None, host: str | None, allowed: tuple[str, ...]) -> bool:
+    """Same origin (the Origin's host:port is the Host header), listed, or not a browser."""
+    if origin is None:
+        return True
+    if origin in allowed or "*" in allowed:
+        return True
+    return bool(host) and urlparse(origin).netloc == host
+
+
+class OriginGuard:
+    """ASGI middleware: refuse cross-origin browser requests unless the origin is allowed."""
+
+    ALLOW_HEADERS = b"content-type, x-arrowmoot-token, idempotency-key"
+    ALLOW_METHODS = b"GET, POST, PUT, DELETE"
+
+    def __init__(self, app, allowed: tuple[str, ...]):
+        self.app = app
+        self.allowed = tuple(allowed)
+
+    async def __call__(self, scope, receive, send):
+        if scope["type"] != "http":
+            return await self.app(scope, receive, send)
+        headers = dict(scope.get("headers", ()))
+        raw_origin = headers.get(b"origin")
+        origin = raw_origin.decode("latin-1") if raw_origin is not None else None
+        host = headers.get(b"host", b"").decode("latin-1")
+        if not origin_allowed(origin, host, self.allowed):
+            return await _send_json(send, 403, error_body(
+                f"requests from {origin[:100]} are refused: this server only answers pages it "
+                "served itself (see the allowed_origins setting)", 403, "cross_origin"))
+        same = origin is None or urlparse(origin).netloc == host
+        if same:
+            return await self.app(scope, receive, send)
+        # An origin the operator listed: answer the pre-flight and label the response.
+        cors = [(b"access-control-allow-origin", raw_origin), (b"vary", b"Origin")]
+        if scope["method"] == "OPTIONS" and b"access-control-request-method" in headers:
+            await send({"type": "http.response.start", "status": 204,
+                        "headers": cors + [(b"access-control-allow-methods", self.ALLOW_METHODS),
+                                           (b"access-control-allow-headers", self.ALLOW_HEADERS),
+                                           (b"access-control-max-age", b"600")]})
+            await send({"type": "http.response.body", "body": b""})
+            return
+
+        async def labelled_send(event):
+            if event["type"] == "http.response.start":
+                event = dict(event, headers=list(event.get("headers", [])) + cors)
+            await send(event)
+
+        await self.app(scope, receive, labelled_send)
+
+
+class JoinLimiter:
+    """At most ``limit`` wrong join codes per address within ``window`` seconds."""
+
+    def __init__(self, limit: int = 10, window: float = 60.0, clock=time.monotonic):
+        self.limit = limit
+        self.window = window
+        self.clock = clock
+        self._failures: dict[str, deque[float]] = {}
+        self._lock = threading.Lock()
+
+    def _recent(self, address: str, now: float) -> deque[float]:
+        times = self._failures.setdefault(address, deque())
+        while times and times[0] <= now - self.window:
+            times.popleft()
+        return times
+
+    def check(self, address: str) -> None:
+        """Raise TooManyAttempts when this address is over the limit."""
+        with self._lock:
+            now = self.clock()
+            times = self._recent(address, now)
+            if len(times) >= self.limit:
+                wait = max(1, int(times[0] + self.window - now + 0.999))
+                raise TooManyAttempts(
+                    f"too many wrong join codes from this address; wait {wait} s and check "
+                    "the code with the facilitator", code="too_many_attempts")
+            if len(self._failures) > 10000:  # forget idle addresses
+                for key in [k for k, v in self._failures.items() if not v][:5000]:
+                    del self._failures[key]
+
+    def failed(self, address: str) -> None:
+        with self._lock:
+            self._recent(address, self.clock()).append(self.clock())
+
+
+def guarded_join_lookup(request, hub, code):
+    """Find the session of a join code; wrong codes count against the caller's address."""
+    limiter = request.app.state.join_limiter
+    address = request.client.host if request.client else "unknown"
+    limiter.check(address)
+    try:
+        return hub.find_by_join_code(code)
+    except NotFound:
+        limiter.failed(address)
+        raise
