@@ -62,9 +62,18 @@ def _watch(page, errors):
     page.on("pageerror", lambda e: errors.append(f"page error: {e}"))
 
 
+def _centre(page, selector):
+    """Centre of an SVG element; the canvas redraws on every push, so retry if it was replaced."""
+    for _ in range(50):
+        box = page.locator(selector).first.bounding_box()
+        if box is not None:
+            return box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+        page.wait_for_timeout(50)
+    raise AssertionError(f"{selector} never appeared")
+
+
 def _node_centre(page, name):
-    box = page.locator(f'.node[data-name="{name}"] .shape').first.bounding_box()
-    return box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+    return _centre(page, f'.node[data-name="{name}"] .shape')
 
 
 def test_two_people_draw_and_vote(server):
@@ -118,17 +127,22 @@ def test_two_people_draw_and_vote(server):
         expect(fac.locator(".paths")).to_contain_text("scheme → sick_days")
 
         # Sam votes on the arrow; the tally shows on both screens.
-        box = par.locator(edge + " .edge-hit").bounding_box()
-        par.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
+        par.mouse.click(*_centre(par, edge + " .edge-hit"))
         expect(par.locator(".panel h3").first).to_have_text("Arrow scheme → sick_days")
         par.fill(".vote-reason", "cycling builds fitness")
         par.click(".vote-agree")
         expect(par.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
         expect(fac.locator(edge + " .edge-badge")).to_contain_text("+1 −0 ?0")
-        fbox = fac.locator(edge + " .edge-hit").bounding_box()
-        fac.mouse.click(fbox["x"] + fbox["width"] / 2, fbox["y"] + fbox["height"] / 2)
+        fac.mouse.click(*_centre(fac, edge + " .edge-hit"))
         expect(fac.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
         expect(fac.locator(".votes")).to_contain_text("cycling builds fitness")
+
+        # Sam's connection drops; an edit lands meanwhile; Sam's page catches up on reconnect.
+        par.evaluate("window.arrowmoot.live.socket.close()")
+        fac.evaluate("window.arrowmoot.send({type: 'add_variable', name: 'fitness', x: 420, y: 140})")
+        expect(fac.locator('.node[data-name="fitness"]')).to_have_count(1)
+        expect(par.locator('.node[data-name="fitness"]')).to_have_count(1, timeout=10_000)
+        expect(par.locator(".live-status")).to_have_text("Live")
 
         fac.wait_for_timeout(300)
         fac.screenshot(path=str(ARTIFACTS / "workshop_facilitator.png"))
