@@ -211,7 +211,7 @@ def analysis_key(w: Workshop) -> str:
     return json.dumps([
         sorted((v["name"], bool(v.get("latent"))) for v in w.variables),
         sorted(w.arrows), list(w.treatment), list(w.outcome),
-        [[i["pair"], i["options"]] for i in disputed_items(w)],
+        [[i["pair"], i["options"], i["why"]] for i in disputed_items(w)],
     ])
 
 

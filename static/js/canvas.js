@@ -221,10 +221,17 @@ export class Canvas {
     group.append(svg('line', { x1, y1, x2, y2, class: 'edge-hit' }));
     const head = info.proposal ? 'head-ghost' : info.selected ? 'head-selected' : 'head';
     group.append(svg('line', { x1, y1, x2, y2, class: 'edge-line', 'marker-end': `url(#${head})` }));
-    const mx = (x1 + x2) / 2, my = (y1 + y2) / 2;
+    const along = info.proposal ? 0.35 : 0.5;  // proposals label nearer their source, so two labels rarely meet
+    const mx = x1 + (x2 - x1) * along, my = y1 + (y2 - y1) * along;
     const badges = [];
-    if (info.proposal) badges.push(`#${info.proposal.id} add?`);
-    if (classes.includes('edge-disputed')) badges.push('disputed');
+    if (info.proposal) {
+      const pair = JSON.stringify([info.proposal.from, info.proposal.to].sort());
+      badges.push(`#${info.proposal.id} add?${this.model.decisive?.has(pair) ? ' decisive' : ''}`);
+    }
+    if (classes.includes('edge-disputed')) {
+      const pair = JSON.stringify([info.arrow?.from ?? info.proposal?.from, info.arrow?.to ?? info.proposal?.to].sort());
+      badges.push(this.model.decisive?.has(pair) ? 'decisive dispute' : 'disputed');
+    }
     for (const p of info.pending || []) badges.push(`#${p.id} ${p.kind === 'remove' ? 'drop?' : 'flip?'}`);
     const tally = info.arrow?.tally || info.proposal?.tally;
     if (tally && tally.total) badges.push(`+${tally.agree} −${tally.disagree} ?${tally.unsure}`);

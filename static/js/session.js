@@ -199,7 +199,8 @@ class SessionApp {
     this.toolbar = el('div', { class: 'toolbar', role: 'toolbar', 'aria-label': 'Diagram tools' });
     this.canvasHost = el('div', { class: 'canvas-host' });
     this.legend = buildLegend();
-    const canvasWrap = el('section', { class: 'canvas-wrap' }, this.toolbar, this.canvasHost, this.legend);
+    this.banner = el('p', { class: 'stage-banner', hidden: true, role: 'status' });
+    const canvasWrap = el('section', { class: 'canvas-wrap' }, this.toolbar, this.banner, this.canvasHost, this.legend);
     this.tabs = el('nav', { class: 'tabs', role: 'tablist' });
     this.panel = el('div', { class: 'panel', role: 'tabpanel' });
     this.estimationPanel = el('div', { id: 'estimation-panel', class: 'panel', hidden: true });
@@ -345,11 +346,27 @@ class SessionApp {
     const contested = new Set();
     for (const item of s.disputed) for (const opt of item.options) if (opt) contested.add(JSON.stringify(opt));
     const arrows = s.arrows.map((a) => ({ ...a, contested: contested.has(JSON.stringify([a.from, a.to])) && a.flag !== 'settled' && (a.tally.disagree > 0 || pendingByArrow.has(JSON.stringify([a.from, a.to]))) }));
+    const decisive = new Set();
+    const disputes = this.analysis?.disputes;
+    if (disputes) for (const item of disputes.items) if (item.decisive) decisive.add(JSON.stringify(item.pair));
+    this.renderBanner();
     this.canvas.render({
-      document: s.document, arrows, proposals: s.proposals, pendingByArrow,
+      document: s.document, arrows, proposals: s.proposals, pendingByArrow, decisive,
       selection: this.view.selection, highlight: this.view.highlight, adjusted: this.view.adjusted || [],
       roles: this.analysis?.revision === s.revision ? this.analysis?.analysis?.roles : this.canvas.model?.roles,
     });
+  }
+
+  renderBanner() {
+    const stage = this.state.session.stage;
+    const text = {
+      debating: 'Debating: new arrows, removals and reversals become proposals for the room to vote on.',
+      agreed: 'The diagram is agreed and locked. The facilitator can reopen it, with a reason for the log.',
+      estimation: 'Estimation: the diagram is locked; the analyst works in the Estimation tab.',
+    }[stage];
+    this.banner.hidden = !text;
+    this.banner.className = `stage-banner stage-banner-${stage}`;
+    this.banner.textContent = text || '';
   }
 
   renderTabs() {
