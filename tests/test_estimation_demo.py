@@ -116,24 +116,45 @@ def test_disputed_arrow_changes_the_answer(diagram, frame):
     assert _covers(with_arrow, TRUTH) and not _covers(without, TRUTH)
 
 
-def test_cli_prints_contract_fields():
-    proc = subprocess.run(
-        [sys.executable, "-m", "app.estimation.cli", "estimate", str(SAMPLE / "cycle_to_work.json"),
-         str(SAMPLE / "cycle_to_work.csv"), "--map", "fitness=", "--method", "two-stage"],
-        capture_output=True, text=True, cwd=ROOT, timeout=120,
-    )
-    assert proc.returncode == 0, proc.stderr
-    out = json.loads(proc.stdout)
+def test_cli_prints_contract_fields(capsys):
+    """`arrowmoot estimate` through the project's command line entry point."""
+    from app.cli import main
+
+    code = main(["estimate", str(SAMPLE / "cycle_to_work.json"), str(SAMPLE / "cycle_to_work.csv"),
+                 "--map", "fitness=", "--method", "two-stage"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    out = json.loads(captured.out)
     for key in ("estimate", "std_error", "ci", "method", "strategy", "instrument", "given", "n_used", "n_dropped", "checks"):
         assert key in out
     assert out["method"] == "two-stage" and out["instrument"] == "promo_email"
+    assert out["ci"][0] <= TRUTH <= out["ci"][1]
+
+
+def test_cli_default_reports_adjustment_set(capsys):
+    from app.cli import main
+
+    assert main(["estimate", str(SAMPLE / "cycle_to_work.json"), str(SAMPLE / "cycle_to_work.csv")]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["adjustment_set"] == ["age", "commute_km", "department", "fitness"]
+    assert out["checks"]["tested"] > 0 and out["n_used"] == 4000
 
 
 def test_cli_bad_mapping_exits_2_with_message():
     proc = subprocess.run(
-        [sys.executable, "-m", "app.estimation.cli", "estimate", str(SAMPLE / "cycle_to_work.json"),
+        [sys.executable, "-m", "app.cli", "estimate", str(SAMPLE / "cycle_to_work.json"),
          str(SAMPLE / "cycle_to_work.csv"), "--map", "scheme=joined"],
         capture_output=True, text=True, cwd=ROOT, timeout=120,
     )
     assert proc.returncode == 2
     assert "'joined', which is not in the data" in proc.stderr
+    assert proc.stdout == ""
+
+
+def test_cli_unreadable_data_exits_2(tmp_path, capsys):
+    from app.cli import main
+
+    bad = tmp_path / "notes.csv"
+    bad.write_bytes(b"\x00\x01\x02 binary")
+    assert main(["estimate", str(SAMPLE / "cycle_to_work.json"), str(bad)]) == 2
+    assert "not a table" in capsys.readouterr().err

@@ -73,30 +73,46 @@ def regression(design: Design) -> dict:
 
 
 def _chunked_hc1(x: np.ndarray, y: np.ndarray, chunk: int = 65536, column: int = 1) -> dict:
-    """OLS with HC1 errors from row chunks: a running QR of [X y] gives the
-    coefficients stably (no normal equations); a second pass accumulates the
-    sandwich meat sum(e_i^2 x_i x_i'). HC1 = n/(n-k) (X'X)^-1 meat (X'X)^-1,
-    inference on the normal distribution, as statsmodels does for HC1."""
+    """OLS with HC1 errors from row chunks, memory bounded by one chunk.
+
+    The coefficients come from a Cholesky QR done twice ("CholeskyQR2",
+    Fukaya et al. 2014) on the column-scaled matrix, which is as accurate as a
+    Householder QR for any matrix that is not near-singular (perfectly
+    collinear columns are refused before this point); only Gram matrices of
+    chunks are formed, which BLAS computes fast. A last pass accumulates the
+    sandwich meat sum(e_i^2 x_i x_i'). HC1 = n/(n-k) (X'X)^-1 meat (X'X)^-1, with
+    inference on the normal distribution, as statsmodels does for HC1.
+    """
     from scipy.linalg import solve_triangular
 
     n, k = x.shape
-    r = np.zeros((0, k + 1))
-    for start in range(0, n, chunk):
-        stop = min(start + chunk, n)
-        block = np.empty((r.shape[0] + stop - start, k + 1))
-        block[: r.shape[0]] = r
-        block[r.shape[0]:, :k] = x[start:stop]
-        block[r.shape[0]:, k] = y[start:stop]
-        r = np.linalg.qr(block, mode="r")
-    rx, qty = r[:k, :k], r[:k, k]
-    beta = solve_triangular(rx, qty)
-    rinv = solve_triangular(rx, np.eye(k))
+    chunks = [(a, min(a + chunk, n)) for a in range(0, n, chunk)]
+    gram = np.zeros((k, k))
+    for a, b in chunks:
+        gram += x[a:b].T @ x[a:b]
+    scale = np.sqrt(np.diag(gram))
+    scale[scale == 0] = 1.0
+    try:
+        r1 = np.linalg.cholesky(gram / np.outer(scale, scale)).T
+        to_q1 = solve_triangular(r1, np.eye(k)) / scale[:, None]  # X @ to_q1 = Q1
+        gram2 = np.zeros((k, k))
+        qy = np.zeros(k)
+        for a, b in chunks:
+            q1 = x[a:b] @ to_q1
+            gram2 += q1.T @ q1
+            qy += q1.T @ y[a:b]
+        r2 = np.linalg.cholesky(gram2).T
+    except np.linalg.LinAlgError:
+        raise FitFailed("the adjustment columns are too close to collinear for a stable fit") from None
+    r = r2 @ r1 * scale[None, :]  # X = Q R
+    beta = solve_triangular(r, solve_triangular(r2, qy, trans="T"))
+    rinv = solve_triangular(r, np.eye(k))
     bread = rinv @ rinv.T
     meat = np.zeros((k, k))
     rss = 0.0
-    for start in range(0, n, chunk):
-        xc = x[start:start + chunk]
-        e = y[start:start + chunk] - xc @ beta
+    for a, b in chunks:
+        xc = x[a:b]
+        e = y[a:b] - xc @ beta
         rss += float(e @ e)
         meat += (xc * (e * e)[:, None]).T @ xc
     cov = n / (n - k) * bread @ meat @ bread
@@ -125,11 +141,12 @@ def point_regression(design: Design) -> float:
 
 # -- adjustment, binary outcome: standardization (g-formula) ------------------
 
-def _arm_models(design: Design):
+def _arm_models(design: Design, start: list | None = None):
+    """Logistic outcome model in each arm; ``start`` holds starting values (from the full sample)."""
     x = _with_const(design.covariates)
     treated = design.t == 1
     fits = []
-    for arm, mask in (("not treated", ~treated), ("treated", treated)):
+    for i, (arm, mask) in enumerate((("not treated", ~treated), ("treated", treated))):
         yy = design.y[mask]
         if yy.min() == yy.max():
             raise FitFailed(
@@ -139,17 +156,18 @@ def _arm_models(design: Design):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             try:
-                fit = sm.Logit(yy, x[mask]).fit(disp=0, maxiter=100)
+                fit = sm.Logit(yy, x[mask]).fit(disp=0, maxiter=100,
+                                                start_params=None if start is None else start[i])
             except Exception as exc:  # perfect separation, singular matrix
                 raise FitFailed(f"the outcome model in the {arm} arm failed: {exc}") from None
         fits.append(fit)
     return x, fits
 
 
-def _risks(design: Design) -> tuple[float, float]:
-    x, (fit0, fit1) = _arm_models(design)
+def _risks(design: Design, start: list | None = None) -> tuple[float, float, list]:
+    x, (fit0, fit1) = _arm_models(design, start)
     with np.errstate(over="ignore"):
-        return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x)))
+        return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x))), [fit0.params, fit1.params]
 
 
 def _contrasts(p0: float, p1: float) -> dict:
@@ -169,7 +187,7 @@ def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> d
     resamples of the rows (standard error: the bootstrap standard deviation).
     """
     _require_binary(design, "standardization")
-    p0, p1 = _risks(design)
+    p0, p1, start = _risks(design)
     main = _contrasts(p0, p1)
     rng = np.random.default_rng(seed)
     draws = {k: [] for k in main}
@@ -177,7 +195,7 @@ def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> d
     for _ in range(resamples):
         idx = rng.integers(0, design.n, design.n)
         try:
-            b0, b1 = _risks(design.take(idx))
+            b0, b1, _ = _risks(design.take(idx), start)
         except FitFailed:
             failures += 1
             continue
@@ -203,7 +221,7 @@ def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> d
 
 
 def point_standardization(design: Design) -> float:
-    p0, p1 = _risks(design)
+    p0, p1, _ = _risks(design)
     return p1 - p0
 
 
