@@ -35,9 +35,11 @@ export class LiveSession {
     socket.addEventListener('close', (event) => {
       if (this.socket !== socket) return;
       this.socket = null;
-      for (const [, waiter] of this.pending) waiter.reject(new Error('the connection dropped; your change may not have landed, check the diagram'));
-      this.pending.clear();
+      // Unanswered commands stay pending and are sent again, with the same key, once
+      // the connection is back; the server applies a key only once.
       if (event.code === 4401 || event.code === 4403 || event.code === 4404) {
+        for (const [, waiter] of this.pending) waiter.reject(new Error('the session refused this browser; your change did not land'));
+        this.pending.clear();
         this.handlers.onStatus('offline');
         this.handlers.onFatal(event.code);
         return;
@@ -55,6 +57,9 @@ export class LiveSession {
         this.retryDelay = 500;
         this.handlers.onStatus('live');
         this.handlers.onWelcome(message);
+        for (const [id, waiter] of this.pending) {
+          this.socket.send(JSON.stringify({ type: 'command', id, key: waiter.key, command: waiter.command }));
+        }
         break;
       case 'state':
         if (this.revision === null || message.revision >= this.revision) {
@@ -98,9 +103,10 @@ export class LiveSession {
       return callApi('POST', `/api/sessions/${encodeURIComponent(this.sessionId)}/commands`, command, this.token);
     }
     const id = this.nextId++;
+    const key = `${this.keyPrefix}-${id}`;
     return new Promise((resolve, reject) => {
-      this.pending.set(id, { resolve, reject });
-      socket.send(JSON.stringify({ type: 'command', id, key: `${this.keyPrefix}-${id}`, command }));
+      this.pending.set(id, { resolve, reject, command, key });
+      socket.send(JSON.stringify({ type: 'command', id, key, command }));
     });
   }
 
