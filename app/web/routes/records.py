@@ -1,0 +1,220 @@
+"""The record of a workshop over HTTP: graph exports, the record bundle, the report, imports.
+
+    GET  /api/sessions/{id}/export/graph?format=json|graphml|dot   the agreed graph (download)
+    GET  /api/sessions/{id}/export/bundle                          the full record bundle (download)
+    GET  /api/sessions/{id}/report                                 the report as one HTML page
+    POST /api/records/import?mode=new|read-only&name=...           reopen a bundle as a session
+    POST /api/records/report                                       the report of an uploaded bundle
+
+Exports and the report need the analyst or facilitator key. An import opens
+a fresh session (new id, join code and key): ``new`` makes the importer its
+facilitator, so the analysis can continue; ``read-only`` gives the importer
+a reader's key only. A refused bundle gets a 422 naming what is wrong.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import secrets
+import time
+from typing import Any
+
+from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse, Response
+
+from ...errors import AppError, BadRequest, PayloadTooLarge
+from ...graph.errors import DiagramError
+from ...reporting.bundle import (
+    BundleError, attachments_from_bundle, build_bundle, file_sha256, restore_workshop, validate_bundle,
+)
+from ...reporting.report import render_report
+from ...workshop.models import Member
+from ...workshop.views import public_state
+from ..deps import AnalystDep, HubDep
+from ..live import JOIN_ALPHABET, hash_token
+
+router = APIRouter(tags=["records"])
+
+MAX_BUNDLE_BYTES = 50 * 1024 * 1024
+READ_ONLY_KEY = "record.read_only"
+SOURCE_KEY = "record.source"
+# The report is a standalone document: inline styles, inline SVG, nothing else.
+REPORT_CSP = ("default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; "
+              "form-action 'none'; frame-ancestors 'self'")
+GRAPH_FORMATS = {
+    "json": ("application/json", "json"),
+    "graphml": ("application/graphml+xml", "graphml"),
+    "dot": ("text/vnd.graphviz", "dot"),
+}
+
+
+def _slug(title: str) -> str:
+    slug = re.sub(r"[^A-Za-z0-9]+", "-", title).strip("-").lower()[:60]
+    return slug or "session"
+
+
+def _download(body: str, media_type: str, filename: str) -> Response:
+    return Response(body, media_type=f"{media_type}; charset=utf-8",
+                    headers={"Content-Disposition": f'attachment; filename="{filename}"'})
+
+
+def session_bundle(access) -> dict[str, Any]:
+    """The record bundle of the session behind ``access``."""
+    store = access.hub.store
+    keys = [k for k in store.list_attachment_keys(access.session_id) if k.startswith("estimation.")]
+    attachments = {k: store.get_attachment(access.session_id, k) for k in keys}
+    info = attachments.get("estimation.data") or {}
+    digest = None
+    if info.get("stored"):
+        path = access.data_dir() / info["stored"]
+        digest = file_sha256(path) if path.is_file() else info.get("sha256")
+    return build_bundle(access.workshop, analysis=access.hub.analysis_now(access.session_id),
+                        attachments=attachments, data_sha256=digest, exported_at=time.time())
+
+
+@router.get("/api/sessions/{session_id}/export/graph")
+def export_graph(access: AnalystDep, format: str = "json") -> Response:
+    """The agreed graph as a graph document (json), GraphML or Graphviz DOT."""
+    if format not in GRAPH_FORMATS:
+        raise BadRequest(f"unknown format {format!r}; use one of {', '.join(GRAPH_FORMATS)}",
+                         code="unknown_format")
+    media, ext = GRAPH_FORMATS[format]
+    diagram = access.diagram()
+    if format == "json":
+        body = json.dumps(diagram.to_document(), indent=2, ensure_ascii=False)
+    else:
+        from ...graph.formats import to_dot, to_graphml
+
+        body = to_graphml(diagram) if format == "graphml" else to_dot(diagram)
+    return _download(body, media, f"{_slug(access.title)}.{ext}")
+
+
+@router.get("/api/sessions/{session_id}/export/bundle")
+def export_bundle(access: AnalystDep) -> Response:
+    """Everything the session decided and found, as one versioned JSON file."""
+    bundle = session_bundle(access)
+    return _download(json.dumps(bundle, indent=1, ensure_ascii=False), "application/json",
+                     f"{_slug(access.title)}.record.json")
+
+
+def _report_response(html: str) -> HTMLResponse:
+    return HTMLResponse(html, headers={"Content-Security-Policy": REPORT_CSP})
+
+
+@router.get("/api/sessions/{session_id}/report")
+def read_report(access: AnalystDep) -> HTMLResponse:
+    """The workshop report: one self-contained HTML page (print it to PDF from the browser)."""
+    return _report_response(render_report(session_bundle(access)))
+
+
+async def _read_bundle(request: Request) -> dict[str, Any]:
+    declared = request.headers.get("content-length")
+    if declared and declared.isdigit() and int(declared) > MAX_BUNDLE_BYTES:
+        raise PayloadTooLarge(f"the bundle is {int(declared) / 1048576:.1f} MB; the limit is "
+                              f"{MAX_BUNDLE_BYTES / 1048576:.0f} MB", code="bundle_too_large")
+    chunks, size = [], 0
+    async for chunk in request.stream():
+        size += len(chunk)
+        if size > MAX_BUNDLE_BYTES:
+            raise PayloadTooLarge(f"the bundle is over the limit of {MAX_BUNDLE_BYTES / 1048576:.0f} MB",
+                                  code="bundle_too_large")
+        chunks.append(chunk)
+    raw = b"".join(chunks)
+    if not raw.strip():
+        raise BadRequest("send the record bundle (a .record.json file) as the request body", code="no_bundle")
+    try:
+        obj = json.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise BadRequest("the bundle is not UTF-8 text", code="bundle_not_json") from None
+    except json.JSONDecodeError as err:
+        raise BadRequest(f"the bundle is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})",
+                         code="bundle_not_json") from None
+    try:
+        return validate_bundle(obj)
+    except BundleError as err:
+        raise AppError(err.message, code=err.code, status=422) from None
+
+
+def _clean_name(name: str | None, default: str) -> str:
+    name = (name or "").strip()
+    if len(name) > 40:
+        raise BadRequest(f"your name is {len(name)} characters long; the limit is 40", code="too_long")
+    if any(ord(ch) < 32 for ch in name):
+        raise BadRequest("your name holds a control character", code="invalid_field")
+    return name or default
+
+
+def import_bundle(hub, bundle: dict[str, Any], *, mode: str, name: str) -> tuple[Any, Member, str]:
+    """Open ``bundle`` as a fresh session with its full history; return (workshop, member, key)."""
+    store = hub.store
+    session_id = secrets.token_urlsafe(9)
+    for _ in range(50):
+        join_code = "".join(secrets.choice(JOIN_ALPHABET) for _ in range(6))
+        if not store.join_code_taken(join_code):
+            break
+    w = restore_workshop(bundle, session_id=session_id, join_code=join_code)
+    now = time.time()
+    member_id = "m" + secrets.token_hex(6)
+    member = Member(id=member_id, name=name, role="facilitator" if mode == "new" else "participant", joined=now)
+    w.members[member_id] = member
+    events = list(w.log)
+    w.revision = max([w.revision] + [e["revision"] for e in events]) + 1
+    original = bundle["session"]
+    how = "as a new session" if mode == "new" else "read-only"
+    event = {"revision": w.revision, "at": now, "actor": member_id, "actor_name": name, "kind": "import_record",
+             "summary": f"reopened the record of {original.get('title')!r} {how} (exported with Arrowmoot "
+                        f"{(bundle.get('software') or {}).get('version', '?')})",
+             "command": {"type": "import_record", "mode": mode}, "undoable": False, "undone": False}
+    w.log.append(event)
+    events.append(event)
+    token = f"{member_id}.{secrets.token_urlsafe(24)}"
+    state = w.to_state()
+    # Composed from the store's own functions: the session row with the first
+    # event and the importer's key, then each later event in order.
+    store.create_session(session_id=session_id, title=w.title, join_code=join_code, state=state,
+                         revision=w.revision, event=events[0], token_hash=hash_token(token), member_id=member_id)
+    for e in events[1:]:
+        store.save_change(session_id=session_id, state=state, revision=w.revision, event=e)
+    for key, value in attachments_from_bundle(bundle).items():
+        store.put_attachment(session_id, key, value)
+    store.put_attachment(session_id, SOURCE_KEY, {
+        "session_id": original.get("id"), "title": original.get("title"), "exported_at": bundle.get("exported_at"),
+        "software": bundle.get("software"), "data_sha256": (bundle.get("data") or {}).get("sha256"),
+        "mode": mode, "imported_at": now})
+    if mode == "read-only":
+        store.put_attachment(session_id, READ_ONLY_KEY, True)
+    return hub.workshop(session_id), member, token
+
+
+@router.post("/api/records/import", status_code=201)
+async def create_session_from_bundle(request: Request, hub: HubDep, mode: str = "new",
+                                     name: str | None = None) -> dict:
+    """Reopen a record bundle as a session, with its diagram, votes, history and results."""
+    if mode not in ("new", "read-only"):
+        raise BadRequest("'mode' must be new or read-only", code="invalid_field")
+    who = _clean_name(name, "Facilitator" if mode == "new" else "Reader")
+    bundle = await _read_bundle(request)
+    try:
+        w, member, token = import_bundle(hub, bundle, mode=mode, name=who)
+    except DiagramError as exc:
+        raise AppError(f"the bundle's diagram is not valid: {exc.message}", code="bundle_bad_graph",
+                       status=422) from None
+    return {"ok": True, "session_id": w.id, "join_code": w.join_code, "token": token, "mode": mode,
+            "read_only": mode == "read-only", "member": member.to_public(),
+            "session_page": f"/s/{w.id}", "key_link": f"/s/{w.id}#key={token}",
+            "state": public_state(w)}
+
+
+@router.post("/api/records/report")
+async def create_report_from_bundle(request: Request) -> HTMLResponse:
+    """The report of an uploaded bundle, without opening a session."""
+    bundle = await _read_bundle(request)
+    try:
+        html = render_report(bundle)
+    except BundleError as err:
+        raise AppError(err.message, code=err.code, status=422) from None
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
+        raise AppError(f"part of the bundle is damaged and cannot be shown ({type(err).__name__}: {err})",
+                       code="bundle_bad_part", status=422) from None
+    return _report_response(html)
