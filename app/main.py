@@ -86,6 +86,9 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
             raise
     else:
         app.include_router(estimation.router)
+    from .web.routes import records  # exports, record bundle, report
+
+    app.include_router(records.router)
     app.mount("/static", StaticFiles(directory=str(STATIC_DIR)), name="static")
     return app
 
