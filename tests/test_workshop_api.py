@@ -246,3 +246,32 @@ def test_pages_escape_user_text(client):
     assert "<script>alert(1)</script>" not in page.text
     assert "&lt;script&gt;" in page.text
     assert "script-src 'self'" in page.headers["content-security-policy"]
+
+
+def test_create_from_graphml_and_export_dot_round_trip(client, demo_document):
+    """GraphML in, DOT out; the exported DOT parses back (with networkx/pydot) to the same arrows."""
+    import networkx as nx
+    import pydot
+    from app.graph.document import parse_document
+    from app.graph.formats import to_graphml
+
+    text = to_graphml(parse_document(demo_document))
+    r = client.post("/api/sessions", json={"title": "From GraphML", "document_text": text,
+                                           "document_format": "graphml"})
+    assert r.status_code == 201, r.text
+    body = r.json()
+    out = client.get(f"/api/sessions/{body['session_id']}/document?format=dot",
+                     headers={TOKEN_HEADER: body["token"]})
+    assert out.status_code == 200 and out.headers["content-type"].startswith("text/vnd.graphviz")
+    graph = nx.nx_pydot.from_pydot(pydot.graph_from_dot_data(out.text)[0])
+    exported = {(a.strip('"'), b.strip('"')) for a, b, *_ in graph.edges}
+    assert exported == {(a["from"], a["to"]) for a in demo_document["arrows"]}
+
+
+def test_import_refuses_a_cyclic_dot_file_and_keeps_the_diagram(room):
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    before = room.state()["document"]
+    r = room.send(room.facilitator, {"type": "import_document", "format": "dot",
+                                     "text": "digraph { a -> b; b -> a }"})
+    assert r.status_code == 422 and r.json()["code"] == "cycle"
+    assert room.state()["document"] == before

@@ -25,7 +25,7 @@ from typing import Any
 
 from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
 from ..store import Store
-from ..workshop.commands import add_member, apply_command, new_workshop, public_event
+from ..workshop.commands import add_member, apply_command, new_workshop, public_event, read_document
 from ..workshop.disputes import analyse_workshop, analysis_key, slim_for_push
 from ..workshop.models import Member, Workshop
 from ..workshop.views import public_state
@@ -197,7 +197,8 @@ class Hub:
         return member
 
     def create_session(self, *, title: Any, facilitator_name: Any = None, document: Any = None,
-                       treatment: Any = None, outcome: Any = None) -> tuple[Workshop, str]:
+                       treatment: Any = None, outcome: Any = None, document_text: Any = None,
+                       document_format: Any = None) -> tuple[Workshop, str]:
         """Create a session; return it and the facilitator's token (shown once)."""
         session_id = secrets.token_urlsafe(9)
         member_id = "m" + secrets.token_hex(6)
@@ -206,6 +207,8 @@ class Hub:
             if not self.store.join_code_taken(join_code):
                 break
         now = time.time()
+        if document_text is not None:
+            document = dict(read_document(None, document_text, document_format), _validated=True)
         w, event = new_workshop(
             session_id=session_id, title=title if isinstance(title, str) else "",
             join_code=join_code, facilitator_id=member_id,
@@ -391,7 +394,16 @@ class Hub:
             return cached
         w = self.workshop(session_id)
         key = analysis_key(w)
-        payload = dict(analyse_workshop(w), revision=w.revision)
+        try:
+            result = analyse_workshop(w)
+        except AppError:
+            raise
+        except Exception as exc:  # a numerical failure: say so, keep nothing, change nothing
+            log.exception("analysis failed for a session")
+            raise AppError(f"the analysis of this diagram failed ({type(exc).__name__}); the "
+                           "session is unchanged; try again after the next edit",
+                           code="analysis_failed", status=422) from None
+        payload = dict(result, revision=w.revision)
         self._analysis[session_id] = payload
         self._analysis_by_key[session_id] = (key, payload)
         return payload

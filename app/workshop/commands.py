@@ -301,11 +301,7 @@ def _import_document(w: Workshop, m: Member, c: dict) -> _Change:
     _require_facilitator(m, "import a diagram")
     if w.stage != "drafting":
         raise Conflict("a diagram can only be imported while drafting", code="wrong_stage")
-    try:
-        diagram = parse_document(c.get("document"))
-    except DiagramError as exc:
-        raise InvalidDiagram(exc) from None
-    doc = diagram.to_document()
+    doc = read_document(c.get("document"), c.get("text"), c.get("format"))
     variables = doc["variables"]
     if any(v.get("x") is None or v.get("y") is None for v in variables):
         positions = layout.layered_positions([v["name"] for v in variables],
@@ -583,7 +579,7 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
         _restore(workshop, backup, backup_log_flags)
         raise
     workshop.revision += 1
-    clean = {k: v for k, v in command.items() if k != "document"}
+    clean = {k: v for k, v in command.items() if k not in ("document", "text")}
     event: dict[str, Any] = {
         "revision": workshop.revision, "at": now, "actor": member.id, "actor_name": member.name,
         "kind": kind, "summary": change.summary, "command": clean,
@@ -605,6 +601,32 @@ def _restore(workshop: Workshop, state: dict, log_flags: list) -> None:
         event["undone"] = flag
 
 
+IMPORT_FORMATS = ("json", "graphml", "dot")
+
+
+def read_document(document: Any = None, text: Any = None, fmt: Any = None) -> dict[str, Any]:
+    """A validated graph document from our JSON document, or from GraphML or DOT text."""
+    try:
+        if text is None:
+            return parse_document(document).to_document()
+        if not isinstance(text, str):
+            raise BadRequest("'text' must be the file's text", code="invalid_field")
+        if fmt not in IMPORT_FORMATS:
+            raise BadRequest(f"'format' must be one of {', '.join(IMPORT_FORMATS)}",
+                             code="invalid_field")
+        if fmt == "json":
+            import json
+            try:
+                return parse_document(json.loads(text)).to_document()
+            except json.JSONDecodeError as exc:
+                raise BadRequest(f"the file is not JSON: {exc.msg} (line {exc.lineno})",
+                                 code="malformed_document") from None
+        from ..graph.formats import from_dot, from_graphml
+        return (from_graphml if fmt == "graphml" else from_dot)(text).to_document()
+    except DiagramError as exc:
+        raise InvalidDiagram(exc) from None
+
+
 def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id: str,
                  facilitator_name: str, document: Any = None, treatment: Any = None,
                  outcome: Any = None, now: float) -> tuple[Workshop, dict[str, Any]]:
@@ -616,10 +638,8 @@ def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id:
     fac = Member(id=facilitator_id, name=name, role="facilitator", joined=now)
     w.members[fac.id] = fac
     if document is not None:
-        try:
-            doc = parse_document(document).to_document()
-        except DiagramError as exc:
-            raise InvalidDiagram(exc) from None
+        doc = document if isinstance(document, dict) and document.get("_validated") else read_document(document)
+        doc = {k: v for k, v in doc.items() if k != "_validated"}
         w.variables = doc["variables"]
         w.arrows = [(a["from"], a["to"]) for a in doc["arrows"]]
         w.treatment, w.outcome = doc["treatment"], doc["outcome"]

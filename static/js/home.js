@@ -17,10 +17,8 @@ createForm.addEventListener('submit', async (event) => {
   if (outcome) body.outcome = outcome;
   const file = form.get('document');
   if (file && file.size) {
-    try { body.document = JSON.parse(await file.text()); } catch {
-      createError.textContent = 'That file is not JSON; choose an Arrowmoot graph document.';
-      return;
-    }
+    body.document_text = await file.text();
+    body.document_format = formatOf(file.name);
   }
   try {
     const data = await callApi('POST', '/api/sessions', body);
@@ -44,4 +42,12 @@ if (mine.length) {
     list.append(el('li', {}, el('a', { href: `/s/${encodeURIComponent(s.id)}`, text: s.title }), el('span', { class: 'muted', text: ` (${s.role})` })));
   }
   document.getElementById('my-sessions').hidden = false;
+}
+
+/** The import format from a file name: GraphML, DOT, or our JSON document. */
+export function formatOf(name) {
+  const lower = name.toLowerCase();
+  if (lower.endsWith('.graphml') || lower.endsWith('.xml')) return 'graphml';
+  if (lower.endsWith('.dot') || lower.endsWith('.gv')) return 'dot';
+  return 'json';
 }

@@ -349,7 +349,16 @@ export function renderPeople(app) {
       el('p', { class: 'muted', text: 'Anyone holding this link acts as facilitator. Keep it off the projector.' }),
       el('button', { type: 'button', text: 'Copy my facilitator link', on: { click: () => app.copyFacilitatorLink() } }));
   }
-  box.append(el('h3', { text: 'Export' }),
-    el('button', { type: 'button', text: 'Download the graph document', on: { click: () => app.downloadDocument() } }));
+  box.append(el('h3', { text: 'Export the diagram' }),
+    el('div', { class: 'row' },
+      el('button', { type: 'button', text: 'Arrowmoot JSON', on: { click: () => app.downloadDocument('json') } }),
+      el('button', { type: 'button', text: 'GraphML', on: { click: () => app.downloadDocument('graphml') } }),
+      el('button', { type: 'button', text: 'DOT', on: { click: () => app.downloadDocument('dot') } })));
+  if (app.isFacilitator && app.state.session.stage === 'drafting') {
+    const file = el('input', { type: 'file', accept: '.json,.graphml,.xml,.dot,.gv', 'aria-label': 'Diagram file' });
+    box.append(el('h3', { text: 'Replace the diagram from a file' }),
+      el('p', { class: 'muted', text: 'Drafting only. The current diagram is replaced (undo brings it back); open proposals are withdrawn.' }),
+      el('div', { class: 'row' }, file, el('button', { type: 'button', text: 'Import', on: { click: () => app.importFile(file.files[0]) } })));
+  }
   return box;
 }

@@ -1,7 +1,7 @@
 // The live workshop page: wires the canvas, the panels and the live connection together.
 
 import { el, svg, clear, toast, askText } from './dom.js';
-import { callApi, loadKey, saveKey, forgetKey } from './api.js';
+import { callApi, loadKey, saveKey, forgetKey, TOKEN_HEADER } from './api.js';
 import { LiveSession } from './live.js';
 import { Canvas } from './canvas.js';
 import { renderAnalysis, renderDebate, renderSelection, renderHistory, renderPeople } from './panels.js';
@@ -185,10 +185,26 @@ class SessionApp {
     navigator.clipboard?.writeText(link).then(() => toast('Facilitator link copied.'), () => toast('Copying is blocked here; the link is in this browser only.', 'error'));
   }
 
-  downloadDocument() {
-    const blob = new Blob([JSON.stringify(this.state.document, null, 2)], { type: 'application/json' });
-    const a = el('a', { href: URL.createObjectURL(blob), download: 'diagram.arrowmoot.json' });
+  async downloadDocument(format = 'json') {
+    let blob;
+    if (format === 'json') {
+      blob = new Blob([JSON.stringify(this.state.document, null, 2)], { type: 'application/json' });
+    } else {
+      const response = await fetch(`/api/sessions/${encodeURIComponent(this.sessionId)}/document?format=${format}`, { headers: { [TOKEN_HEADER]: this.token } });
+      if (!response.ok) { toast((await response.json().catch(() => ({}))).error || 'export failed', 'error'); return; }
+      blob = await response.blob();
+    }
+    const name = { json: 'diagram.arrowmoot.json', graphml: 'diagram.graphml', dot: 'diagram.gv' }[format];
+    const a = el('a', { href: URL.createObjectURL(blob), download: name });
     document.body.append(a); a.click(); a.remove();
+  }
+
+  async importFile(file) {
+    if (!file) { toast('Choose a file first.', 'error'); return; }
+    const lower = file.name.toLowerCase();
+    const format = lower.endsWith('.graphml') || lower.endsWith('.xml') ? 'graphml' : lower.endsWith('.dot') || lower.endsWith('.gv') ? 'dot' : 'json';
+    const text = await file.text();
+    await this.send({ type: 'import_document', text, format }).then(() => { this.canvas.fitted = false; this.canvas.fit(); toast(`Imported ${file.name}.`); }).catch(() => {});
   }
 
   // -- layout ---------------------------------------------------------------------------

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from fastapi import APIRouter, Body, Request
+from fastapi import APIRouter, Body, Request, Response
 
 from ...errors import BadRequest
 from ...workshop.views import history, public_state
@@ -30,7 +30,8 @@ def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
     w, token = hub.create_session(
         title=body.get("title"), facilitator_name=body.get("name"),
         document=body.get("document"), treatment=body.get("treatment"),
-        outcome=body.get("outcome"),
+        outcome=body.get("outcome"), document_text=body.get("document_text"),
+        document_format=body.get("document_format"),
     )
     member = w.facilitators()[0]
     return {"ok": True, "session_id": w.id, "join_code": w.join_code, "token": token,
@@ -88,10 +89,26 @@ def read_analysis(access: MemberDep) -> dict:
     return {"ok": True, **access.hub.analysis_now(access.session_id)}
 
 
+EXPORTS = {
+    "graphml": ("application/graphml+xml", "graphml"),
+    "dot": ("text/vnd.graphviz", "gv"),
+}
+
+
 @router.get("/sessions/{session_id}/document")
-def export_document(access: MemberDep) -> dict:
-    """The current diagram as a graph document."""
-    return access.workshop.document()
+def export_document(access: MemberDep, format: str = "json"):
+    """The current diagram as a graph document, or as GraphML or DOT (``?format=``)."""
+    if format == "json":
+        return access.workshop.document()
+    if format not in EXPORTS:
+        raise BadRequest("'format' must be json, graphml or dot", code="invalid_field")
+    from ...graph.formats import to_dot, to_graphml
+
+    diagram = access.diagram()
+    text = to_graphml(diagram) if format == "graphml" else to_dot(diagram)
+    media, suffix = EXPORTS[format]
+    return Response(text, media_type=media, headers={
+        "Content-Disposition": f'attachment; filename="diagram.{suffix}"'})
 
 
 def _public(event: dict) -> dict:
