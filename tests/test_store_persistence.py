@@ -76,3 +76,14 @@ def test_attachments_are_per_session(tmp_path):
     assert store.get_attachment(a.id, "mapping") == {"scheme": "joined"}
     assert store.get_attachment(b.id, "mapping") is None
     assert store.session_data_dir(a.id).is_dir()
+
+
+def test_undo_still_works_after_a_restart(tmp_path):
+    with TestClient(make_app(tmp_path)) as client:
+        room = open_room(client, treatment="scheme", outcome="sick_days")
+        room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    with TestClient(make_app(tmp_path)) as client:
+        again = Room(client, {"session_id": room.id, "join_code": room.join_code,
+                              "token": room.facilitator})
+        again.ok(room.facilitator, {"type": "undo"})
+        assert again.state()["document"]["arrows"] == []
