@@ -53,7 +53,7 @@ class EstimationPanel {
     this.busy = null;
     this.message = null;
     this.flagged = null;
-    this.choice = { method: 'auto', correction: 'holm' };
+    this.choice = { method: 'auto', correction: 'holm', adjust: null };
     this.pendingFile = null;
     this.version = 0;
   }
@@ -130,13 +130,13 @@ class EstimationPanel {
 
   options() {
     const method = this.choice.method;
-    return { method: method === 'auto' ? null : method, correction: this.choice.correction };
+    return { method: method === 'auto' ? null : method, correction: this.choice.correction, adjust: this.choice.adjust };
   }
 
   run(kind) {
     const opts = this.options();
     return this.act(kind, async () => {
-      const body = kind === 'estimate' ? opts : { method: opts.method };
+      const body = kind === 'estimate' ? opts : { method: opts.method, adjust: opts.adjust };
       const out = await this.call('POST', `/${kind}`, body);
       this.results[kind] = out.result;
     });
@@ -244,6 +244,19 @@ class EstimationPanel {
       r.details?.first_stage_f !== undefined ? ['first-stage F', fmt(r.details.first_stage_f)] : null,
     ].filter(Boolean);
     card.append(el('dl', { class: 'am-facts' }, ...facts.flatMap(([k, v]) => [el('dt', { text: k }), el('dd', { text: String(v) })])));
+    const sets = (r.strategy === 'adjustment' && r.other_valid_sets) || [];
+    if (sets.length > 1 || this.choice.adjust) {
+      const same = (a, b) => JSON.stringify([...a].sort()) === JSON.stringify([...b].sort());
+      card.append(el('p', { class: 'note', text: 'Other adjustment sets the diagram accepts (click to estimate with one):' }),
+        el('div', { class: 'chips' },
+          ...sets.map((set) => el('button', {
+            type: 'button', class: `chip${same(set, r.adjustment_set) ? ' chip-active' : ''}`, disabled: !this.canEdit || !!this.busy,
+            text: `{${set.join(', ') || 'nothing'}}`,
+            on: { click: () => { this.choice.adjust = set; this.run('estimate'); } },
+          })),
+          this.choice.adjust ? el('button', { type: 'button', class: 'quiet', text: 'back to the default set', disabled: !!this.busy,
+            on: { click: () => { this.choice.adjust = null; this.run('estimate'); } } }) : null));
+    }
     if (r.fixes?.length) card.append(el('p', { class: 'notice', text: `Adjustment is not possible with what is measured. Measuring ${r.fixes.map((g) => `{${g.join(', ')}}`).join(' or ')} would allow it.` }));
     for (const w of r.warnings || []) card.append(el('p', { class: 'notice', role: 'alert', text: w }));
     card.append(el('details', {}, el('summary', { text: 'What must be true for this to be a causal effect' }),

@@ -337,7 +337,7 @@ class SessionApp {
       el('h1', { class: 'session-title', text: s.session.title }),
       stepper,
       el('div', { class: 'join-code', title: `Participants open ${location.origin}/join/${s.session.join_code}` },
-        el('span', { class: 'muted', text: `Join at ${location.host}/join with code ` }), el('strong', { text: s.session.join_code })),
+        el('span', { class: 'muted', text: `${location.host}/join · code ` }), el('strong', { text: s.session.join_code })),
       el('div', { class: 'who' }, el('span', { text: `${this.me.name} · ${this.me.roles.join(', ')}` }),
         el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
       this.statusBadge = el('span', { class: `live-status live-${this.status}`, text: statusText(this.status) }));
