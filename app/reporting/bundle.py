@@ -80,6 +80,13 @@ def _without_charts(value: Any) -> Any:
     return value
 
 
+def _without_timings(value: Any) -> Any:
+    """Drop how long a computation took: it is not part of what was found."""
+    if isinstance(value, dict):
+        return {k: v for k, v in value.items() if k not in ("elapsed_ms", "timings")}
+    return value
+
+
 def _public_event(event: dict) -> dict:
     return {k: v for k, v in event.items() if k != "before"}
 
@@ -149,7 +156,7 @@ def build_bundle(workshop: Workshop, *, analysis: dict | None, attachments: dict
         "history": [_public_event(e) for e in w.log],
         "identification": analysis.get("analysis"),
         "identification_problem": analysis.get("problem"),
-        "disputes": analysis.get("disputes"),
+        "disputes": _without_timings(analysis.get("disputes")),
         "absent_arrows": analysis.get("absent"),
         "data": data,
         "estimation": estimation,
