@@ -97,3 +97,11 @@ def test_simultaneous_edits_all_land(room):
     assert errors == []
     names = {v["name"] for v in room.state()["document"]["variables"]}
     assert {f"w{i}_{j}" for i in range(4) for j in range(5)} <= names
+
+
+def test_analysis_endpoint_answers_for_the_current_revision(room):
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    answer = room.analysis()
+    assert answer["revision"] == room.state()["revision"]
+    assert answer["analysis"]["identifiable"] is True
+    assert answer["analysis"]["minimal_adjustment_sets"] == [[]]

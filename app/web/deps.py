@@ -120,12 +120,13 @@ class SessionAccess:
         return await self.hub.note(self.session_id, self.member, summary, kind=kind, **extra)
 
 
-def get_session(session_id: str, hub: HubDep) -> SessionAccess:
+# The dependencies are async so they run on the event loop, like every change.
+async def get_session(session_id: str, hub: HubDep) -> SessionAccess:
     hub.workshop(session_id)  # 404 when missing
     return SessionAccess(session_id=session_id, hub=hub)
 
 
-def get_member(session_id: str, request: Request, hub: HubDep) -> SessionAccess:
+async def get_member(session_id: str, request: Request, hub: HubDep) -> SessionAccess:
     hub.workshop(session_id)
     member = hub.authenticate(session_id, request.headers.get(TOKEN_HEADER))
     return SessionAccess(session_id=session_id, hub=hub, member=member)
@@ -134,7 +135,7 @@ def get_member(session_id: str, request: Request, hub: HubDep) -> SessionAccess:
 def require_role(role: str):
     """A dependency that lets only members holding ``role`` through."""
 
-    def dependency(access: Annotated[SessionAccess, Depends(get_member)]) -> SessionAccess:
+    async def dependency(access: Annotated[SessionAccess, Depends(get_member)]) -> SessionAccess:
         assert access.member is not None
         if not access.member.has_role(role):
             raise Forbidden(f"this needs the {role} role; ask the facilitator", code="needs_role")

@@ -13,12 +13,13 @@ from __future__ import annotations
 
 import asyncio
 import hashlib
-import os
-import sys
 import hmac
 import json
 import logging
+import os
 import secrets
+import sys
+import threading
 import time
 from pathlib import Path
 from typing import Any
@@ -144,8 +145,10 @@ class Connection:
 
 
 class Hub:
-    def __init__(self, store: Store, *, use_processes: bool = True):
+    def __init__(self, store: Store, *, use_processes: bool = True,
+                 key_lifetime: float | None = None):
         self.store = store
+        self.key_lifetime = key_lifetime  # seconds; None or 0: keys never expire
         self.worker = AnalysisWorker() if use_processes else None
         self._workshops: dict[str, Workshop] = {}
         self._locks: dict[str, asyncio.Lock] = {}
@@ -155,20 +158,27 @@ class Hub:
         self._analysis_tasks: dict[str, asyncio.Task] = {}
         self._analysis_dirty: set[str] = set()
         self._keyed: dict[str, tuple[int, dict[str, dict[str, Any]]]] = {}
+        self._load_lock = threading.Lock()
 
     # -- loading ----------------------------------------------------------------
     def workshop(self, session_id: str) -> Workshop:
         """The live workshop (load from the store on first use) or NotFound."""
         w = self._workshops.get(session_id)
         if w is None:
-            loaded = self.store.load_session(session_id) if isinstance(session_id, str) else None
-            if loaded is None:
-                raise NotFound("there is no session with that id", code="unknown_session")
-            state, revision = loaded
-            state["revision"] = revision
-            w = Workshop.from_state(state, self.store.list_events(session_id=session_id,
-                                                                  after_revision=-1))
-            self._workshops[session_id] = w
+            # A lock so two threads loading the same session cannot end up editing
+            # two different copies of it.
+            with self._load_lock:
+                w = self._workshops.get(session_id)
+                if w is None:
+                    loaded = (self.store.load_session(session_id)
+                              if isinstance(session_id, str) else None)
+                    if loaded is None:
+                        raise NotFound("there is no session with that id", code="unknown_session")
+                    state, revision = loaded
+                    state["revision"] = revision
+                    log_events = self.store.list_events(session_id=session_id, after_revision=-1)
+                    w = Workshop.from_state(state, log_events)
+                    self._workshops[session_id] = w
         return w
 
     def _lock(self, session_id: str) -> asyncio.Lock:
@@ -191,6 +201,11 @@ class Hub:
             raise Unauthorized("that session key is not valid", code="bad_token")
         if found[0] != session_id:
             raise Forbidden("that key belongs to another session", code="wrong_session")
+        if self.key_lifetime:
+            issued = self.store.token_created(digest)
+            if issued is not None and time.time() - issued > self.key_lifetime:
+                raise Unauthorized("that session key has expired; join again with the join code, "
+                                   "or ask the facilitator", code="expired_token")
         member = self.workshop(session_id).members.get(member_id)
         if member is None:
             raise Unauthorized("that session key is not valid", code="bad_token")
@@ -388,24 +403,29 @@ class Hub:
         return None
 
     def analysis_now(self, session_id: str) -> dict[str, Any]:
-        """The analysis of the current revision, computed here if not cached."""
+        """The analysis of the current revision, computed here (in this thread) if not cached."""
         cached = self.cached_analysis(session_id)
         if cached is not None:
             return cached
         w = self.workshop(session_id)
-        key = analysis_key(w)
-        try:
-            result = analyse_workshop(w)
-        except AppError:
-            raise
-        except Exception as exc:  # a numerical failure: say so, keep nothing, change nothing
-            log.exception("analysis failed for a session")
-            raise AppError(f"the analysis of this diagram failed ({type(exc).__name__}); the "
-                           "session is unchanged; try again after the next edit",
-                           code="analysis_failed", status=422) from None
-        payload = dict(result, revision=w.revision)
-        self._analysis[session_id] = payload
-        self._analysis_by_key[session_id] = (key, payload)
+        snapshot = Workshop.from_state(w.to_state())
+        return self._store_analysis(session_id, snapshot, analyse_workshop(snapshot))
+
+    async def analysis_soon(self, session_id: str) -> dict[str, Any]:
+        """:meth:`analysis_now` for async code: computed off the event loop on a snapshot."""
+        cached = self.cached_analysis(session_id)
+        if cached is not None:
+            return cached
+        w = self.workshop(session_id)
+        state = w.to_state()
+        snapshot = Workshop.from_state(state)
+        return self._store_analysis(session_id, snapshot, await self._compute(state, snapshot))
+
+    def _store_analysis(self, session_id: str, snapshot: Workshop, result: dict) -> dict[str, Any]:
+        payload = dict(result, revision=snapshot.revision)
+        self._analysis_by_key[session_id] = (analysis_key(snapshot), payload)
+        if snapshot.revision == self.workshop(session_id).revision:
+            self._analysis[session_id] = payload
         return payload
 
     def schedule_analysis(self, session_id: str) -> None:

@@ -23,7 +23,7 @@ def _links(session_id: str, join_code: str, token: str | None = None) -> dict[st
 
 
 @router.post("/sessions", status_code=201)
-def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
+async def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
     """Open a new session; the answer holds the facilitator's key (shown once)."""
     if not isinstance(body, dict):
         raise BadRequest("send a JSON object with a 'title'", code="invalid_request")
@@ -40,7 +40,7 @@ def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
 
 
 @router.get("/join/{code}")
-def read_join_code(code: str, hub: HubDep, request: Request) -> dict:
+async def read_join_code(code: str, hub: HubDep, request: Request) -> dict:
     """What a join code leads to (title and stage only)."""
     w = guarded_join_lookup(request, hub, code)
     return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
@@ -58,7 +58,7 @@ async def join_session(hub: HubDep, request: Request, body: Any = Body(...)) -> 
 
 
 @router.get("/sessions/{session_id}")
-def read_session(access: MemberDep) -> dict:
+async def read_session(access: MemberDep) -> dict:
     """The session's current state, as every participant sees it."""
     w = access.workshop
     return {"ok": True, "member": access.member.to_public(), "state": public_state(w),
@@ -78,15 +78,15 @@ async def submit_command(access: MemberDep, request: Request, body: Any = Body(.
 
 
 @router.get("/sessions/{session_id}/history")
-def read_history(access: MemberDep) -> dict:
+async def read_history(access: MemberDep) -> dict:
     """Every change with who made it and when."""
     return {"ok": True, "events": history(access.workshop)}
 
 
 @router.get("/sessions/{session_id}/analysis")
-def read_analysis(access: MemberDep) -> dict:
+async def read_analysis(access: MemberDep) -> dict:
     """What the current diagram implies, with the dispute and absent-arrow checks."""
-    return {"ok": True, **access.hub.analysis_now(access.session_id)}
+    return {"ok": True, **(await access.hub.analysis_soon(access.session_id))}
 
 
 EXPORTS = {
@@ -96,7 +96,7 @@ EXPORTS = {
 
 
 @router.get("/sessions/{session_id}/document")
-def export_document(access: MemberDep, format: str = "json"):
+async def export_document(access: MemberDep, format: str = "json"):
     """The current diagram as a graph document, or as GraphML or DOT (``?format=``)."""
     if format == "json":
         return access.workshop.document()
