@@ -74,6 +74,8 @@ def num(value: Any, digits: int = 3) -> str:
     magnitude = math.floor(math.log10(abs(value)))
     decimals = max(0, digits - 1 - magnitude)
     text = f"{value:,.{decimals}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
     return text.replace("-", "−")
 
 
