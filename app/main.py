@@ -43,7 +43,8 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
         settings.data_dir = Path(data_dir)
 
     store = Store(settings.db_path, data_dir=settings.data_dir)
-    hub = Hub(store, use_processes=settings.analysis_in_process)
+    hub = Hub(store, use_processes=settings.analysis_in_process,
+              key_lifetime=settings.key_lifetime_days * 86400.0)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):

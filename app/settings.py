@@ -22,6 +22,8 @@ SETTING_HELP = {
     "(default 2 MB); a bigger one gets 413 before it is read.",
     "join_attempts_per_minute": "Wrong join codes one address may try per minute before it gets "
     "429 (default 10).",
+    "key_lifetime_days": "Days a session key stays valid after it is issued (default 30; 0 means "
+    "keys never expire). An expired key gets 401 'expired_token'.",
     "demo_session": "Create the cycle-to-work demo session when the database has no sessions.",
     "demo_document": "Graph document used for the demo session.",
     "analysis_in_process": "Run the diagram analysis in a child process (true) so it never slows "
@@ -50,6 +52,9 @@ class Settings:
     )
     join_attempts_per_minute: int = field(
         default_factory=lambda: int(_env("join_attempts_per_minute", "10"))
+    )
+    key_lifetime_days: float = field(
+        default_factory=lambda: float(_env("key_lifetime_days", "30"))
     )
     demo_session: bool = field(
         default_factory=lambda: _env("demo_session", "1") not in ("0", "false", "no")

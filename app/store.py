@@ -227,6 +227,14 @@ class Store:
             return None
         return row["session_id"], row["member_id"]
 
+    def token_created(self, token_hash: str) -> float | None:
+        """When the key with this digest was issued (seconds since the epoch), or None."""
+        with self._lock:
+            row = self._conn.execute(
+                "SELECT created FROM tokens WHERE token_hash = ?", (token_hash,)
+            ).fetchone()
+        return row["created"] if row else None
+
     # -- events -------------------------------------------------------------
     def list_events(self, *, session_id: str, after_revision: int = 0,
                     limit: int | None = None) -> list[StoredEvent]:

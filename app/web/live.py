@@ -93,6 +93,15 @@ class AnalysisWorker:
             proc.kill()
 
 
+def _analysis_failed(exc: Exception) -> AppError:
+    """A failure inside the analysis (a numerical error, say) as a message; nothing is kept."""
+    if isinstance(exc, AppError):
+        return exc
+    log.error("analysis failed for a session: %s: %s", type(exc).__name__, exc)
+    return AppError(f"the analysis of this diagram failed ({type(exc).__name__}); the session "
+                    "is unchanged; try again after the next edit", code="analysis_failed", status=422)
+
+
 def hash_token(token: str) -> str:
     return hashlib.sha256(token.encode("utf-8")).hexdigest()
 
@@ -409,7 +418,11 @@ class Hub:
             return cached
         w = self.workshop(session_id)
         snapshot = Workshop.from_state(w.to_state())
-        return self._store_analysis(session_id, snapshot, analyse_workshop(snapshot))
+        try:
+            result = analyse_workshop(snapshot)
+        except Exception as exc:
+            raise _analysis_failed(exc) from None
+        return self._store_analysis(session_id, snapshot, result)
 
     async def analysis_soon(self, session_id: str) -> dict[str, Any]:
         """:meth:`analysis_now` for async code: computed off the event loop on a snapshot."""
@@ -419,7 +432,11 @@ class Hub:
         w = self.workshop(session_id)
         state = w.to_state()
         snapshot = Workshop.from_state(state)
-        return self._store_analysis(session_id, snapshot, await self._compute(state, snapshot))
+        try:
+            result = await self._compute(state, snapshot)
+        except Exception as exc:
+            raise _analysis_failed(exc) from None
+        return self._store_analysis(session_id, snapshot, result)
 
     def _store_analysis(self, session_id: str, snapshot: Workshop, result: dict) -> dict[str, Any]:
         payload = dict(result, revision=snapshot.revision)

@@ -76,6 +76,7 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
                 pass
         return
 
+    limit = websocket.app.state.settings.request_limit_bytes
     conn = Connection(websocket, member.id)
     # No await between building the state and registering the connection, so no
     # change can slip between them.
@@ -92,6 +93,11 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
             hub.schedule_analysis(session_id)
         while True:
             text = await websocket.receive_text()
+            if len(text) > limit:
+                conn.send(_error(AppError(f"a message is limited to {limit // 1024} KB; this one "
+                                          f"is {len(text) // 1024} KB and was ignored",
+                                          code="message_too_large", status=413)))
+                continue
             try:
                 message = json.loads(text)
             except json.JSONDecodeError:

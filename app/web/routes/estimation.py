@@ -41,6 +41,14 @@ def _refuse(exc: Exception) -> AppError:
     return AppError(exc.message, code=getattr(exc, "code", "invalid_diagram"), status=422)
 
 
+def _display_name(raw: str) -> str:
+    """The file name as people will see it: no folders (either slash), no control
+    characters, at most 120 characters. The file itself is always stored as data.<ext>."""
+    name = raw.replace("\\", "/").rsplit("/", 1)[-1]
+    name = "".join(ch for ch in name if ch.isprintable()).strip().lstrip(".")
+    return name[:120] or "data.csv"
+
+
 def _data_info(access) -> dict:
     info = access.get_attachment(DATA_KEY)
     if not info:
@@ -91,7 +99,7 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
     if declared and declared.isdigit() and int(declared) > limit:
         raise PayloadTooLarge(f"the file is {int(declared) / 1048576:.1f} MB; the limit is {limit / 1048576:.1f} MB",
                               code="file_too_large")
-    name = os.path.basename(name.strip()) or "data.csv"
+    name = _display_name(name)
     folder = access.data_dir()
     partial = folder / f"upload-{time.time_ns()}.part"
     size = 0
