@@ -275,3 +275,16 @@ def test_import_refuses_a_cyclic_dot_file_and_keeps_the_diagram(room):
                                      "text": "digraph { a -> b; b -> a }"})
     assert r.status_code == 422 and r.json()["code"] == "cycle"
     assert room.state()["document"] == before
+
+
+def test_undoing_a_rename_brings_back_names_in_proposals_and_votes(room):
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "vote", "from": "scheme", "to": "sick_days", "choice": "agree"})
+    room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
+    room.ok(room.facilitator, {"type": "propose", "kind": "remove", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "update_variable", "name": "scheme", "new_name": "joined"})
+    assert room.state()["proposals"][0]["from"] == "joined"
+    room.ok(room.facilitator, {"type": "undo"})
+    state = room.state()
+    assert state["proposals"][0]["from"] == "scheme"
+    assert state["arrows"][0]["tally"]["agree"] == 1

@@ -223,7 +223,7 @@ def _delete_variable(w: Workshop, m: Member, c: dict) -> _Change:
     w.treatment = [n for n in w.treatment if n != name]
     w.outcome = [n for n in w.outcome if n != name]
     for p in w.proposals.values():
-        if p.status == "open" and name in (p.source, p.target):
+        if p.status in ("open", "disputed") and name in (p.source, p.target):
             p.status = "withdrawn"
     extra = f" and its {len(removed)} arrow(s)" if removed else ""
     return _Change(f"deleted variable {name!r}{extra}", undoable=True)
@@ -517,11 +517,18 @@ def _undo(w: Workshop, m: Member, c: dict) -> _Change:
               outcome=before["outcome"])
     w.variables, w.arrows = variables, arrows
     w.treatment, w.outcome = list(before["treatment"]), list(before["outcome"])
-    for pid, (status, by, at) in before["proposals"].items():
+    for pid, saved in before["proposals"].items():
         p = w.proposals.get(int(pid))
         if p is not None:
-            p.status, p.settled_by, p.settled_at = status, by, at
+            p.status, p.settled_by, p.settled_at = saved[0], saved[1], saved[2]
+            if len(saved) >= 5:
+                p.source, p.target = saved[3], saved[4]
     w.arrow_flags = dict(before.get("arrow_flags", {}))
+    renamed = target["command"].get("new_name") if target["kind"] == "update_variable" else None
+    if renamed and renamed != target["command"].get("name"):
+        # votes on arrows follow the variable's name back
+        old = target["command"]["name"]
+        w.votes = {_rename_subject(s, renamed, old): v for s, v in w.votes.items()}
     target["undone"] = True
     return _Change(f"undid #{target['revision']}: {target['actor_name']} {target['summary']}",
                    undoes=target["revision"])

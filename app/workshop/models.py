@@ -148,7 +148,7 @@ class Workshop:
             "arrows": [list(a) for a in self.arrows],
             "treatment": list(self.treatment),
             "outcome": list(self.outcome),
-            "proposals": {str(p.id): [p.status, p.settled_by, p.settled_at]
+            "proposals": {str(p.id): [p.status, p.settled_by, p.settled_at, p.source, p.target]
                           for p in self.proposals.values()},
             "arrow_flags": dict(self.arrow_flags),
         }

@@ -61,8 +61,9 @@ def disputed_items(workshop: Workshop) -> list[dict[str, Any]]:
         if option not in item["options"]:
             item["options"].append(option)
 
+    names = {v["name"] for v in workshop.variables}
     for p in workshop.proposals.values():
-        if p.status not in ("open", "disputed"):
+        if p.status not in ("open", "disputed") or p.source not in names or p.target not in names:
             continue
         item = item_for(p.source, p.target)
         if p.kind == "add":
