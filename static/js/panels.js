@@ -201,7 +201,8 @@ function renderDisputes(app) {
   if (!items.length) { box.append(el('p', { class: 'muted', text: 'No arrow is in dispute. Arrows someone votes against, open proposals and arrows the facilitator marks disputed are checked here.' })); return box; }
   if (!d) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking the disputes…' })); return box; }
   box.append(el('p', { class: 'note', text: d.note }));
-  for (const item of d.items) {
+  const ordered = [...d.items].sort((x, y) => Number(y.decisive) - Number(x.decisive));  // the ones that matter first
+  for (const item of ordered) {
     box.append(el('article', { class: `dispute ${item.decisive ? 'dispute-decisive' : 'dispute-idle'}` },
       el('header', {},
         el('span', { class: 'dispute-mark', 'aria-hidden': 'true', text: item.decisive ? '!' : '–' }),
@@ -226,8 +227,10 @@ function renderAbsent(app) {
   if (!a) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking…' })); return box; }
   box.append(el('p', { class: 'note', text: a.note }));
   if (!a.arrows.length) return box;
+  const disputedPairs = new Set(app.state.disputed.map((item) => JSON.stringify(item.pair)));
   box.append(el('ul', { class: 'absent-list' }, a.arrows.slice(0, 30).map((x) => el('li', {},
-    el('strong', { text: `${x.from} → ${x.to}` }), el('span', { text: ` — ${x.text}` })))));
+    el('strong', { text: `${x.from} → ${x.to}` }), el('span', { text: ` — ${x.text}` }),
+    disputedPairs.has(JSON.stringify([x.from, x.to].sort())) ? el('span', { class: 'muted', text: ' (already under dispute)' }) : null))));
   if (a.arrows.length > 30) box.append(el('p', { class: 'muted', text: `…and ${a.arrows.length - 30} more.` }));
   return box;
 }
