@@ -1,0 +1,113 @@
+"""The report in a real chromium: served by the app, every section shown, figures inside
+the page width, printed to PDF. Screenshots and the PDF go to tests/artifacts/."""
+
+from __future__ import annotations
+
+import os
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import httpx
+import pytest
+from fastapi.testclient import TestClient
+
+from app.reporting.report import SECTIONS
+
+ROOT = Path(__file__).resolve().parents[1]
+ARTIFACTS = ROOT / "tests" / "artifacts"
+CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+pytestmark = pytest.mark.browser
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture(name="server")
+def fixture_server(tmp_path):
+    port = _free_port()
+    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "db.sqlite3"), ARROWMOOT_DATA_DIR=str(tmp_path / "data"),
+               ARROWMOOT_DEMO_SESSION="0")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--host", "127.0.0.1",
+         "--port", str(port), "--log-level", "warning"],
+        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+    )
+    base = f"http://127.0.0.1:{port}"
+    for _ in range(100):
+        try:
+            httpx.get(base + "/", timeout=0.5)
+            break
+        except httpx.HTTPError:
+            time.sleep(0.1)
+    else:
+        proc.kill()
+        pytest.fail("server did not start: " + proc.stderr.read().decode()[-2000:])
+    yield base
+    proc.terminate()
+    proc.wait(timeout=10)
+
+
+class _HttpxAsTestClient:
+    """Just enough of TestClient's surface for build_workshop, over a live server."""
+
+    def __init__(self, base: str):
+        self.http = httpx.Client(base_url=base, timeout=60)
+
+    def post(self, url, **kw):
+        return self.http.post(url, **kw)
+
+    def put(self, url, **kw):
+        return self.http.put(url, **kw)
+
+    def get(self, url, **kw):
+        return self.http.get(url, **kw)
+
+
+def test_report_opens_prints_and_keeps_figures_on_the_page(server):
+    from playwright.sync_api import sync_playwright
+
+    from tests.test_report_fixture import build_workshop
+
+    workshop = build_workshop(_HttpxAsTestClient(server))
+    url = f"/api/sessions/{workshop.session_id}/report"
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    external: list[str] = []
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1100, "height": 900},
+                                extra_http_headers={"X-Arrowmoot-Token": workshop.analyst})
+        page.on("request", lambda req: external.append(req.url) if not req.url.startswith(server) else None)
+        errors: list[str] = []
+        page.on("console", lambda msg: errors.append(msg.text) if msg.type == "error" else None)
+        page.goto(server + url)
+        for sid, heading in SECTIONS:
+            section = page.locator(f"section#{sid}")
+            assert section.count() == 1, sid
+            assert section.locator("h2").inner_text() == heading
+        # every figure fits inside its column: no cut-off charts
+        overflow = page.evaluate("""() => [...document.querySelectorAll('figure svg')].filter(svg => {
+            const r = svg.getBoundingClientRect(), f = svg.parentElement.getBoundingClientRect();
+            return r.width === 0 || r.right > f.right + 1 || r.left < f.left - 1; }).length""")
+        assert overflow == 0
+        assert page.locator("figure.diagram svg .am-node").count() == 10
+        page.screenshot(path=str(ARTIFACTS / "report_screen.png"), full_page=True)
+        page.locator("figure.diagram").screenshot(path=str(ARTIFACTS / "report_diagram.png"))
+        page.emulate_media(media="print")
+        page.screenshot(path=str(ARTIFACTS / "report_print_media.png"), full_page=True)
+        in_print = page.evaluate("""() => [...document.querySelectorAll('figure svg')].filter(svg => {
+            const r = svg.getBoundingClientRect(); return r.width === 0 || r.right > document.documentElement.clientWidth + 1;
+        }).length""")
+        assert in_print == 0
+        pdf = page.pdf(path=str(ARTIFACTS / "report.pdf"), format="A4", print_background=True)
+        browser.close()
+    assert pdf[:5] == b"%PDF-"
+    assert pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages") >= len(SECTIONS) - 1  # page breaks between sections
+    assert external == [] and errors == []
