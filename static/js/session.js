@@ -295,6 +295,16 @@ class SessionApp {
           else this.send({ type: 'reverse_arrow', from: a.from, to: a.to }).then(() => this.select({ kind: 'arrow', key: JSON.stringify([a.to, a.from]) })).catch(() => {});
         }
         break;
+      case 'ArrowUp': case 'ArrowDown': case 'ArrowLeft': case 'ArrowRight':
+        if (sel?.kind === 'variable') {
+          event.preventDefault();
+          const v = this.state.document.variables.find((x) => x.name === sel.name);
+          const step = event.shiftKey ? 5 : 20;
+          const dx = { ArrowLeft: -step, ArrowRight: step }[key] || 0;
+          const dy = { ArrowUp: -step, ArrowDown: step }[key] || 0;
+          if (v) this.send({ type: 'move_variable', name: v.name, x: (v.x || 0) + dx, y: (v.y || 0) + dy }).catch(() => {});
+        }
+        break;
       case 'l': case 'L':
         if (sel?.kind === 'variable') {
           const v = this.state.document.variables.find((x) => x.name === sel.name);
@@ -477,6 +487,7 @@ function showShortcuts() {
     ['N', 'new variable (or double-click empty space)'], ['C', 'arrow mode on/off (or Shift-drag)'],
     ['Delete', 'delete the selection (proposes while debating)'], ['R', 'reverse the selected arrow'],
     ['E / F2', 'rename the selected variable'], ['L', 'mark the selected variable unmeasured / measured'],
+    ['Arrow keys', 'nudge the selected variable (Shift: finer)'],
     ['T', 'tidy the layout'], ['F', 'fit to screen'], ['+ / −', 'zoom'], ['G', 'legend'],
     ['Ctrl+Z', 'undo (facilitator)'], ['Esc', 'clear the selection'],
   ];
