@@ -119,6 +119,7 @@ class Connection:
         self.queue: asyncio.Queue[str | None] = asyncio.Queue()
         self.task: asyncio.Task | None = None
         self.closed = False
+        self.overflowed = False
 
     def start(self) -> None:
         self.task = asyncio.create_task(self._pump())
@@ -128,6 +129,9 @@ class Connection:
             while True:
                 text = await self.queue.get()
                 if text is None:
+                    if self.overflowed:
+                        # Too far behind: close, so the page reconnects and resyncs.
+                        await self.websocket.close(code=1013)
                     return
                 await self.websocket.send_text(text)
         except Exception:
@@ -139,6 +143,7 @@ class Connection:
         if self.queue.qsize() > SEND_QUEUE_LIMIT:
             # A client this far behind will resync from its revision on reconnect.
             self.closed = True
+            self.overflowed = True
             self.queue.put_nowait(None)
             return
         self.queue.put_nowait(text)
