@@ -244,7 +244,8 @@ class SessionApp {
       button('−', 'Zoom out (-)', () => this.canvas.zoomBy(1 / 1.2)),
       button('+', 'Zoom in (+)', () => this.canvas.zoomBy(1.2)),
       button('Legend', 'Show or hide the legend (G)', () => { this.legend.hidden = !this.legend.hidden; }),
-      button('Keys', 'Keyboard shortcuts (?)', () => showShortcuts()));
+      button('Keys', 'Keyboard shortcuts (?)', () => showShortcuts()),
+      button('Big text', 'Larger text for a projector (P)', () => toggleProjector()));
   }
 
   toggleConnect() {
@@ -275,6 +276,7 @@ class SessionApp {
       case '+': case '=': this.canvas.zoomBy(1.2); break;
       case '-': this.canvas.zoomBy(1 / 1.2); break;
       case '?': showShortcuts(); break;
+      case 'p': case 'P': toggleProjector(); break;
       case 'Escape': this.view.highlight = null; this.select(null); break;
       case 'Delete': case 'Backspace':
         if (!sel) break;
@@ -482,6 +484,11 @@ function buildLegend() {
       sample('halo-noncausal', 'non-causal path shown (broken band)', 'halo')));
 }
 
+function toggleProjector() {
+  document.body.classList.toggle('projector');
+  localStorage.setItem('arrowmoot:projector', document.body.classList.contains('projector') ? '1' : '');
+}
+
 function showShortcuts() {
   const rows = [
     ['N', 'new variable (or double-click empty space)'], ['C', 'arrow mode on/off (or Shift-drag)'],
@@ -489,7 +496,7 @@ function showShortcuts() {
     ['E / F2', 'rename the selected variable'], ['L', 'mark the selected variable unmeasured / measured'],
     ['Arrow keys', 'nudge the selected variable (Shift: finer)'],
     ['T', 'tidy the layout'], ['F', 'fit to screen'], ['+ / −', 'zoom'], ['G', 'legend'],
-    ['Ctrl+Z', 'undo (facilitator)'], ['Esc', 'clear the selection'],
+    ['P', 'larger text for a projector'], ['Ctrl+Z', 'undo (facilitator)'], ['Esc', 'clear the selection'],
   ];
   const dialog = el('dialog', { class: 'ask' }, el('h2', { text: 'Keyboard shortcuts' }),
     el('table', { class: 'keys' }, el('tbody', {}, rows.map(([k, v]) => el('tr', {}, el('th', {}, el('kbd', { text: k })), el('td', { text: v }))))),
@@ -508,6 +515,7 @@ function showBlocked(message) {
 }
 
 function start() {
+  if (localStorage.getItem('arrowmoot:projector')) document.body.classList.add('projector');
   const sessionId = pageData.session_id;
   const match = location.hash.match(/key=([^&]+)/);
   if (match) {
