@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -87,6 +88,10 @@ def run_serve(args: argparse.Namespace) -> int:
 
     from .main import create_app
 
+    shown_host = f"[{args.host}]" if ":" in args.host else args.host
+    if args.host in ("0.0.0.0", "::"):
+        shown_host = "127.0.0.1"
+    os.environ.setdefault("ARROWMOOT_PUBLIC_URL", f"http://{shown_host}:{args.port}")
     app = create_app(db_path=args.db)
     if args.host not in ("127.0.0.1", "localhost", "::1"):
         print(

@@ -5,6 +5,7 @@ from __future__ import annotations
 import importlib
 import json
 import logging
+import os
 import sys
 from contextlib import asynccontextmanager
 from pathlib import Path
@@ -109,10 +110,13 @@ def _create_demo_session(hub: Hub, settings: Settings) -> None:
         log.warning("demo session not created: %s", exc)
         return
     # The only place a key is ever printed: the console of whoever started the server.
+    # ``arrowmoot serve`` sets ARROWMOOT_PUBLIC_URL to the address it binds.
+    base = os.environ.get("ARROWMOOT_PUBLIC_URL", "").rstrip("/")
+    hint = "" if base else "  Prefix the links with this server's address, e.g. http://127.0.0.1:8000\n"
     print(
         "\nArrowmoot demo session ready.\n"
-        f"  Facilitator link (keep it private): /s/{w.id}#key={token}\n"
-        f"  Join code for participants: {w.join_code}   (join link: /join/{w.join_code})\n"
-        "  Prefix the links with this server's address, e.g. http://127.0.0.1:8000\n",
+        f"  Facilitator link (keep it private): {base}/s/{w.id}#key={token}\n"
+        f"  Join code for participants: {w.join_code}   (join link: {base}/join/{w.join_code})\n"
+        + hint,
         file=sys.stderr, flush=True,
     )
