@@ -58,41 +58,30 @@ class BodyLimit:
             if name == b"content-length":
                 if not value.isdigit() or int(value) > limit:
                     return await _send_json(send, 413, error_body(message, 413, "body_too_large"))
-        seen = 0
-        refused = False
-
-        async def limited_receive():
-            nonlocal seen, refused
+        if any(name == b"content-length" for name, _ in scope.get("headers", ())):
+            return await self.app(scope, receive, send)
+        # No declared length (chunked): read up to the limit here, then hand it on whole.
+        parts, seen = [], 0
+        while True:
             event = await receive()
-            if event["type"] == "http.request":
-                seen += len(event.get("body", b""))
-                if seen > limit:
-                    refused = True
-                    raise _BodyTooLarge()
-            return event
+            if event["type"] != "http.request":
+                return  # the client went away
+            parts.append(event.get("body", b""))
+            seen += len(parts[-1])
+            if seen > limit:
+                return await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+            if not event.get("more_body", False):
+                break
+        body, handed = b"".join(parts), False
 
-        started = False
+        async def replay():
+            nonlocal handed
+            if handed:
+                return await receive()
+            handed = True
+            return {"type": "http.request", "body": body, "more_body": False}
 
-        async def tracking_send(event):
-            nonlocal started
-            if event["type"] == "http.response.start":
-                started = True
-            await send(event)
-
-        try:
-            await self.app(scope, limited_receive, tracking_send)
-        except _BodyTooLarge:
-            if not started:
-                await _send_json(send, 413, error_body(message, 413, "body_too_large"))
-        except Exception:
-            if refused and not started:
-                await _send_json(send, 413, error_body(message, 413, "body_too_large"))
-            else:
-                raise
-
-
-class _BodyTooLarge(Exception):
-    pass
+        await self.app(scope, replay, send)
 
 
 def origin_allowed(origin: str | None, host: str | None, allowed: tuple[str, ...]) -> bool:

@@ -10,6 +10,7 @@ and returns the log event. Nothing is changed when it raises.
 from __future__ import annotations
 
 import copy
+import unicodedata
 from typing import Any, Callable
 
 from ..errors import AppError, BadRequest, Conflict, Forbidden, InvalidDiagram, NotFound
@@ -45,7 +46,9 @@ def _text(command: dict, key: str, *, limit: int, required: bool = False, what: 
     if len(value) > limit:
         raise BadRequest(f"{what} is {len(value)} characters long; the limit is {limit}",
                          code="too_long")
-    if any(ord(ch) < 32 for ch in value):
+    # Control and invisible format characters (a right-to-left override, a zero-width
+    # space, a line separator) would let one name pass for another on screen.
+    if any(ord(ch) < 32 or unicodedata.category(ch) in ("Cc", "Cf", "Zl", "Zp") for ch in value):
         raise BadRequest(f"{what} holds a control character", code="invalid_field")
     return value
 
