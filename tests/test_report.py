@@ -268,3 +268,23 @@ def test_cli_report_from_a_bundle_file(reported, tmp_path, capsys):
     assert _cli(["report", str(tmp_path / "graph.json")]) == 2
     err = capsys.readouterr().err
     assert "this is a graph document, not a record bundle" in err and "Traceback" not in err
+
+
+def test_report_of_an_instrument_estimate_says_why_nothing_was_adjusted(tmp_path):
+    """With fitness unmeasured no adjustment set works; promo_email is the demo's instrument."""
+    application = make_app(tmp_path)
+    with TestClient(application) as client:
+        workshop = build_workshop(client, estimate=False)
+        base, head = f"/api/sessions/{workshop.session_id}/estimation", workshop.headers(workshop.analyst)
+        client.put(f"{base}/data?name=c.csv", content=(SAMPLE / "cycle_to_work.csv").read_bytes(), headers=head)
+        mapping = client.get(base, headers=head).json()["data"]["mapping"]
+        mapping.pop("fitness")
+        assert client.put(f"{base}/mapping", json={"mapping": mapping}, headers=head).status_code == 200
+        assert client.post(f"{base}/estimate", json={}, headers=head).json()["result"]["strategy"] == "instrument"
+        html = workshop.get("/report").text
+    text = parse(html).full_text
+    assert "No adjustment set works with the measured variables, so the effect was estimated with promo_email as an instrument" in text
+    assert "{fitness}" in text and "Adjustment set:" not in text
+    assert "Baseline fitness (fitness)" not in text or "no column of the data measures it" in text
+    root = ET.fromstring(re.search(r'<svg[^>]*class="am-diagram".*?</svg>', html, re.S).group(0))
+    assert not [t for t in root.iter(SVG_NS + "text") if t.text == "ADJUSTED"]

@@ -138,15 +138,23 @@ def _adjustment(diagram: Diagram, ident: dict | None, est: dict | None) -> dict:
     out["strategy"] = strategy
     if est and est.get("strategy") == "adjustment":
         chosen = list(est.get("adjustment_set") or [])
-    elif ident and ident.get("minimal_adjustment_sets"):
+    elif not est and ident and ident.get("strategy") == "adjustment" and ident.get("minimal_adjustment_sets"):
         chosen = list(ident["minimal_adjustment_sets"][0])
     else:
         chosen = None
-    if est and est.get("strategy") == "instrument":
-        out["note"] = (f"The effect was estimated with {est.get('instrument')} as an instrument"
-                       + (f", given {_names(est.get('given'))}" if est.get("given") else "") + ".")
-    elif est and est.get("strategy") == "front-door":
-        out["note"] = f"The effect was estimated through the mediators {_names(est.get('mediators'))} (front-door)."
+    if est and est.get("strategy") in ("instrument", "front-door"):
+        if est["strategy"] == "instrument":
+            how = (f"with {est.get('instrument')} as an instrument"
+                   + (f", given {_names(est.get('given'))}" if est.get("given") else ""))
+        else:
+            how = f"through the mediators {_names(est.get('mediators'))} (front-door)"
+        note = f"No adjustment set works with the measured variables, so the effect was estimated {how}."
+        if est.get("fixes"):
+            note += (" Measuring one of these groups would allow adjustment: "
+                     + "; ".join("{" + ", ".join(g) + "}" for g in est["fixes"]) + ".")
+        out["note"] = note
+    elif ident and ident.get("strategy") in ("instrument", "front-door") and not est:
+        out["note"] = ident.get("summary")
     if ident:
         out["other_sets"] = [s for s in ident.get("minimal_adjustment_sets", []) if chosen is None or s != sorted(chosen)]
     if chosen is None or not diagram.treatment or not diagram.outcome:
