@@ -26,8 +26,15 @@ Prints a markdown table for bench/README.md.
 
 from __future__ import annotations
 
-import argparse
 import os
+
+# Small dense problems on a 2-core machine shared with other jobs: OpenBLAS's worker
+# threads spin and multiply the cost of every small matrix product (measured 17x for
+# a 100,000 x 12 least-squares fit), so pin BLAS to one thread unless told otherwise.
+# Set before numpy is imported; the server started below inherits it.
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
+import argparse
 import platform
 import socket
 import statistics
@@ -211,6 +218,7 @@ def main() -> None:
     mb = 1024 ** 2
     load = os.getloadavg()[0]
     print(f"Machine: {platform.machine()}, {os.cpu_count()} CPUs, Python {platform.python_version()}, "
+          f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}, "
           f"load average {load:.1f} at the end of the run\n")
     print("| measure | wall clock | CPU time | target |")
     print("|---|---|---|---|")

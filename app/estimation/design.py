@@ -148,6 +148,14 @@ class Design:
 
     def take(self, index: np.ndarray) -> "Design":
         """The design restricted to (or resampled at) the given row positions."""
+        if self._x is not None:  # index the one matrix; treatment and covariates are views of it
+            x = self._x[index]
+            return replace(
+                self, y=self.y[index], t=x[:, 1], covariates=x[:, 2:],
+                instruments=self.instruments[index] if self.instruments.size else self.instruments,
+                mediators=self.mediators[index] if self.mediators.size else self.mediators,
+                rows=None, _x=x,
+            )
         return replace(
             self,
             y=self.y[index], t=self.t[index], covariates=self.covariates[index],
@@ -194,6 +202,10 @@ def _numbers(series: pd.Series) -> np.ndarray:
 
 
 def _is_binary(values: np.ndarray) -> bool:
+    head = values[:1000]
+    head = head[~np.isnan(head)]
+    if not ((head == 0) | (head == 1)).all():
+        return False  # cheap rejection for ordinary numeric columns
     present = values[~np.isnan(values)]
     zero, one = present == 0, present == 1
     return bool(zero.any() and one.any() and (zero | one).all())

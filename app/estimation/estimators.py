@@ -72,17 +72,8 @@ def regression(design: Design) -> dict:
     }
 
 
-def _chunked_hc1(x: np.ndarray, y: np.ndarray, chunk: int = 65536, column: int = 1) -> dict:
-    """OLS with HC1 errors from row chunks, memory bounded by one chunk.
-
-    The coefficients come from a Cholesky QR done twice ("CholeskyQR2",
-    Fukaya et al. 2014) on the column-scaled matrix, which is as accurate as a
-    Householder QR for any matrix that is not near-singular (perfectly
-    collinear columns are refused before this point); only Gram matrices of
-    chunks are formed, which BLAS computes fast. A last pass accumulates the
-    sandwich meat sum(e_i^2 x_i x_i'). HC1 = n/(n-k) (X'X)^-1 meat (X'X)^-1, with
-    inference on the normal distribution, as statsmodels does for HC1.
-    """
+def _least_squares(x: np.ndarray, y: np.ndarray, chunk: int = 65536) -> tuple[np.ndarray, np.ndarray]:
+    """Coefficients and R (X = QR) by CholeskyQR2 on the column-scaled matrix, in row chunks."""
     from scipy.linalg import solve_triangular
 
     n, k = x.shape
@@ -106,6 +97,25 @@ def _chunked_hc1(x: np.ndarray, y: np.ndarray, chunk: int = 65536, column: int =
         raise FitFailed("the adjustment columns are too close to collinear for a stable fit") from None
     r = r2 @ r1 * scale[None, :]  # X = Q R
     beta = solve_triangular(r, solve_triangular(r2, qy, trans="T"))
+    return beta, r
+
+
+def _chunked_hc1(x: np.ndarray, y: np.ndarray, chunk: int = 65536, column: int = 1) -> dict:
+    """OLS with HC1 errors from row chunks, memory bounded by one chunk.
+
+    The coefficients come from a Cholesky QR done twice ("CholeskyQR2",
+    Fukaya et al. 2014) on the column-scaled matrix, which is as accurate as a
+    Householder QR for any matrix that is not near-singular (perfectly
+    collinear columns are refused before this point); only Gram matrices of
+    chunks are formed, which BLAS computes fast. A last pass accumulates the
+    sandwich meat sum(e_i^2 x_i x_i'). HC1 = n/(n-k) (X'X)^-1 meat (X'X)^-1, with
+    inference on the normal distribution, as statsmodels does for HC1.
+    """
+    from scipy.linalg import solve_triangular
+
+    n, k = x.shape
+    chunks = [(a, min(a + chunk, n)) for a in range(0, n, chunk)]
+    beta, r = _least_squares(x, y, chunk)
     rinv = solve_triangular(r, np.eye(k))
     bread = rinv @ rinv.T
     meat = np.zeros((k, k))
@@ -134,9 +144,7 @@ def _chunked_hc1(x: np.ndarray, y: np.ndarray, chunk: int = 65536, column: int =
 
 
 def point_regression(design: Design) -> float:
-    x = design.x
-    coef, *_ = np.linalg.lstsq(x, design.y, rcond=None)
-    return float(coef[1])
+    return float(_least_squares(design.x, design.y)[0][1])
 
 
 # -- adjustment, binary outcome: standardization (g-formula) ------------------
@@ -170,6 +178,44 @@ def _risks(design: Design, start: list | None = None) -> tuple[float, float, lis
         return float(np.mean(fit0.predict(x))), float(np.mean(fit1.predict(x))), [fit0.params, fit1.params]
 
 
+def _logit_newton(x: np.ndarray, y: np.ndarray, start: np.ndarray, *, max_iter: int = 30,
+                  tol: float = 1e-10) -> np.ndarray:
+    """Maximum-likelihood logistic coefficients by Newton steps from ``start``.
+
+    Used only for bootstrap refits, warm-started at statsmodels' fit on the
+    full sample (a handful of steps); tests hold it to statsmodels' Logit.
+    """
+    from scipy.linalg import cho_factor, cho_solve
+    from scipy.special import expit
+
+    beta = np.array(start, dtype=float)
+    for _ in range(max_iter):
+        p = expit(x @ beta)
+        w = p * (1 - p)
+        try:
+            step = cho_solve(cho_factor((x * w[:, None]).T @ x), x.T @ (y - p))
+        except np.linalg.LinAlgError:
+            raise FitFailed("the outcome model has no unique fit on this resample") from None
+        beta += step
+        if np.max(np.abs(step)) < tol * (1 + np.max(np.abs(beta))):
+            return beta
+    raise FitFailed("the outcome model did not converge on this resample (separation?)")
+
+
+def _quick_risks(design: Design, start: list) -> tuple[float, float]:
+    from scipy.special import expit
+
+    x = _with_const(design.covariates)
+    treated = design.t == 1
+    risks = []
+    for params, mask in zip(start, (~treated, treated)):
+        if design.y[mask].min() == design.y[mask].max():
+            raise FitFailed("an arm has a single outcome value on this resample")
+        beta = _logit_newton(x[mask], design.y[mask], params)
+        risks.append(float(np.mean(expit(x @ beta))))
+    return risks[0], risks[1]
+
+
 def _contrasts(p0: float, p1: float) -> dict:
     odds = (lambda p: p / (1 - p))
     return {
@@ -195,7 +241,11 @@ def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> d
     for _ in range(resamples):
         idx = rng.integers(0, design.n, design.n)
         try:
-            b0, b1, _ = _risks(design.take(idx), start)
+            sample = design.take(idx)
+            try:
+                b0, b1 = _quick_risks(sample, start)
+            except FitFailed:  # no interior maximum on this resample: let statsmodels decide
+                b0, b1, _ = _risks(sample, start)
         except FitFailed:
             failures += 1
             continue

@@ -120,6 +120,17 @@ def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[
     return text, assumptions + [model]
 
 
+def _valid_sets(plan: Plan) -> list[list[str]]:
+    """The sets the analyst may pick from: the optimal one (if measurable) and the minimal ones."""
+    sets = [list(s) for s in plan.analysis.get("minimal_adjustment_sets") or []]
+    best = plan.analysis.get("optimal_adjustment_set")
+    if best is not None and sorted(best) not in [sorted(s) for s in sets]:
+        sets.insert(0, list(best))
+    if plan.adjustment_set and sorted(plan.adjustment_set) not in [sorted(s) for s in sets]:
+        sets.insert(0, list(plan.adjustment_set))
+    return sets
+
+
 def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
              method: str | None = None, adjust: list[str] | None = None, checks: bool = True,
              correction: str = "holm", alpha: float = 0.05) -> dict:
@@ -148,7 +159,7 @@ def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
         "mapping": mapping,
         "unmeasured": plan.unmeasured,
         "identification_summary": plan.analysis["summary"],
-        "other_valid_sets": plan.analysis["minimal_adjustment_sets"],
+        "other_valid_sets": _valid_sets(plan),
         "fixes": plan.fixes,
         "notes": plan.notes,
         "explanation": text,

@@ -114,7 +114,7 @@ def _read_csv(source, shown: str) -> pd.DataFrame:
     # pyarrow reads in parallel; converting with split_blocks + self_destruct hands
     # numeric buffers to pandas without a second copy (peak memory ~ one table)
     try:
-        table = pa_csv.read_csv(source)
+        table = pa_csv.read_csv(source, read_options=pa_csv.ReadOptions(block_size=16 << 20))
     except pa.ArrowInvalid as exc:
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         if "Empty CSV file" in text:
@@ -123,7 +123,10 @@ def _read_csv(source, shown: str) -> pd.DataFrame:
     except Exception as exc:
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise NotATable(f"{shown} could not be read as a CSV table: {text}") from None
-    return table.to_pandas(split_blocks=True, self_destruct=True, types_mapper=_STRINGS.get)
+    frame = table.to_pandas(split_blocks=True, self_destruct=True, types_mapper=_STRINGS.get)
+    del table
+    pa.default_memory_pool().release_unused()  # hand the parser's buffers back to the system
+    return frame
 
 
 def _read_parquet(source, shown: str) -> pd.DataFrame:
@@ -173,7 +176,7 @@ def profile_table(frame: pd.DataFrame, *, examples: int = 3) -> list[dict]:
     for name in frame.columns:
         series = frame[name]
         missing = int(series.isna().sum())
-        values = series.dropna()
+        values = series.dropna() if missing else series
         distinct = int(values.nunique())
         kind = column_kind(series) if distinct else "empty"
         entry: dict = {
@@ -194,7 +197,7 @@ def profile_table(frame: pd.DataFrame, *, examples: int = 3) -> list[dict]:
             entry["max"] = _plain(values.max())
             entry["mean"] = _plain(values.mean())
         else:
-            top = values.astype(str).value_counts().head(examples)
+            top = values.value_counts().head(examples)
             entry["examples"] = [str(v) for v in top.index]
         out.append(entry)
     return out
