@@ -54,6 +54,8 @@ def _data_info(access) -> dict:
     if not info:
         raise BadRequest("no data is attached to this session yet; upload a CSV or Parquet file first",
                          code="no_data")
+    if info.get("mapping") is None:  # attached outside a request: propose exact-name matches
+        info = {**info, "mapping": propose_mapping(access.diagram().names, info["columns"])}
     return info
 
 
@@ -73,6 +75,14 @@ def _frame(access, info: dict):
     return frame
 
 
+def _fingerprint(access) -> str:
+    import hashlib
+    import json
+
+    text = json.dumps(access.document(), sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
 def _variables(access) -> list[dict]:
     d = access.diagram()
     return [{"name": v.name, "label": v.label, "latent": v.latent,
@@ -80,13 +90,43 @@ def _variables(access) -> list[dict]:
             for v in d.variables]
 
 
+def attach_file(store, session_id: str, path: str | os.PathLike, *, name: str | None = None) -> dict:
+    """Attach a data file to a session outside a request (e.g. the demo session at start-up).
+
+    ``store`` is the app's Store (``put_attachment`` and ``session_data_dir``).
+    The file is copied into the session's data directory, checked and profiled
+    exactly as an upload is. Raises DataError if the file is unusable.
+    """
+    import shutil
+
+    source = Path(path)
+    frame = load_table(source, max_bytes=None, name=name or source.name)
+    folder = store.session_data_dir(session_id)
+    with open(source, "rb") as handle:
+        stored = "data.parquet" if handle.read(4) == b"PAR1" else "data.csv"
+    shutil.copyfile(source, folder / stored)
+    info = {"name": name or source.name, "stored": stored, "bytes": source.stat().st_size,
+            "rows": int(len(frame)), "columns": list(map(str, frame.columns)),
+            "profile": service.json_ready(profile_table(frame)), "mapping": None, "uploaded_at": time.time()}
+    store.put_attachment(session_id, DATA_KEY, info)
+    return info
+
+
 @router.get("")
 def read_estimation(access: MemberDep) -> dict:
     """What is attached, how it is mapped, and the latest results."""
     info = access.get_attachment(DATA_KEY)
-    out = {"ok": True, "stage": access.stage, "data": info, "variables": _variables(access)}
+    if info and info.get("mapping") is None:
+        info = {**info, "mapping": propose_mapping(access.diagram().names, info["columns"])}
+    out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
+           "variables": _variables(access)}
+    fingerprint = _fingerprint(access)
     for key in RESULT_KEYS:
-        out[key.split(".", 1)[1]] = access.get_attachment(key)
+        result = access.get_attachment(key)
+        if result is not None:
+            result["stale"] = (result.get("diagram_fingerprint") != fingerprint
+                               or result.get("data_uploaded_at") != (info or {}).get("uploaded_at"))
+        out[key.split(".", 1)[1]] = result
     return out
 
 
@@ -177,13 +217,18 @@ def _options(body: Any) -> dict:
 async def _run(access, fn, **kwargs):
     access.require_stage(*STAGES)
     info = _data_info(access)
+    fingerprint = _fingerprint(access)
     try:
         diagram = access.diagram()
         frame = await run_in_threadpool(_frame, access, info)
         result = await run_in_threadpool(lambda: fn(diagram, frame, info.get("mapping"), **kwargs))
     except (DataError, DiagramError) as exc:
         raise _refuse(exc) from None
-    return service.json_ready(result)
+    result = service.json_ready(result)
+    result["diagram_fingerprint"] = fingerprint
+    result["data_name"] = info["name"]
+    result["data_uploaded_at"] = info.get("uploaded_at")
+    return result
 
 
 @router.post("/estimate")
@@ -250,7 +295,7 @@ async def create_disputes(access: AnalystDep, body: Any = Body(None)) -> dict:
         items = [{"pair": i["pair"], "options": i["options"]} for i in disputed_items(access.workshop)]
     if not isinstance(items, list):
         raise BadRequest("'disputed' must be a list of arrows", code="invalid_field")
-    result = await _run(access, service.disputed_estimates, disputed=items, method=opts["method"])
+    result = await _run(access, service.disputed_estimates, disputed=items, method=opts.get("method"))
     rows = [{"label": r["label"], "estimate": r["estimate"],
              "low": r["ci"][0] if r["ci"] else None, "high": r["ci"][1] if r["ci"] else None,
              "problem": r["problem"]} for r in result["rows"]]
