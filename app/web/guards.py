@@ -1,8 +1,8 @@
 """Guards in front of every route: request size, cross-origin requests, join-code guessing.
 
 * :class:`BodyLimit` refuses a request body over ``settings.request_limit_bytes``
-  with 413 before the app reads it (the data upload route has its own, larger
-  limit and streams to disk, so it is left to that route).
+  with 413 before the app reads it (the data upload and record-bundle routes
+  have their own, larger limits and stream, so they are left to those routes).
 * :class:`OriginGuard` refuses a browser request whose ``Origin`` is neither this
   server nor one of ``settings.allowed_origins`` (403), and answers the
   browser's pre-flight for the allowed ones. Requests without an ``Origin``
@@ -25,7 +25,8 @@ from ..errors import AppError, NotFound, error_body
 __all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin_allowed",
            "guarded_join_lookup"]
 
-UPLOAD_PATH = re.compile(r"^/api/sessions/[^/]+/estimation/data$")
+# Routes that stream their body to their own, larger limit: data uploads and record bundles.
+UPLOAD_PATH = re.compile(r"^(/api/sessions/[^/]+/estimation/data|/api/records/(import|report))$")
 
 
 class TooManyAttempts(AppError):
