@@ -23,7 +23,9 @@ Everything below is stable; import from ``app.web.deps``.
   ``await .log(summary, kind="estimation", **extra)`` (adds an event to the
   session history and pushes the new state to every participant).
 * ``StoreDep`` / ``HubDep`` / ``SettingsDep`` for the raw objects
-  (``request.app.state.store`` etc.).
+  (``request.app.state.store`` etc.). ``hub.analysis_now(session_id)`` (sync) and
+  ``await hub.analysis_soon(session_id)`` give the panel's analysis of the current
+  revision: ``{"revision", "analysis", "problem", "disputes", "absent"}``.
 * Errors: raise ``app.errors.NotFound`` / ``BadRequest`` / ``Conflict`` /
   ``Forbidden`` / ``PayloadTooLarge`` (or any ``AppError``); one handler turns them
   into ``{"ok": false, "error", "status", "code"}``. ``DiagramError`` becomes 422.
