@@ -213,6 +213,12 @@ class EstimationPanel {
     return box;
   }
 
+  /** A note when a result was computed on another version of the diagram or another data file. */
+  staleNote(result) {
+    if (!result?.stale) return null;
+    return el('p', { class: 'notice', text: 'Computed on another version of the diagram or another data file; run it again.' });
+  }
+
   renderEstimate() {
     if (!this.data) return null;
     const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
@@ -226,7 +232,7 @@ class EstimationPanel {
       el('div', { class: 'row end' }, this.button('Estimate', 'estimate', () => this.run('estimate'), true)));
     if (!last) return box;
     const r = last;
-    const card = el('div', { class: 'am-result', dataset: { result: 'estimate' } },
+    const card = el('div', { class: 'am-result', dataset: { result: 'estimate' } }, this.staleNote(r),
       el('p', { class: 'am-headline' },
         el('strong', { text: fmt(r.estimate) }),
         ` [${fmt(r.ci[0])}, ${fmt(r.ci[1])}]`,
@@ -305,6 +311,7 @@ class EstimationPanel {
     const rows = s.checks.map((c) => el('tr', { class: c.verdict === 'warns' ? 'am-fail' : '', title: c.detail },
       el('th', { text: c.label }), el('td', { text: fmt(c.original) }), el('td', { text: fmt(c.new) }),
       el('td', { text: fmt(c.p_value, 2) }), el('td', { text: c.verdict })));
+    { const note = this.staleNote(s); if (note) box.append(note); }
     box.append(table(['check', 'original', 'new', 'p', 'verdict'], rows, 'am-stability'));
     box.append(el('p', { class: 'note', text: 'Resampled rows and split halves should centre on the original; with a shuffled treatment the estimate should vanish; an invented common cause should not move it.' }));
     return box;
@@ -316,6 +323,7 @@ class EstimationPanel {
       el('div', { class: 'row end' }, this.button('Analyse sensitivity', 'sensitivity', () => this.run('sensitivity'))));
     const s = this.results.sensitivity;
     if (!s) return box;
+    { const note = this.staleNote(s); if (note) box.append(note); }
     if (s.regression) {
       const g = s.regression;
       box.append(el('dl', { class: 'am-facts' },
@@ -338,6 +346,7 @@ class EstimationPanel {
       el('div', { class: 'row end' }, this.button('Estimate under each version', 'disputes', () => this.run('disputes'))));
     const d = this.results.disputes;
     if (!d) return box;
+    { const note = this.staleNote(d); if (note) box.append(note); }
     if (!d.rows.length || !d.disputed.length) {
       box.append(el('p', { class: 'note', text: 'No arrow is in dispute: there is one version of the diagram.' }));
     }

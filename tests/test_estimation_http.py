@@ -107,3 +107,32 @@ def test_participant_cannot_estimate(room):
     joined = client.post("/api/join", json={"code": made["join_code"], "name": "Pat"}).json()
     r = client.post(f"{base}/estimate", json={}, headers={"X-Arrowmoot-Token": joined["token"]})
     assert r.status_code == 403
+
+
+def test_attach_file_outside_a_request_then_estimate(room):
+    """The helper for seeding a session (e.g. the demo) attaches data as an upload would."""
+    from app.web.routes.estimation import attach_file
+
+    client, base, headers, made = room
+    store = client.app.state.store
+    info = attach_file(store, made["session_id"], SAMPLE / "cycle_to_work.csv")
+    assert info["rows"] == 4000
+    state = client.get(base, headers=headers).json()
+    assert state["data"]["mapping"]["fitness"] == "fitness"
+    result = client.post(f"{base}/estimate", json={}, headers=headers).json()["result"]
+    assert result["ci"][0] <= TRUTH <= result["ci"][1]
+
+
+def test_results_are_marked_stale_after_the_diagram_changes(room):
+    client, base, headers, made = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    client.post(f"{base}/sensitivity", json={}, headers=headers)
+    assert client.get(base, headers=headers).json()["sensitivity"]["stale"] is False
+    commands = f"/api/sessions/{made['session_id']}/commands"
+    for command in ({"type": "set_stage", "stage": "drafting", "reason": "age affects fitness after all?"},
+                    {"type": "delete_arrow", "from": "age", "to": "fitness"},
+                    {"type": "set_stage", "stage": "agreed"}):
+        assert client.post(commands, json=command, headers=headers).status_code == 200
+    assert client.get(base, headers=headers).json()["sensitivity"]["stale"] is True
+    client.put(f"{base}/data?name=again.csv", content=CSV, headers=headers)
+    assert client.get(base, headers=headers).json()["sensitivity"] is None  # new data clears old results
