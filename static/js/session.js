@@ -223,7 +223,10 @@ class SessionApp {
     const side = el('aside', { class: 'side' }, this.tabs, this.panel, this.estimationPanel);
     app.append(this.bar, el('div', { class: 'workspace' }, canvasWrap, side));
     this.canvas = new Canvas(this.canvasHost, {
-      onCommand: (c) => this.send(c),
+      onCommand: (c) => this.send(c).then((ack) => {
+        if (c.type === 'propose') toast(`Your proposal to add ${c.from} → ${c.to} is up for a vote (Debate tab).`);
+        return ack;
+      }),
       onSelect: (s) => this.select(s),
       onAddVariable: (x, y) => this.addVariableAt(x, y),
       arrowCommand: (from, to) => this.arrowCommand(from, to),
@@ -348,7 +351,8 @@ class SessionApp {
     clear(this.bar).append(
       el('h1', { class: 'session-title', text: s.session.title }),
       stepper,
-      el('div', { class: 'join-code', title: `Participants open ${location.origin}/join/${s.session.join_code}` },
+      el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
+        on: { click: () => showJoinScreen(s.session.join_code) } },
         el('span', { class: 'muted', text: `${location.host}/join · code ` }), el('strong', { text: s.session.join_code })),
       el('div', { class: 'who' }, el('span', { text: `${this.me.name} · ${this.me.roles.join(', ')}` }),
         el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
@@ -482,6 +486,17 @@ function buildLegend() {
       sample('edge edge-proposed', 'proposed arrow (short dashes)', 'line'),
       sample('halo-causal', 'causal path shown (solid band)', 'halo'),
       sample('halo-noncausal', 'non-causal path shown (broken band)', 'halo')));
+}
+
+function showJoinScreen(code) {
+  const dialog = el('dialog', { class: 'join-screen' },
+    el('p', { text: 'Join this session at' }),
+    el('p', { class: 'join-url', text: `${location.origin}/join` }),
+    el('p', { text: 'with the code' }),
+    el('p', { class: 'join-big', text: code }),
+    el('button', { type: 'button', class: 'primary', text: 'Close', on: { click: () => { dialog.close(); dialog.remove(); } } }));
+  document.body.append(dialog);
+  dialog.showModal();
 }
 
 function toggleProjector() {
