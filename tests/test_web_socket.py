@@ -105,3 +105,28 @@ def test_analysis_endpoint_answers_for_the_current_revision(room):
     assert answer["revision"] == room.state()["revision"]
     assert answer["analysis"]["identifiable"] is True
     assert answer["analysis"]["minimal_adjustment_sets"] == [[]]
+
+
+def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_document):
+    """With analysis_in_process on, the analysis comes from `python -m app.web.worker`;
+    it must equal calling the engine's analyze() directly."""
+    from fastapi.testclient import TestClient
+
+    from app.graph.document import parse_document
+    from app.graph.identification import analyze
+    from app.main import create_app
+    from app.settings import Settings
+
+    settings = Settings(db_path=tmp_path / "w.sqlite3", data_dir=tmp_path, demo_session=False,
+                        analysis_in_process=True)
+    with TestClient(create_app(settings=settings)) as client:
+        room = open_room(client, document=demo_document)
+        with client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+            hello(ws, room.facilitator)
+            message = receive_until(ws, "analysis")
+        worker = client.app.state.hub.worker
+        assert worker is not None and worker.process is not None  # it really ran out of process
+    expected = analyze(parse_document(demo_document))
+    assert message["analysis"]["minimal_adjustment_sets"] == expected["minimal_adjustment_sets"]
+    assert message["analysis"]["identifiable"] == expected["identifiable"]
+    assert message["analysis"]["roles"] == expected["roles"]
