@@ -266,10 +266,10 @@ def diagram_svg(diagram: Diagram, *, adjusted: Iterable[str] = (), roles: dict |
         words = []
         if kind == "disputed":
             words.append("disputed")
-        elif kind == "proposed":
-            words.append("proposed")
         if badges.get((a, b)):
             words.append(str(badges[(a, b)]))
+        elif kind == "proposed":
+            words.append("add?")
         if words:
             svg, box = _badge(x1, y1, x2, y2, "  ".join(words))
             badge_parts.append(svg)

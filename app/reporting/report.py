@@ -240,8 +240,11 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
             badges[(av.get("from"), av.get("to"))] = f"+{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
     for p in bundle.get("proposals") or []:
         t = p.get("tally") or {}
-        if p.get("kind") == "add" and p.get("status") in ("open", "disputed") and t.get("total"):
-            badges[(p.get("from"), p.get("to"))] = f"#{p.get('id')} +{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
+        if p.get("kind") == "add" and p.get("status") in ("open", "disputed"):
+            text = f"#{p.get('id')} add?"
+            if t.get("total"):
+                text += f" +{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
+            badges[(p.get("from"), p.get("to"))] = text
     adjustment = _adjustment(diagram, ident, est)
     roles = (ident or {}).get("roles") or {}
     figure = diagram_svg(diagram, adjusted=adjustment["set"] or (), roles=roles, disputed=disputed_arrows,
