@@ -181,6 +181,9 @@ def _badge(x1: float, y1: float, x2: float, y2: float, text: str) -> tuple[str, 
     if ny > 0:
         nx, ny = -nx, -ny
     offset = 15 + abs(nx) * (w / 2 - 8)
+    if length < w + 24:
+        # A short arrow between close boxes: lift the label clear of both boxes.
+        offset = max(offset, 40.0)
     bx, by = (x1 + x2) / 2 + nx * offset, (y1 + y2) / 2 + ny * offset
     svg = (f'<g class="am-badge" transform="translate({bx:.1f},{by:.1f})">'
            f'<rect x="{-w / 2:.1f}" y="-11" width="{w:.1f}" height="22" rx="4" fill="#fff" stroke="#9aa0aa"/>'
