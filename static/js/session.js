@@ -174,6 +174,11 @@ class SessionApp {
     this.send({ type: 'set_stage', stage, reason }).catch(() => {});
   }
 
+  async renameSession() {
+    const title = await askText('Rename the session', { label: 'Title', value: this.state.session.title, required: true, confirm: 'Rename' });
+    if (title && title !== this.state.session.title) this.send({ type: 'rename_session', title }).catch(() => {});
+  }
+
   loadHistory() {
     callApi('GET', `/api/sessions/${encodeURIComponent(this.sessionId)}/history`, undefined, this.token)
       .then((data) => { this.history = data.events; if (this.tab === 'history') this.refreshPanel(); })
@@ -349,7 +354,10 @@ class SessionApp {
     }));
     const onlineCount = this.online.size;
     clear(this.bar).append(
-      el('h1', { class: 'session-title', text: s.session.title }),
+      this.isFacilitator
+        ? el('h1', { class: 'session-title' }, el('button', { type: 'button', class: 'title-button', text: s.session.title, title: 'Rename the session',
+          on: { click: () => this.renameSession() } }))
+        : el('h1', { class: 'session-title', text: s.session.title }),
       stepper,
       el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
         on: { click: () => showJoinScreen(s.session.join_code) } },
