@@ -175,7 +175,7 @@ def test_import_read_only_gives_a_reader_key(recorded):
     assert workshop.client.get(f"/api/sessions/{made['session_id']}/export/bundle", headers=head).status_code == 403
     r = workshop.client.post(f"/api/sessions/{made['session_id']}/commands",
                              json={"type": "set_stage", "stage": "drafting", "reason": "x"}, headers=head)
-    assert r.status_code == 403
+    assert r.status_code == 409 and r.json()["code"] == "read_only"
 
 
 def _valid(bundle):
@@ -232,3 +232,16 @@ def test_import_refuses_non_json_and_empty_bodies(recorded):
     assert r.status_code == 400 and r.json()["code"] == "no_bundle"
     r = workshop.client.post("/api/records/import?mode=edit", content=b"{}")
     assert r.status_code == 400 and "'mode' must be new or read-only" in r.json()["error"]
+
+
+def test_read_only_session_refuses_every_change(recorded):
+    workshop, bundle, _ = recorded
+    made = _import(workshop.client, bundle, mode="read-only", name="Auditor").json()
+    head = {TOKEN_HEADER: made["token"]}
+    url = f"/api/sessions/{made['session_id']}/commands"
+    before = workshop.client.get(f"/api/sessions/{made['session_id']}", headers=head).json()["state"]
+    for command in ({"type": "move_variable", "name": "age", "x": 1, "y": 2}, {"type": "tidy"}):
+        r = workshop.client.post(url, json=command, headers=head)
+        assert r.status_code == 409 and r.json()["code"] == "read_only"
+    after = workshop.client.get(f"/api/sessions/{made['session_id']}", headers=head).json()["state"]
+    assert after["document"] == before["document"] and after["revision"] == before["revision"]
