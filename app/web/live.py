@@ -292,6 +292,10 @@ class Hub:
             raise BadRequest("a command key must be text of 1 to 100 characters",
                              code="invalid_key")
         w = self.workshop(session_id)
+        if self.store.get_attachment(session_id, "record.read_only"):
+            # reopened read-only from a record bundle (app.web.routes.records)
+            raise AppError("this session was reopened read-only from a record; import the bundle "
+                           "as a new session to change it", code="read_only", status=409)
         async with self._lock(session_id):
             if key is not None:
                 earlier = self._find_keyed(session_id, f"{member.id}:{key}")
