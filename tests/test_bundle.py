@@ -202,6 +202,13 @@ BROKEN = [
     ("edited graph", lambda b: {**b, "graph": {**b["graph"], "arrows": b["graph"]["arrows"][1:]}},
      "the bundle's graph and its workshop state disagree", "bundle_inconsistent"),
     ("bad event", lambda b: {**b, "workshop": {**b["workshop"], "events": [{"revision": "x"}]}}, "event 1: 'revision'", "bundle_bad_part"),
+    ("no facilitator", lambda b: {**b, "workshop": {**b["workshop"], "state": {**b["workshop"]["state"], "members": [
+        {**m, "role": "participant"} for m in b["workshop"]["state"]["members"]]}}}, "has no facilitator", "bundle_bad_state"),
+    ("unknown vote", lambda b: {**b, "workshop": {**b["workshop"], "state": {**b["workshop"]["state"], "votes": {
+        "proposal:1": {"m1": {"choice": "maybe", "reason": "", "at": 1.0}}}}}}, "is not one of agree, disagree, unsure",
+     "bundle_bad_state"),
+    ("damaged member", lambda b: {**b, "workshop": {**b["workshop"], "state": {**b["workshop"]["state"], "members": [
+        {"id": "m1", "nick": "x"}]}}}, "the bundle's workshop state is damaged", "bundle_bad_state"),
     ("estimate not a number", lambda b: {**b, "estimation": {**b["estimation"], "estimate": {**b["estimation"]["estimate"], "estimate": "big"}}},
      "estimation.estimate.estimate in the bundle must be a number", "bundle_bad_part"),
 ]

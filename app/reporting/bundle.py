@@ -233,6 +233,19 @@ def validate_bundle(obj: Any) -> dict[str, Any]:
     if restored_diagram.to_document() != diagram.to_document():
         raise BundleError("the bundle's graph and its workshop state disagree; the file was edited by hand",
                           code="bundle_inconsistent")
+    from ..workshop.models import PROPOSAL_KINDS, PROPOSAL_STATUSES, ROLES, VOTE_CHOICES
+    for m in restored.members.values():
+        if not isinstance(m.id, str) or not isinstance(m.name, str) or m.role not in ROLES:
+            raise BundleError("a member in the bundle's workshop has no valid id, name or role",
+                              code="bundle_bad_state")
+    for p in restored.proposals.values():
+        if p.kind not in PROPOSAL_KINDS or p.status not in PROPOSAL_STATUSES or not isinstance(p.id, int):
+            raise BundleError(f"proposal {p.id!r} in the bundle has an unknown kind or status",
+                              code="bundle_bad_state")
+    for subject, by in restored.votes.items():
+        if any(v.choice not in VOTE_CHOICES for v in by.values()):
+            raise BundleError(f"a vote on {subject} in the bundle is not one of {', '.join(VOTE_CHOICES)}",
+                              code="bundle_bad_state")
     if not restored.members or not restored.facilitators():
         raise BundleError("the bundle's workshop has no facilitator", code="bundle_bad_state")
     from ..workshop.stages import STAGES
