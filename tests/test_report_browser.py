@@ -111,3 +111,36 @@ def test_report_opens_prints_and_keeps_figures_on_the_page(server):
     assert pdf[:5] == b"%PDF-"
     assert pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages") >= len(SECTIONS) - 1  # page breaks between sections
     assert external == [] and errors == []
+
+
+def test_records_forms_work_in_a_browser(server, tmp_path):
+    """A real form post (browsers send an Origin header the guard checks) reopens a bundle."""
+    from playwright.sync_api import sync_playwright
+
+    from tests.test_report_fixture import build_workshop
+
+    workshop = build_workshop(_HttpxAsTestClient(server), estimate=False)
+    bundle = tmp_path / "s.record.json"
+    bundle.write_bytes(httpx.get(f"{server}/api/sessions/{workshop.session_id}/export/bundle",
+                                 headers={"X-Arrowmoot-Token": workshop.facilitator}).content)
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1000, "height": 800})
+        page.goto(server + "/records")
+        form = page.locator('form[action="/records/import"]')
+        form.locator("input[type=file]").set_input_files(str(bundle))
+        form.locator("input[name=name]").fill("Quinn")
+        form.locator("select[name=mode]").select_option("read-only")
+        form.locator("button").click()
+        page.wait_for_load_state()
+        page.screenshot(path=str(ARTIFACTS / "records_reopened.png"), full_page=True)
+        assert page.locator("h1").first.inner_text() == "Session reopened"
+        assert "read-only session" in page.locator("section").first.inner_text()
+        page.goto(server + "/records")
+        form = page.locator('form[action="/records/report"]')
+        form.locator("input[type=file]").set_input_files(str(bundle))
+        form.locator("button").click()
+        page.wait_for_load_state()
+        assert page.locator("section#decisions h2").inner_text() == "The decision record"
+        browser.close()

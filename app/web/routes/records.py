@@ -5,6 +5,7 @@
     GET  /api/sessions/{id}/report                                 the report as one HTML page
     POST /api/records/import?mode=new|read-only&name=...           reopen a bundle as a session
     POST /api/records/report                                       the report of an uploaded bundle
+    GET  /records, POST /records/report, POST /records/import      the same as plain HTML forms
 
 Exports and the report need the analyst or facilitator key. An import opens
 a fresh session (new id, join code and key): ``new`` makes the importer its
@@ -20,7 +21,7 @@ import secrets
 import time
 from typing import Any
 
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse, Response
 
 from ...errors import AppError, BadRequest, PayloadTooLarge
@@ -120,7 +121,10 @@ async def _read_bundle(request: Request) -> dict[str, Any]:
             raise PayloadTooLarge(f"the bundle is over the limit of {MAX_BUNDLE_BYTES / 1048576:.0f} MB",
                                   code="bundle_too_large")
         chunks.append(chunk)
-    raw = b"".join(chunks)
+    return _decode_bundle(b"".join(chunks))
+
+
+def _decode_bundle(raw: bytes) -> dict[str, Any]:
     if not raw.strip():
         raise BadRequest("send the record bundle (a .record.json file) as the request body", code="no_bundle")
     try:
@@ -218,3 +222,58 @@ async def create_report_from_bundle(request: Request) -> HTMLResponse:
         raise AppError(f"part of the bundle is damaged and cannot be shown ({type(err).__name__}: {err})",
                        code="bundle_bad_part", status=422) from None
     return _report_response(html)
+
+
+# -- plain HTML forms (no script needed) ---------------------------------------------------
+def _page(request: Request, status: int = 200, **context) -> HTMLResponse:
+    response = request.app.state.templates.TemplateResponse(
+        request, "report_records.html", {"title": "Workshop records", "page_data": {"page": "records"},
+                                         "opened": None, "error": None, **context}, status_code=status)
+    # With "no-referrer" browsers send "Origin: null" on a form post, which the
+    # cross-origin guard refuses; "same-origin" lets the forms name this server.
+    response.headers["Referrer-Policy"] = "same-origin"
+    return response
+
+
+@router.get("/records", include_in_schema=False)
+def records_page(request: Request) -> HTMLResponse:
+    """Forms to show the report of a record bundle or reopen it as a session."""
+    return _page(request)
+
+
+async def _form_bundle(upload: UploadFile) -> dict[str, Any]:
+    raw = await upload.read(MAX_BUNDLE_BYTES + 1)
+    if len(raw) > MAX_BUNDLE_BYTES:
+        raise PayloadTooLarge(f"the bundle is over the limit of {MAX_BUNDLE_BYTES / 1048576:.0f} MB",
+                              code="bundle_too_large")
+    return _decode_bundle(raw)
+
+
+@router.post("/records/report", include_in_schema=False)
+async def records_form_report(request: Request, bundle: UploadFile = File(...)) -> HTMLResponse:
+    try:
+        data = await _form_bundle(bundle)
+        html = render_report(data)
+    except AppError as err:
+        return _page(request, status=err.status, error=err.message)
+    except BundleError as err:
+        return _page(request, status=422, error=err.message)
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
+        return _page(request, status=422, error=f"part of the bundle is damaged and cannot be shown ({err})")
+    return _report_response(html)
+
+
+@router.post("/records/import", include_in_schema=False)
+async def records_form_import(request: Request, hub: HubDep, bundle: UploadFile = File(...),
+                              mode: str = Form("new"), name: str = Form("")) -> HTMLResponse:
+    try:
+        if mode not in ("new", "read-only"):
+            raise BadRequest("choose to reopen it as a new session or read-only", code="invalid_field")
+        who = _clean_name(name, "Facilitator" if mode == "new" else "Reader")
+        data = await _form_bundle(bundle)
+        w, member, token = import_bundle(hub, data, mode=mode, name=who)
+    except AppError as err:
+        return _page(request, status=err.status, error=err.message)
+    opened = {"title": w.title, "read_only": mode == "read-only", "join_code": w.join_code,
+              "key_link": f"/s/{w.id}#key={token}"}
+    return _page(request, status=201, opened=opened)
