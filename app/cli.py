@@ -3,6 +3,8 @@
     arrowmoot serve [--host 127.0.0.1] [--port 8000] [--db PATH]
     arrowmoot identify GRAPH [--treatment A] [--outcome B] [--adjust Z1,Z2] [--format json|text]
     arrowmoot estimate GRAPH DATA [--map variable=column ...] [--method NAME]
+    arrowmoot report BUNDLE.json [-o report.html]
+    arrowmoot export GRAPH --to json|graphml|dot [-o FILE]
     arrowmoot --version
 
 GRAPH is a graph document (.json), GraphML (.graphml, .xml) or DOT (.dot, .gv).
@@ -140,6 +142,10 @@ def build_parser() -> argparse.ArgumentParser:
         estimate = commands.choices.get("estimate")
         if estimate is not None and estimate.get_default("run") is None:
             estimate.set_defaults(run=run_estimate)
+
+    from .reporting.cli import add_parsers as add_record_parsers
+
+    add_record_parsers(commands)
     return parser
 
 
