@@ -13,6 +13,7 @@ explains each glyph; both are used by the report.
 from __future__ import annotations
 
 import math
+import re
 from html import escape
 from typing import Iterable
 
@@ -46,8 +47,12 @@ _NARROW = set("iljtfrI.,:;'!|()[] ")
 _WIDE = set("mwMW@%")
 
 
+_NOT_XML = re.compile("[\ud800-\udfff\ufffe\uffff]")
+
+
 def _x(text: object) -> str:
-    return escape(str(text), quote=True)
+    """XML-escaped text; characters XML 1.0 cannot hold become U+FFFD."""
+    return escape(_NOT_XML.sub("\ufffd", str(text)), quote=True)
 
 
 def text_width(text: str, size: float = 15.0) -> float:
