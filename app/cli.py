@@ -17,10 +17,9 @@ import argparse
 import json
 import os
 import sys
-from pathlib import Path
 
 from . import __version__
-from .graph.document import Diagram, parse_document
+from .graph.document import Diagram
 from .graph.errors import DiagramError
 
 EXIT_BAD_INPUT = 2
@@ -32,33 +31,9 @@ class InputProblem(Exception):
 
 def read_diagram(path: str) -> Diagram:
     """Read a graph file in any supported format, judged by its extension."""
-    file = Path(path)
-    try:
-        raw = file.read_bytes()
-    except FileNotFoundError:
-        raise InputProblem(f"no such file: {path}") from None
-    except IsADirectoryError:
-        raise InputProblem(f"{path} is a folder, not a graph file") from None
-    except OSError as err:
-        raise InputProblem(f"cannot read {path}: {err.strerror}") from None
-    suffix = file.suffix.lower()
-    if suffix in (".graphml", ".xml"):
-        from .graph.formats import from_graphml
+    from .graph.formats import read_graph_file
 
-        return from_graphml(raw)
-    if suffix in (".dot", ".gv"):
-        from .graph.formats import from_dot
-
-        return from_dot(raw)
-    try:
-        data = json.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputProblem(f"{path} is not UTF-8 text; give a JSON graph document") from None
-    except json.JSONDecodeError as err:
-        raise InputProblem(
-            f"{path} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})"
-        ) from None
-    return parse_document(data)
+    return read_graph_file(path)
 
 
 def _names(value: str | None) -> list[str] | None:

@@ -17,13 +17,17 @@ import contextlib
 import io
 import math
 import xml.etree.ElementTree as ElementTree
+from pathlib import Path
 
 import networkx as nx
 
 from .document import Diagram, parse_document
 from .errors import DiagramError, MalformedDocument
 
-__all__ = ["to_graphml", "from_graphml", "to_dot", "from_dot", "diagram_from_networkx"]
+__all__ = [
+    "to_graphml", "from_graphml", "to_dot", "from_dot", "diagram_from_networkx",
+    "read_graph_file", "parse_graph_bytes",
+]
 
 MAX_IMPORT_BYTES = 20 * 1024 * 1024
 
@@ -245,3 +249,39 @@ def _check_size(data: bytes) -> None:
 def _first_line(err: Exception) -> str:
     text = str(err).strip().splitlines()
     return text[0] if text else type(err).__name__
+
+
+def parse_graph_bytes(raw: bytes, name: str) -> Diagram:
+    """A diagram from file contents, the format judged by the file name's ending:
+    .graphml/.xml GraphML, .dot/.gv DOT, anything else a JSON graph document."""
+    import json
+
+    suffix = Path(name).suffix.lower()
+    if suffix in (".graphml", ".xml"):
+        return from_graphml(raw)
+    if suffix in (".dot", ".gv"):
+        return from_dot(raw)
+    _check_size(raw)
+    try:
+        data = json.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise MalformedDocument(f"{name} is not UTF-8 text; give a JSON graph document") from None
+    except json.JSONDecodeError as err:
+        raise MalformedDocument(
+            f"{name} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})"
+        ) from None
+    return parse_document(data)
+
+
+def read_graph_file(path: str | Path) -> Diagram:
+    """Read a graph file in any supported format; problems raise MalformedDocument."""
+    file = Path(path)
+    try:
+        raw = file.read_bytes()
+    except FileNotFoundError:
+        raise MalformedDocument(f"no such file: {path}") from None
+    except IsADirectoryError:
+        raise MalformedDocument(f"{path} is a folder, not a graph file") from None
+    except OSError as err:
+        raise MalformedDocument(f"cannot read {path}: {err.strerror}") from None
+    return parse_graph_bytes(raw, str(path))
