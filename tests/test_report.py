@@ -288,3 +288,21 @@ def test_report_of_an_instrument_estimate_says_why_nothing_was_adjusted(tmp_path
     assert "Baseline fitness (fitness)" not in text or "no column of the data measures it" in text
     root = ET.fromstring(re.search(r'<svg[^>]*class="am-diagram".*?</svg>', html, re.S).group(0))
     assert not [t for t in root.iter(SVG_NS + "text") if t.text == "ADJUSTED"]
+
+
+def test_diagram_labels_pending_proposals_and_tallies_as_the_canvas_does(reported):
+    """static/visual-language.md: '#n add?', '#n drop?', '#n flip?' and '+agree −disagree ?unsure'."""
+    from app.reporting.report import report_context
+
+    _, _, bundle = reported
+    changed = json.loads(json.dumps(bundle))
+    second = changed["proposals"][1]
+    second["status"] = "disputed"
+    for p in changed["workshop"]["state"]["proposals"]:
+        if p["id"] == second["id"]:
+            p["status"] = "disputed"
+    root = ET.fromstring(report_context(changed)["figure"])
+    badges = [t.text for g in root.iter(SVG_NS + "g") if g.get("class") == "am-badge" for t in g.iter(SVG_NS + "text")]
+    assert "#1 add? +1 −1 ?0" in badges
+    assert "disputed  #2 drop? +0 −1 ?0" in badges  # the drawn arrow is now under a pending removal
+    assert "+0 −0 ?1" in badges  # the vote on promo_email → scheme

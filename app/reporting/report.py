@@ -233,18 +233,24 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
     for p in bundle.get("proposals") or []:
         if p.get("kind") == "add" and p.get("status") in ("open", "disputed"):
             proposed.append((p.get("from"), p.get("to")))
-    badges = {}
-    for av in bundle.get("arrow_votes") or []:
-        t = av.get("tally") or {}
-        if t.get("total"):
-            badges[(av.get("from"), av.get("to"))] = f"+{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
+    badges: dict[tuple, list[str]] = {}
+
+    def tally_text(t: dict) -> str:
+        return f"+{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
+
     for p in bundle.get("proposals") or []:
-        t = p.get("tally") or {}
-        if p.get("kind") == "add" and p.get("status") in ("open", "disputed"):
-            text = f"#{p.get('id')} add?"
-            if t.get("total"):
-                text += f" +{t.get('agree', 0)} −{t.get('disagree', 0)} ?{t.get('unsure', 0)}"
-            badges[(p.get("from"), p.get("to"))] = text
+        if p.get("status") not in ("open", "disputed"):
+            continue
+        key = (p.get("from"), p.get("to"))
+        word = {"add": "add?", "remove": "drop?", "reverse": "flip?"}.get(p.get("kind"), "?")
+        text = f"#{p.get('id')} {word}"
+        if (p.get("tally") or {}).get("total"):
+            text += " " + tally_text(p["tally"])
+        badges.setdefault(key, []).append(text)
+    for av in bundle.get("arrow_votes") or []:
+        if (av.get("tally") or {}).get("total"):
+            badges.setdefault((av.get("from"), av.get("to")), []).append(tally_text(av["tally"]))
+    badges = {key: "  ".join(texts) for key, texts in badges.items()}
     adjustment = _adjustment(diagram, ident, est)
     roles = (ident or {}).get("roles") or {}
     figure = diagram_svg(diagram, adjusted=adjustment["set"] or (), roles=roles, disputed=disputed_arrows,
