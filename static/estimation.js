@@ -334,7 +334,11 @@ class EstimationPanel {
       chart(s.charts?.contour, 'Curves: the estimate after removing the bias of a confounder of the given strengths (Cinelli & Hazlett 2020). Diamonds: a confounder k times as strong as a measured variable.'));
     }
     if (s.e_value) {
-      box.append(el('p', { class: 'summary', text: `E-value ${fmt(s.e_value.e_value)} (interval: ${fmt(s.e_value.e_value_ci)}). ${s.e_value.reading || ''}${s.e_value.approximation ? ` (${s.e_value.approximation}.)` : ''}` }));
+      const ev = s.e_value;
+      box.append(el('dl', { class: 'am-facts' },
+        el('dt', { text: 'E-value, estimate' }), el('dd', { text: fmt(ev.e_value) }),
+        el('dt', { text: 'E-value, interval limit nearest no effect' }), el('dd', { text: fmt(ev.e_value_ci) })),
+      el('p', { class: 'summary', text: `${ev.reading || ''} (VanderWeele & Ding 2017${ev.approximation ? `; ${ev.approximation}` : ''}.)` }));
     }
     if (s.note) box.append(el('p', { class: 'note', text: s.note }));
     return box;

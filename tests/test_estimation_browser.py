@@ -115,6 +115,9 @@ def test_estimation_panel_shows_results_and_charts(server):
         page.locator("figure:has(svg.am-overlap)").screenshot(path=str(ARTIFACTS / "estimation_overlap.png"))
         page.locator("figure:has(svg.am-contour)").screenshot(path=str(ARTIFACTS / "estimation_contour.png"))
         page.locator("figure:has(svg.am-forest)").screenshot(path=str(ARTIFACTS / "estimation_forest.png"))
+        page.locator(".am-result").screenshot(path=str(ARTIFACTS / "estimation_result.png"))
+        page.locator("section[aria-label='Stability']").screenshot(path=str(ARTIFACTS / "estimation_stability.png"))
+        page.locator("section[aria-label='Sensitivity']").screenshot(path=str(ARTIFACTS / "estimation_sensitivity.png"))
         page.locator("section[aria-label='Diagram against the data']").screenshot(path=str(ARTIFACTS / "estimation_checks.png"))
         forest_rows = page.locator("svg.am-forest .am-point").count()
         assert forest_rows == 2
