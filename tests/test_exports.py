@@ -124,3 +124,15 @@ def test_cli_export_refuses_bad_files_with_a_message(tmp_path, capsys):
     assert _cli(["export", str(cyclic), "--to", "graphml"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("arrowmoot: ") and "cycle" in err and "Traceback" not in err
+
+
+def test_arrowmoot_command_runs_report_and_export(tmp_path, capsys):
+    """Through the top-level ``arrowmoot`` entry point (app.cli.main)."""
+    from app.cli import main
+
+    out = tmp_path / "g.graphml"
+    assert main(["export", str(SAMPLE / "cycle_to_work.json"), "--to", "graphml", "-o", str(out)]) == 0
+    assert canonical(from_graphml(out.read_text()).to_document()) == canonical(
+        parse_document(json.loads((SAMPLE / "cycle_to_work.json").read_text())).to_document())
+    assert main(["report", str(tmp_path / "nothing.json"), "-o", str(tmp_path / "r.html")]) == 2
+    assert "no such file" in capsys.readouterr().err

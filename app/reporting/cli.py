@@ -82,21 +82,19 @@ def run_report(args: argparse.Namespace) -> int:
 
 def run_export(args: argparse.Namespace) -> int:
     from ..graph.document import parse_document
-    from ..graph.formats import to_dot, to_graphml
+    from ..graph.formats import read_graph_file, to_dot, to_graphml
 
     path = Path(args.graph)
     try:
-        if path.suffix.lower() in (".json", "") or path.name.endswith(".record.json"):
+        if path.suffix.lower() == ".json":
             data = _read_json(args.graph)
             if isinstance(data, dict) and data.get("format") == BUNDLE_FORMAT:
                 from .bundle import validate_bundle
 
-                data = validate_bundle(data)["graph"]
+                data = validate_bundle(data)["graph"]  # a record bundle: its agreed graph
             diagram = parse_document(data)
         else:
-            from ..cli import read_diagram
-
-            diagram = read_diagram(args.graph)
+            diagram = read_graph_file(args.graph)
         if args.to == "graphml":
             text = to_graphml(diagram)
         elif args.to == "dot":
@@ -107,11 +105,7 @@ def run_export(args: argparse.Namespace) -> int:
     except BundleError as err:
         return _fail(err.message)
     except DiagramError as err:
-        return _fail(f"{args.graph}: {err.message}")
-    except Exception as err:  # the top-level CLI's own input errors (InputProblem)
-        if type(err).__name__ == "InputProblem":
-            return _fail(str(err))
-        raise
+        return _fail(err.message if str(args.graph) in err.message else f"{args.graph}: {err.message}")
     return 0
 
 
