@@ -292,3 +292,16 @@ def test_bootstrap_logistic_refit_matches_statsmodels_logit():
     assert ours == pytest.approx(reference, rel=1e-6)
     # Greene's published logit coefficients for these data: -13.021, 2.826, 0.095, 2.379 (from memory)
     assert ours == pytest.approx([-13.021, 2.826, 0.095, 2.379], abs=2e-3)
+
+
+def test_weighting_warns_when_arms_barely_overlap():
+    """Near-deterministic treatment: scores pile up at 0 and 1 and the result says so."""
+    rng = np.random.default_rng(12)
+    n = 2000
+    c = rng.normal(size=n)
+    t = rng.binomial(1, 1 / (1 + np.exp(-6 * c)))
+    y = t + c + rng.normal(size=n)
+    frame = pd.DataFrame({"c": c, "t": t, "y": y})
+    ours = estimators.weighting(build_design(frame, _identity(frame), treatment="t", outcome="y", adjust=["c"]))
+    assert ours["overlap"]["near_zero_or_one"] > 0
+    assert any("barely overlap" in w for w in ours["warnings"])

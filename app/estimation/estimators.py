@@ -359,16 +359,30 @@ def _treatment_effect(design: Design, kind: str) -> dict:
         except Exception as exc:
             raise FitFailed(f"the {'weighting' if kind == 'ipw' else 'doubly robust'} fit failed: {exc}") from None
     ci = res.conf_int()[0]
+    overlap = overlap_summary(design.t, score)
+    balance = balance_table(design, score)
+    notes = []
+    if overlap["near_zero_or_one"]:
+        notes.append(f"{overlap['near_zero_or_one']} row(s) have an estimated probability of treatment below 0.01 "
+                     "or above 0.99: the arms barely overlap there and the weights are extreme")
+    if overlap["largest_weight_share"] > 0.05:
+        notes.append(f"one row carries {100 * overlap['largest_weight_share']:.0f}% of the total weight; "
+                     "the estimate leans on very few people")
+    unbalanced = [b["column"] for b in balance if not b["balanced_after"]]
+    if unbalanced:
+        notes.append("after weighting, these columns still differ between the arms (|SMD| >= 0.1): "
+                     + ", ".join(unbalanced))
     return {
         "method": "weighting" if kind == "ipw" else "doubly-robust",
+        "warnings": notes,
         "estimate": float(res.effect[0]),
         "std_error": float(res.sd[0]),
         "ci": [float(ci[0]), float(ci[1])],
         "mean_untreated": float(res.effect[1]),
         "mean_treated": float(res.effect[2]),
         "interval": "joint estimating-equation (GMM) standard errors, statsmodels",
-        "overlap": overlap_summary(design.t, score),
-        "balance": balance_table(design, score),
+        "overlap": overlap,
+        "balance": balance,
     }
 
 
