@@ -136,3 +136,23 @@ def test_results_are_marked_stale_after_the_diagram_changes(room):
     assert client.get(base, headers=headers).json()["sensitivity"]["stale"] is True
     client.put(f"{base}/data?name=again.csv", content=CSV, headers=headers)
     assert client.get(base, headers=headers).json()["sensitivity"] is None  # new data clears old results
+
+
+def test_disputes_default_to_the_rooms_disputed_arrows(tmp_path):
+    """With no list in the request, the arrows the room left disputed are combined."""
+    from fastapi.testclient import TestClient
+
+    app = make_app(tmp_path)
+    with TestClient(app) as client:
+        doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
+        made = client.post("/api/sessions", json={"title": "demo", "name": "Fac", "document": doc}).json()
+        sid, headers = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
+        for command in ({"type": "flag_arrow", "from": "fitness", "to": "scheme", "flag": "disputed"},
+                        {"type": "set_stage", "stage": "agreed"}):
+            assert client.post(f"/api/sessions/{sid}/commands", json=command, headers=headers).status_code == 200
+        base = f"/api/sessions/{sid}/estimation"
+        client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+        result = client.post(f"{base}/disputes", json={}, headers=headers).json()["result"]
+        assert result["disputed"][0]["pair"] == ["fitness", "scheme"]
+        estimates = {r["label"]: r["estimate"] for r in result["rows"]}
+        assert len(estimates) == 2 and len(set(round(v, 6) for v in estimates.values())) == 2
