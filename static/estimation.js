@@ -378,5 +378,12 @@ export function mountEstimation(element, context) {
   widen();
   panel.render();
   if (!element.hidden) panel.load();
+  // Others' uploads and estimates arrive as new session revisions: reload when one
+  // lands while the panel is open (a cheap local check; no request otherwise).
+  let seen = context.state?.()?.revision;
+  setInterval(() => {
+    const now = context.state?.()?.revision;
+    if (now !== seen && !element.hidden && !panel.busy) { seen = now; panel.load(); }
+  }, 1500);
   return panel;
 }
