@@ -158,6 +158,7 @@ class EstimationPanel {
     if (!['agreed', 'estimation'].includes(this.stage)) {
       parts.push(el('p', { class: 'note', text: 'Data is attached once the room has agreed the diagram. The facilitator moves the session to “Agreed” or “Estimation” first.' }));
     }
+    if (!this.canEdit) parts.push(el('p', { class: 'note', text: 'You can read the results here; the facilitator or an analyst attaches data and runs the estimates.' }));
     if (this.message) parts.push(el('p', { class: `am-message am-${this.message.kind}`, role: this.message.kind === 'error' ? 'alert' : 'status', text: this.message.text }));
     parts.push(this.renderData(), this.renderMapping(), this.renderEstimate(), this.renderChecks(),
       this.renderStability(), this.renderSensitivity(), this.renderDisputes());

@@ -123,3 +123,43 @@ def test_estimation_panel_shows_results_and_charts(server):
         assert forest_rows == 2
         assert not errors, errors
         browser.close()
+
+
+def test_bad_file_message_and_participant_view(server, tmp_path):
+    """A refused upload shows the server's message and keeps the data; a participant
+    sees the results but cannot run anything."""
+    from playwright.sync_api import sync_playwright
+
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    sid, token = _prepare_session(server)
+    headers = {"X-Arrowmoot-Token": token}
+    base = f"{server}/api/sessions/{sid}/estimation"
+    assert httpx.put(f"{base}/data?name=cycle_to_work.csv", content=(SAMPLE / "cycle_to_work.csv").read_bytes(),
+                     headers=headers).status_code == 200
+    assert httpx.post(f"{base}/estimate", json={}, headers=headers, timeout=60).status_code == 200
+    code = httpx.get(f"{server}/api/sessions/{sid}", headers=headers).json()["state"]["session"]["join_code"]
+    guest = httpx.post(f"{server}/api/join", json={"code": code, "name": "Pat"}).json()["token"]
+    broken = tmp_path / "broken.csv"
+    broken.write_bytes(b"a,b\n1,2\n")
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1400, "height": 900})
+        page.goto(f"{server}/s/{sid}#key={token}")
+        page.click("button[data-tab='estimation']")
+        page.wait_for_selector(".am-result")
+        page.set_input_files("input[name='data-file']", str(broken))
+        page.click("button[data-action='upload']")
+        alert = page.locator(".am-message.am-error")
+        alert.wait_for()
+        assert "broken.csv has only one data row" in alert.inner_text()
+        assert "cycle_to_work.csv: 4,000 rows" in page.locator("section[aria-label='Data']").inner_text()
+        page.screenshot(path=str(ARTIFACTS / "estimation_refused_upload.png"))
+
+        other = browser.new_page(viewport={"width": 1400, "height": 900})
+        other.goto(f"{server}/s/{sid}#key={guest}")
+        other.click("button[data-tab='estimation']")
+        other.wait_for_selector(".am-result")
+        assert other.locator("button[data-action='estimate']").is_disabled()
+        assert other.locator("input[name='data-file']").count() == 0
+        other.screenshot(path=str(ARTIFACTS / "estimation_participant.png"))
+        browser.close()
