@@ -72,15 +72,24 @@ class EstimationPanel {
     return this.context.api(method, this.base + path, body, this.context.token);
   }
 
-  async load() {
+  /** Fetch the shared state; with quiet, render only if something changed. */
+  async load({ quiet = false } = {}) {
     const version = this.version;
     try {
       const data = await this.call('GET');
       if (version !== this.version) return; // an action answered meanwhile; its result is newer
+      const signature = (value) => JSON.stringify(value, (key, v) => (key === 'stale' ? undefined : v));
+      const before = signature([this.data, this.variables, this.results]);
+      const results = {};
+      for (const key of Object.keys(this.results)) results[key] = data[key];
+      const changed = signature([data.data, data.variables, results]) !== before
+        || Object.values(results).some((r) => r?.stale);
       this.data = data.data;
       this.variables = data.variables;
-      for (const key of Object.keys(this.results)) this.results[key] = data[key];
+      this.results = results;
+      if (quiet && !changed) return;
     } catch (err) {
+      if (quiet) return;
       this.message = { kind: 'error', text: err.message };
     }
     this.render();
@@ -384,7 +393,7 @@ export function mountEstimation(element, context) {
   let seen = context.state?.()?.revision;
   setInterval(() => {
     const now = context.state?.()?.revision;
-    if (now !== seen && !element.hidden && !panel.busy) { seen = now; panel.load(); }
+    if (now !== seen && !element.hidden && !panel.busy) { seen = now; panel.load({ quiet: true }); }
   }, 1500);
   return panel;
 }
