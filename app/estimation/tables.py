@@ -157,14 +157,15 @@ def _checked(frame: pd.DataFrame, shown: str) -> pd.DataFrame:
     return frame
 
 
-def column_kind(series: pd.Series) -> str:
+def column_kind(series: pd.Series, distinct: int | None = None) -> str:
     """'binary', 'number' or 'text' (booleans count as binary)."""
-    values = series.dropna()
     if pd.api.types.is_bool_dtype(series):
         return "binary"
+    values = series.dropna()
+    distinct = values.nunique() if distinct is None else distinct
     if pd.api.types.is_numeric_dtype(series):
-        return "binary" if values.nunique() == 2 and set(np.unique(values)) <= {0, 1} else "number"
-    if values.nunique() == 2:
+        return "binary" if distinct == 2 and set(np.unique(values)) <= {0, 1} else "number"
+    if distinct == 2:
         return "binary"
     return "text"
 
@@ -178,7 +179,7 @@ def profile_table(frame: pd.DataFrame, *, examples: int = 3) -> list[dict]:
         missing = int(series.isna().sum())
         values = series.dropna() if missing else series
         distinct = int(values.nunique())
-        kind = column_kind(series) if distinct else "empty"
+        kind = column_kind(series, distinct) if distinct else "empty"
         entry: dict = {
             "name": name,
             "kind": kind,
