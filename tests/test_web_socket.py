@@ -17,6 +17,7 @@ def hello(ws, token, revision=None):
 
 
 def receive_until(ws, kind, predicate=lambda m: True, limit=20):
+    """Read messages until one of ``kind`` matches (the test client blocks if none comes)."""
     for _ in range(limit):
         message = ws.receive_json()
         if message["type"] == kind and predicate(message):
@@ -35,8 +36,10 @@ def test_edit_reaches_every_client(room):
                           "command": {"type": "add_arrow", "from": "scheme", "to": "sick_days"}})
         new_rev = start["revision"] + 1
         for ws in (fac_ws, ann_ws):
-            state = receive_until(ws, "state", lambda m: m["revision"] == new_rev)
-            assert {"from": "scheme", "to": "sick_days"} in state["state"]["document"]["arrows"]
+            # a drawn arrow travels as a patch against the previous revision
+            patch = receive_until(ws, "patch", lambda m: m["revision"] == new_rev)
+            assert patch["base"] == start["revision"]
+            assert patch["arrows_added"] == [["scheme", "sick_days"]] and patch["arrows_removed"] == []
         ack = receive_until(ann_ws, "ack")
         assert ack["id"] == 7 and ack["revision"] == new_rev
         analysis = receive_until(fac_ws, "analysis", lambda m: m["revision"] == new_rev)
@@ -130,3 +133,20 @@ def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_docu
     assert message["analysis"]["minimal_adjustment_sets"] == expected["minimal_adjustment_sets"]
     assert message["analysis"]["identifiable"] == expected["identifiable"]
     assert message["analysis"]["roles"] == expected["roles"]
+
+
+def test_arrow_patches_and_full_states(room):
+    """Reversing and removing arrows travel as patches; other changes as full states."""
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
+        _, start = hello(ws, room.facilitator)
+        rev = start["revision"]
+        room.ok(room.facilitator, {"type": "reverse_arrow", "from": "scheme", "to": "sick_days"})
+        patch = receive_until(ws, "patch", lambda m: m["revision"] == rev + 1)
+        assert patch["arrows_removed"] == [["scheme", "sick_days"]]
+        assert patch["arrows_added"] == [["sick_days", "scheme"]]
+        assert patch["can_undo"] is True
+        room.ok(room.facilitator, {"type": "add_variable", "name": "age"})
+        state = receive_until(ws, "state", lambda m: m["revision"] == rev + 2)
+        assert state["state"]["document"]["arrows"] == [{"from": "sick_days", "to": "scheme"}]
+        assert "members" not in state["state"]  # unchanged, so not resent

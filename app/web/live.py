@@ -29,7 +29,7 @@ from ..store import Store
 from ..workshop.commands import add_member, apply_command, new_workshop, public_event, read_document
 from ..workshop.disputes import analyse_workshop, analysis_key, slim_for_push
 from ..workshop.models import Member, Workshop
-from ..workshop.views import public_state
+from ..workshop.views import arrow_patch, public_state
 
 __all__ = ["Hub", "hash_token", "TOKEN_HEADER"]
 
@@ -374,6 +374,10 @@ class Hub:
                 text = json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
                                    "moves": [{"name": var["name"], "x": var["x"], "y": var["y"]}],
                                    "event": shown})
+            elif event and (patch := arrow_patch(w, event)) is not None:
+                # An arrow drawn, removed or reversed: send the change, not the whole state.
+                text = json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
+                                   **patch, "event": shown})
             else:
                 text = self.state_message(w, event=shown,
                                           members=event is None or event.get("kind") in MEMBER_EVENTS)

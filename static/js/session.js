@@ -57,15 +57,31 @@ class SessionApp {
 
   receivePatch(message) {
     if (!this.state) return false;
-    for (const move of message.moves) {
-      const v = this.state.document.variables.find((x) => x.name === move.name);
+    const s = this.state;
+    for (const move of message.moves || []) {
+      const v = s.document.variables.find((x) => x.name === move.name);
       if (!v) return false;
       v.x = move.x; v.y = move.y;
     }
-    this.state.revision = message.revision;
-    if (this.analysis && this.analysis.revision === message.base) this.analysis.revision = message.revision;
+    if (message.arrows_added || message.arrows_removed) {
+      const gone = new Set((message.arrows_removed || []).map((a) => JSON.stringify(a)));
+      s.document.arrows = s.document.arrows.filter((a) => !gone.has(JSON.stringify([a.from, a.to])));
+      s.arrows = s.arrows.filter((a) => !gone.has(JSON.stringify([a.from, a.to])));
+      const notes = new Map((message.arrow_notes || []).map((n) => [JSON.stringify([n.from, n.to]), n]));
+      for (const [from, to] of message.arrows_added || []) {
+        s.document.arrows.push({ from, to });
+        s.arrows.push(notes.get(JSON.stringify([from, to]))
+          || { from, to, flag: null, tally: { agree: 0, disagree: 0, unsure: 0, total: 0 }, votes: [] });
+      }
+      s.disputed = message.disputed;
+      s.can_undo = message.can_undo;
+    }
+    s.revision = message.revision;
+    const positionsOnly = !message.arrows_added && !message.arrows_removed;
+    if (positionsOnly && this.analysis && this.analysis.revision === message.base) this.analysis.revision = message.revision;
     this.noteEvent(message.event);
-    this.renderCanvas();
+    if (positionsOnly) this.renderCanvas();
+    else { this.checkSelection(); this.renderAll(); }
     return true;
   }
 
