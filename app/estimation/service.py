@@ -225,13 +225,6 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
     return out
 
 
-def _toggle(diagram: Diagram, arrow: Arrow, present: bool) -> Diagram:
-    arrows = [a for a in diagram.arrows if a != arrow]
-    if present:
-        arrows.append(arrow)
-    return replace(diagram, arrows=tuple(arrows))
-
-
 def _option_text(pair: list[str], option) -> str:
     if option is None:
         return f"no {pair[0]}\u2013{pair[1]} arrow"
