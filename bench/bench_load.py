@@ -85,6 +85,7 @@ class Server:
     def __init__(self, folder: Path, port: int):
         self.folder, self.port = folder, port
         self.proc: subprocess.Popen | None = None
+        self.profile: Path | None = None
         self.log = open(folder / "server.log", "ab")
 
     def start(self) -> None:
@@ -94,6 +95,14 @@ class Server:
         code = ("import uvicorn; from app.main import create_app; "
                 f"uvicorn.run(create_app(), host='127.0.0.1', port={self.port}, "
                 "log_level='warning', access_log=False)")
+        if self.profile:  # cProfile the server; the stats are written when it stops
+            # uvicorn re-raises SIGTERM after its clean shutdown; a handler that exits
+            # lets the profile be written first.
+            code = ("import cProfile, signal, sys; "
+                    "signal.signal(signal.SIGTERM, lambda *a: sys.exit(0)); "
+                    f"p = cProfile.Profile(); p.enable()\ntry:\n    {code.replace('; ', chr(10) + '    ')}\n"
+                    f"finally:\n    p.disable(); p.dump_stats({str(self.profile)!r})")
+            self.profile = None  # only the first server: the second one is killed anyway
         self.proc = subprocess.Popen([sys.executable, "-c", code], cwd=str(ROOT), env=env,
                                      stdout=self.log, stderr=self.log, start_new_session=True)
         deadline = time.monotonic() + 90
@@ -172,10 +181,10 @@ class Participant:
         self.reconnects = 0
         self.counter = 0
 
-    async def keep_connected(self, stop: asyncio.Event) -> None:
+    async def keep_connected(self, leave: asyncio.Event) -> None:
         """Connect, read, and on any drop reconnect from the last revision seen."""
         delay = 0.2
-        while not stop.is_set():
+        while not leave.is_set():
             try:
                 ws = await websockets.connect(self.bench.ws_url(self.room.id), max_size=None,
                                               compression=self.bench.compression, open_timeout=5)
@@ -198,7 +207,7 @@ class Participant:
                     if not fut.done():
                         fut.set_result({"type": "dropped"})
                 self.waiting.clear()
-            if not stop.is_set():
+            if not leave.is_set():
                 self.reconnects += 1
 
     def receive(self, text: str) -> None:
@@ -390,8 +399,8 @@ class Bench:
         return [p for room in self.rooms for p in room.people]
 
     async def load(self, seconds: float, think: tuple[float, float], kill_at: float | None = None) -> dict:
-        stop = asyncio.Event()
-        readers = [asyncio.create_task(p.keep_connected(stop)) for p in self.everyone()]
+        stop, leave = asyncio.Event(), asyncio.Event()
+        readers = [asyncio.create_task(p.keep_connected(leave)) for p in self.everyone()]
         await asyncio.wait_for(asyncio.gather(*(p.connected.wait() for p in self.everyone())), 60)
         start_acks, start = len(self.acked), time.perf_counter()
         cpu0, own0 = self.server.cpu_s(), time.process_time()
@@ -418,11 +427,16 @@ class Bench:
         server_cpu, own_cpu = self.server.cpu_s() - cpu0, time.process_time() - own0
         await asyncio.wait_for(asyncio.gather(*actors, return_exceptions=True), 40)
         elapsed = time.perf_counter() - start
+        try:  # a client cut off by the kill comes back on its own; give it the time
+            await asyncio.wait_for(asyncio.gather(*(p.connected.wait() for p in self.everyone())), 60)
+        except asyncio.TimeoutError:
+            pass
         await asyncio.sleep(1.5)  # let the last pushes arrive
         # Each client asks once more for anything it missed, as the page does on focus.
         for p in self.everyone():
             await p._send({"type": "resync", "revision": p.revision})
         await asyncio.sleep(1.5)
+        leave.set()
         for p in self.everyone():
             if p.ws is not None:
                 await p.ws.close()
@@ -505,12 +519,17 @@ async def run(args) -> int:
     wall_deadline = time.monotonic() + args.deadline
     with tempfile.TemporaryDirectory(prefix="arrowmoot-load-") as tmp:
         bench = Bench(args, Path(tmp))
+        if args.profile:
+            bench.server.profile = Path(args.profile).resolve()
         bench.server.start()
         try:
             await bench.setup(args.rooms, args.big, args.small)
             steady = await asyncio.wait_for(bench.load(args.seconds, think),
                                             max(10, wall_deadline - time.monotonic()))
             problems1 = bench.verify()
+            if args.profile:  # a clean stop writes the first server's profile
+                bench.server.stop()
+                bench.server.start()
             kill = await asyncio.wait_for(bench.load(args.kill_seconds, think, kill_at=args.kill_seconds / 2),
                                           max(10, wall_deadline - time.monotonic()))
             problems2 = bench.verify()
@@ -568,6 +587,7 @@ def main() -> int:
     parser.add_argument("--small", type=int, default=3, help="participants in each other room")
     parser.add_argument("--think", default="1.5,4.5", help="seconds between one client's actions (min,max)")
     parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--profile", help="write cProfile stats of the (first) server to this file")
     parser.add_argument("--no-deflate", dest="deflate", action="store_false",
                         help="clients decline per-message compression (browsers always offer it)")
     parser.add_argument("--deadline", type=float, default=420, help="hard stop for the whole run, seconds")
