@@ -119,9 +119,15 @@ async def fan_out(base: str, clients: int, edits: int, seed: int) -> dict:
     existing = {(a["from"], a["to"]) for a in doc["arrows"]}
     state_ms, analysis_ms, kinds = [], [], []
     for i in range(edits):
-        if i % 2 == 0:
+        if i % 3 == 0:
             v = rng.choice(names)
             command = {"type": "move_variable", "name": v, "x": rng.randint(0, 1400), "y": rng.randint(0, 800)}
+        elif i % 3 == 2 and existing:
+            a, b = rng.choice(sorted(existing))
+            # agree / unsure only: a vote against makes the arrow disputed, and the dispute
+            # analysis is timed on its own below
+            command = {"type": "vote", "from": a, "to": b, "choice": rng.choice(["agree", "unsure"]),
+                       "reason": "bench"}
         else:
             # a structural edit: add a forward arrow (keeps it acyclic), or remove one we added
             a, b = sorted(rng.sample(range(len(names)), 2))
@@ -146,7 +152,7 @@ async def fan_out(base: str, clients: int, edits: int, seed: int) -> dict:
                 raise RuntimeError("a client never got the new state")
             await asyncio.sleep(0.0005)
         state_ms.append((max(c.state_at[revision] for c in conns) - sent) * 1000)
-        if command["type"] != "move_variable":
+        if command["type"] not in ("move_variable", "vote"):
             while any(revision not in c.analysis_at for c in conns):
                 if time.perf_counter() > deadline:
                     raise RuntimeError("a client never got the analysis")
@@ -161,7 +167,8 @@ async def fan_out(base: str, clients: int, edits: int, seed: int) -> dict:
     await http.aclose()
     return {"state_ms": state_ms, "analysis_ms": analysis_ms, "arrows": len(doc["arrows"]),
             "move_ms": [t for t, k in zip(state_ms, kinds) if k == "move_variable"],
-            "arrow_ms": [t for t, k in zip(state_ms, kinds) if k != "move_variable"]}
+            "arrow_ms": [t for t, k in zip(state_ms, kinds) if k in ("add_arrow", "delete_arrow")],
+            "vote_ms": [t for t, k in zip(state_ms, kinds) if k == "vote"]}
 
 
 def dispute_timing(seed: int, disputed: int = 10, repeats: int = 5) -> dict:
@@ -235,13 +242,14 @@ def main() -> None:
     s, a = result["state_ms"], result["analysis_ms"]
     compression = "on" if args.server_deflate and not args.no_deflate else "off"
     print(f"### Fan-out: {args.clients} WebSocket clients, 50 variables / {result['arrows']} arrows, "
-          f"{len(s)} edits (half moves, half arrow edits), per-message compression {compression}\n")
+          f"{len(s)} edits (a third each: moves, arrows drawn or removed, votes), per-message compression {compression}\n")
     print("| measure | p50 ms | p95 ms | max ms | target |")
     print("|---|---|---|---|---|")
     print(f"| edit sent → every client has the new state | {percentile(s, .5):.1f} | {percentile(s, .95):.1f} | {max(s):.1f} | p95 < 50 |")
-    mv, ar = result["move_ms"], result["arrow_ms"]
-    print(f"| … moves only (sent as a one-line patch) | {percentile(mv, .5):.1f} | {percentile(mv, .95):.1f} | {max(mv):.1f} | |")
-    print(f"| … arrow edits only (full state) | {percentile(ar, .5):.1f} | {percentile(ar, .95):.1f} | {max(ar):.1f} | |")
+    mv, ar, vo = result["move_ms"], result["arrow_ms"], result["vote_ms"]
+    print(f"| … moves (a one-line patch) | {percentile(mv, .5):.1f} | {percentile(mv, .95):.1f} | {max(mv):.1f} | |")
+    print(f"| … arrows drawn or removed (a small patch) | {percentile(ar, .5):.1f} | {percentile(ar, .95):.1f} | {max(ar):.1f} | |")
+    print(f"| … votes (the whole compact state) | {percentile(vo, .5):.1f} | {percentile(vo, .95):.1f} | {max(vo):.1f} | |")
     print(f"| arrow edit sent → every client has its analysis | {percentile(a, .5):.1f} | {percentile(a, .95):.1f} | {max(a):.1f} | (none) |")
     d = disputes
     print(f"\n### Dispute analysis: 10 disputed arrows ({d['combinations']} combinations), "
