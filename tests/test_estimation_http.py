@@ -156,3 +156,31 @@ def test_disputes_default_to_the_rooms_disputed_arrows(tmp_path):
         assert result["disputed"][0]["pair"] == ["fitness", "scheme"]
         estimates = {r["label"]: r["estimate"] for r in result["rows"]}
         assert len(estimates) == 2 and len(set(round(v, 6) for v in estimates.values())) == 2
+
+
+@pytest.mark.parametrize("method, path, body", [
+    ("post", "/estimate", [1, 2]),
+    ("post", "/estimate", {"method": "nope"}),
+    ("post", "/estimate", {"adjust": "age"}),
+    ("post", "/estimate", {"correction": "sidak"}),
+    ("post", "/estimate", {"checks": "yes"}),
+    ("post", "/estimate", {"adjust": ["age", "active_minutes"]}),
+    ("post", "/stability", {"repeats": 5}),
+    ("post", "/stability", {"repeats": "many"}),
+    ("post", "/sensitivity", "text"),
+    ("post", "/disputes", {"disputed": "fitness->scheme"}),
+    ("post", "/disputes", {"disputed": [{"from": "ghost", "to": "scheme"}]}),
+    ("put", "/mapping", {"mapping": ["scheme"]}),
+    ("put", "/mapping", {"mapping": {"scheme": 3}}),
+])
+def test_bad_requests_get_one_error_shape_and_keep_the_session(room, method, path, body):
+    client, base, headers, _ = room
+    client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
+    before = client.get(base, headers=headers).json()
+    r = getattr(client, method)(f"{base}{path}", json=body, headers=headers)
+    assert 400 <= r.status_code < 500, r.text
+    payload = r.json()
+    assert payload["ok"] is False and isinstance(payload["error"], str) and payload["error"]
+    assert payload["status"] == r.status_code and payload["code"]
+    after = client.get(base, headers=headers).json()
+    assert after["data"] == before["data"]

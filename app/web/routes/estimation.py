@@ -6,6 +6,22 @@ for the estimate (with the implication tests), the stability checks, the
 sensitivity analysis and the estimate under each combination of disputed
 arrows. Results are kept as session attachments and announced to everyone in
 the room. A refused upload or request changes nothing that was there.
+
+Endpoints (under ``/api/sessions/{session_id}/estimation``; writes need the
+analyst or facilitator role and the ``agreed`` or ``estimation`` stage):
+
+``GET ""``                 attached data (profile, mapping), variables, latest results
+``PUT /data?name=F``       raw CSV or Parquet bytes as the body (413 over the limit)
+``PUT /mapping``           ``{"mapping": {variable: column or null}}``
+``POST /estimate``         ``{"method", "adjust", "correction": holm|bh|none, "checks"}``
+``POST /stability``        ``{"method", "adjust", "repeats"}``
+``POST /sensitivity``      ``{"method", "adjust"}`` (adds ``charts.contour``)
+``POST /disputes``         ``{"disputed": [...]}`` or the room's disputed arrows (``charts.forest``)
+
+Results are kept under the attachment keys ``estimation.estimate``,
+``estimation.stability``, ``estimation.sensitivity``, ``estimation.disputes``;
+the data under ``estimation.data``. :func:`attach_file` attaches a file outside a
+request (for seeding a session).
 """
 
 from __future__ import annotations
