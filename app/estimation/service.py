@@ -170,8 +170,10 @@ def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
                     if k not in ("estimate", "std_error", "ci", "method", "warnings")},
         "checks": None,
     }
-    if design.t_binary and chosen in ("regression",) and design.y_binary:
-        out["warnings"].append("binary outcome fitted by linear regression: the estimate is a risk difference")
+    if design.y_binary and chosen in ("regression", "two-stage", "front-door", "weighting", "doubly-robust"):
+        out["warnings"].append(
+            "the outcome is binary and this method fits it linearly: read the estimate as a difference "
+            "in risk" + ("" if design.t_binary else " per unit of treatment (a linear probability model)"))
     if checks:
         out["checks"] = test_implications(
             frame, mapping, plan.analysis["implications"], correction=correction, alpha=alpha,
