@@ -158,7 +158,24 @@ class EstimationPanel {
     const detail = same ? null : { nodes: [test.x, test.y], given: test.given, causal: false, kind: 'implication' };
     if (typeof this.context.highlight === 'function') this.context.highlight(detail);
     window.dispatchEvent(new CustomEvent('arrowmoot:highlight', { detail }));
+    this.markCanvas();
     this.render();
+  }
+
+  /** Mark the flagged variables on the diagram (nodes carry data-name); kept across canvas redraws. */
+  markCanvas() {
+    const pair = new Set(this.flagged ? [this.flagged.x, this.flagged.y] : []);
+    const given = new Set(this.flagged ? this.flagged.given : []);
+    for (const node of document.querySelectorAll('.canvas .node[data-name]')) {
+      const name = node.dataset.name;
+      node.classList.toggle('am-flag-pair', pair.has(name));
+      node.classList.toggle('am-flag-given', given.has(name));
+    }
+    const canvas = document.querySelector('.canvas');
+    if (canvas && !this.canvasObserver) {
+      this.canvasObserver = new MutationObserver(() => { if (this.flagged) this.markCanvas(); });
+      this.canvasObserver.observe(canvas, { childList: true, subtree: true });
+    }
   }
 
   // -- rendering --------------------------------------------------------------------
@@ -308,6 +325,9 @@ class EstimationPanel {
         el('td', { text: t.statistic === null ? '–' : fmt(t.statistic) }), el('td', { text: fmt(t.p_adjusted) }), el('td', {}, verdict));
     });
     box.append(table(['independence claimed', 'n', 'statistic', 'adjusted p', 'verdict'], rows, 'am-checks'));
+    if (this.flagged) {
+      box.append(el('p', { class: 'note', text: `On the diagram: ${this.flagged.x} and ${this.flagged.y} (solid red outline) should be independent${this.flagged.given.length ? ` given ${this.flagged.given.join(', ')} (dashed red outline)` : ''}, but the data say otherwise. An arrow or a common cause between them may be missing.` }));
+    }
     if (checks.total > checks.listed) box.append(el('p', { class: 'note', text: `${checks.listed} of ${checks.total} implications listed.` }));
     return box;
   }

@@ -103,6 +103,11 @@ def test_estimation_panel_shows_results_and_charts(server):
         page.locator("button.am-flag").first.click()
         flags = page.evaluate("window.__flags")
         assert flags and set(flags[0]["nodes"]) == {"age", "fitness"}
+        marked = page.evaluate("[...document.querySelectorAll('.node.am-flag-pair')].map(n => n.dataset.name).sort()")
+        assert marked == ["age", "fitness"]
+        given = page.evaluate("[...document.querySelectorAll('.node.am-flag-given')].map(n => n.dataset.name)")
+        assert given == ["department"]
+        page.locator(".canvas-wrap").screenshot(path=str(ARTIFACTS / "estimation_canvas_flag.png"))
 
         page.click("button[data-action='stability']")
         page.wait_for_selector("table.am-stability")
