@@ -184,3 +184,18 @@ def test_bad_requests_get_one_error_shape_and_keep_the_session(room, method, pat
     assert payload["status"] == r.status_code and payload["code"]
     after = client.get(base, headers=headers).json()
     assert after["data"] == before["data"]
+
+
+def test_parquet_upload_with_a_path_in_its_name(room, tmp_path):
+    import pandas as pd
+
+    client, base, headers, made = room
+    path = tmp_path / "demo.parquet"
+    pd.read_csv(SAMPLE / "cycle_to_work.csv").to_parquet(path)
+    r = client.put(f"{base}/data?name=../../etc/demo.parquet", content=path.read_bytes(), headers=headers)
+    assert r.status_code == 200, r.text
+    data = r.json()["data"]
+    assert data["name"] == "demo.parquet" and data["stored"] == "data.parquet" and data["rows"] == 4000
+    stored = client.app.state.store.session_data_dir(made["session_id"]) / "data.parquet"
+    assert stored.is_file()
+    assert client.post(f"{base}/estimate", json={"checks": False}, headers=headers).status_code == 200
