@@ -109,7 +109,7 @@ def bench_upload(csv_path: Path, workdir: Path) -> dict:
     env = dict(os.environ, ARROWMOOT_DB_PATH=str(workdir / "db.sqlite3"), ARROWMOOT_DATA_DIR=str(workdir / "data"),
                ARROWMOOT_DEMO_SESSION="0", ARROWMOOT_UPLOAD_LIMIT_BYTES=str(2 * 1024 ** 3))
     proc = subprocess.Popen([sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--port", str(port),
-                             "--log-level", "warning"], cwd=ROOT, env=env)
+                             "--log-level", "warning"], cwd=ROOT, env=env, start_new_session=True)
     base = f"http://127.0.0.1:{port}"
     try:
         for _ in range(200):
@@ -153,7 +153,9 @@ def bench_upload(csv_path: Path, workdir: Path) -> dict:
                     "rss_before": before, "peak_above": peak - before, "estimate": result["estimate"],
                     "se": result["std_error"]}
     finally:
-        proc.terminate()
+        import signal
+
+        os.killpg(proc.pid, signal.SIGTERM)  # the server and its helper processes
         proc.wait(timeout=20)
 
 

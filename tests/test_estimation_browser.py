@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import socket
 import subprocess
 import sys
@@ -38,6 +39,7 @@ def fixture_server(tmp_path):
         [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--host", "127.0.0.1",
          "--port", str(port), "--log-level", "warning"],
         cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+        start_new_session=True,  # its own process group, so its helper processes stop with it
     )
     base = f"http://127.0.0.1:{port}"
     for _ in range(100):
@@ -47,11 +49,22 @@ def fixture_server(tmp_path):
         except httpx.HTTPError:
             time.sleep(0.1)
     else:
-        proc.kill()
+        _stop(proc)
         pytest.fail("server did not start: " + proc.stderr.read().decode()[-2000:])
     yield base
-    proc.terminate()
-    proc.wait(timeout=10)
+    _stop(proc)
+
+
+def _stop(proc: subprocess.Popen) -> None:
+    """Stop the server and every process it started (its own process group)."""
+    try:
+        os.killpg(proc.pid, signal.SIGTERM)
+        proc.wait(timeout=10)
+    except (ProcessLookupError, subprocess.TimeoutExpired):
+        try:
+            os.killpg(proc.pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
 
 
 def _prepare_session(base: str) -> tuple[str, str]:

@@ -86,7 +86,7 @@ def _frame(access, info: dict):
         return cached[1]
     frame = load_table(path, max_bytes=None, name=info["name"])
     _CACHE[access.session_id] = (key, frame)
-    if len(_CACHE) > 4:
+    if len(_CACHE) > 2:  # each entry is a whole table in memory
         _CACHE.pop(next(iter(_CACHE)))
     return frame
 
