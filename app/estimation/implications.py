@@ -22,6 +22,7 @@ from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
 from .design import MAX_LEVELS
+from .estimators import _least_squares
 
 __all__ = ["fisher_z_test", "likelihood_ratio_test", "adjust_p_values", "test_implications", "CORRECTIONS"]
 
@@ -56,8 +57,8 @@ def fisher_z_test(x: np.ndarray, y: np.ndarray, given: np.ndarray) -> dict:
     """Partial correlation of x and y given the columns of ``given`` (with intercept)."""
     n = len(x)
     z = np.hstack([np.ones((n, 1)), given]) if given.size else np.ones((n, 1))
-    rx = x - z @ np.linalg.lstsq(z, x, rcond=None)[0]
-    ry = y - z @ np.linalg.lstsq(z, y, rcond=None)[0]
+    rx = x - z @ _least_squares(z, x)[0]
+    ry = y - z @ _least_squares(z, y)[0]
     denom = math.sqrt(float(rx @ rx) * float(ry @ ry))
     r = float(rx @ ry) / denom if denom > 0 else 0.0
     r = min(max(r, -0.9999999), 0.9999999)

@@ -141,11 +141,18 @@ def e_value(rr: float, low: float | None = None, high: float | None = None) -> d
     return out
 
 
+def _rss(x: np.ndarray, y: np.ndarray) -> float:
+    from .estimators import _least_squares
+
+    beta, _ = _least_squares(x, y)
+    return float(np.sum((y - x @ beta) ** 2))
+
+
 def _group_partial_r2(y: np.ndarray, full: np.ndarray, drop: list[int]) -> float:
+    """Share of the residual variance of y that the dropped columns explain, given the rest."""
     keep = [i for i in range(full.shape[1]) if i not in drop]
-    rss_full = float(np.sum((y - full @ np.linalg.lstsq(full, y, rcond=None)[0]) ** 2))
-    reduced = full[:, keep]
-    rss_red = float(np.sum((y - reduced @ np.linalg.lstsq(reduced, y, rcond=None)[0]) ** 2))
+    rss_full = _rss(full, y)
+    rss_red = _rss(full[:, keep], y)
     return max(0.0, (rss_red - rss_full) / rss_red) if rss_red > 0 else 0.0
 
 
