@@ -359,6 +359,7 @@ class SessionApp {
 
   renderBar() {
     const s = this.state;
+    document.title = `${s.session.title} · Arrowmoot`;
     const stage = s.session.stage;
     const stepper = el('ol', { class: 'stages', 'aria-label': 'Stages' }, s.session.stages.map((name, i) => {
       const current = name === stage;
