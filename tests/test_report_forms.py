@@ -52,3 +52,23 @@ def test_form_refusal_is_shown_on_the_page(setup):
     assert r.status_code == 422 and "bundle version 9 is not the version this software reads" in r.text
     r = client.post("/records/report", files={"bundle": ("x.json", b"not json", "application/json")})
     assert r.status_code == 400 and "the bundle is not valid JSON" in r.text
+
+
+def test_report_link_opens_the_report_without_the_key_until_it_expires(tmp_path, monkeypatch):
+    from app.web.routes import records
+
+    application = make_app(tmp_path)
+    with TestClient(application) as client:
+        workshop = build_workshop(client, estimate=False)
+        url = f"/api/sessions/{workshop.session_id}/report/link"
+        assert client.post(url, headers=workshop.headers(workshop.participant)).status_code == 403
+        made = client.post(url, headers=workshop.headers(workshop.analyst)).json()
+        assert made["expires_in"] == 120 and made["url"].startswith("/records/view/")
+        r = client.get(made["url"])
+        assert r.status_code == 200 and 'id="decisions"' in r.text
+        assert "default-src 'none'" in r.headers["content-security-policy"]
+        assert client.get("/records/view/not-a-ticket").status_code == 404
+        later = records.time.time() + 121
+        monkeypatch.setattr(records.time, "time", lambda: later)
+        r = client.get(made["url"])
+        assert r.status_code == 404 and "expired" in r.text

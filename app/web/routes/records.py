@@ -3,6 +3,7 @@
     GET  /api/sessions/{id}/export/graph?format=json|graphml|dot   the agreed graph (download)
     GET  /api/sessions/{id}/export/bundle                          the full record bundle (download)
     GET  /api/sessions/{id}/report                                 the report as one HTML page
+    POST /api/sessions/{id}/report/link                            a short-lived link to open it in a tab
     POST /api/records/import?mode=new|read-only&name=...           reopen a bundle as a session
     POST /api/records/report                                       the report of an uploaded bundle
     GET  /records, POST /records/report, POST /records/import      the same as plain HTML forms
@@ -107,6 +108,39 @@ def _report_response(html: str) -> HTMLResponse:
 def read_report(access: AnalystDep) -> HTMLResponse:
     """The workshop report: one self-contained HTML page (print it to PDF from the browser)."""
     return _report_response(render_report(session_bundle(access)))
+
+
+REPORT_LINK_SECONDS = 120
+_links: dict[str, tuple[str, float]] = {}
+
+
+@router.post("/api/sessions/{session_id}/report/link")
+def create_report_link(access: AnalystDep) -> dict:
+    """A link that opens the report in a browser tab without the key (valid for two minutes).
+
+    A page cannot send the key header when it opens a tab, and a report made
+    into a blob would inherit the session page's stylesheet rules; this link
+    shows the session's current report to whoever holds it, until it expires.
+    """
+    now = time.time()
+    for ticket, (_, until) in list(_links.items()):
+        if until < now:
+            del _links[ticket]
+    ticket = secrets.token_urlsafe(24)
+    _links[ticket] = (access.session_id, now + REPORT_LINK_SECONDS)
+    return {"ok": True, "url": f"/records/view/{ticket}", "expires_in": REPORT_LINK_SECONDS}
+
+
+@router.get("/records/view/{ticket}", include_in_schema=False)
+def read_report_by_link(ticket: str, hub: HubDep) -> HTMLResponse:
+    found = _links.get(ticket)
+    if found is None or found[1] < time.time():
+        _links.pop(ticket, None)
+        raise AppError("this report link has expired; open the report again from the session page",
+                       code="link_expired", status=404)
+    from ..deps import SessionAccess
+
+    return _report_response(render_report(session_bundle(SessionAccess(session_id=found[0], hub=hub))))
 
 
 async def _read_bundle(request: Request) -> dict[str, Any]:
