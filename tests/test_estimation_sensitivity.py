@@ -97,3 +97,28 @@ def test_e_value_protective_and_null_interval():
     out = S.e_value(0.8, 0.6, 1.1)
     assert out["e_value"] == pytest.approx(1 / 0.8 + math.sqrt(1 / 0.8 * (1 / 0.8 - 1)))
     assert out["e_value_ci"] == 1.0
+
+
+def test_benchmark_partial_r2_match_statsmodels_t_statistics():
+    """For a one-column covariate, partial R2 = t^2 / (t^2 + df) of its coefficient
+    (Cinelli & Hazlett 2020, eq. for partial R2 from t-values), with the t-values
+    from statsmodels OLS of the treatment and of the outcome."""
+    import json
+    from pathlib import Path
+
+    import pandas as pd
+    import statsmodels.api as sm
+
+    from app.estimation import service
+    from app.graph.document import parse_document
+
+    sample = Path(__file__).resolve().parents[1] / "sample_data"
+    diagram = parse_document(json.loads((sample / "cycle_to_work.json").read_text()))
+    frame = pd.read_csv(sample / "cycle_to_work.csv")
+    reg = service.sensitivity(diagram, frame)["regression"]
+    age = next(b for b in reg["benchmarks"] if b["variable"] == "age" and b["k"] == 1)
+    covs = pd.get_dummies(frame[["age", "commute_km", "department", "fitness"]], drop_first=True, dtype=float)
+    d_fit = sm.OLS(frame.scheme, sm.add_constant(covs)).fit()
+    y_fit = sm.OLS(frame.sick_days, sm.add_constant(pd.concat([frame.scheme, covs], axis=1))).fit()
+    assert age["covariate_r2_treatment"] == pytest.approx(S.partial_r2(d_fit.tvalues["age"], d_fit.df_resid), rel=1e-8)
+    assert age["covariate_r2_outcome"] == pytest.approx(S.partial_r2(y_fit.tvalues["age"], y_fit.df_resid), rel=1e-8)

@@ -148,36 +148,34 @@ def _rss(x: np.ndarray, y: np.ndarray) -> float:
     return float(np.sum((y - x @ beta) ** 2))
 
 
-def _group_partial_r2(y: np.ndarray, full: np.ndarray, drop: list[int]) -> float:
-    """Share of the residual variance of y that the dropped columns explain, given the rest."""
-    keep = [i for i in range(full.shape[1]) if i not in drop]
-    rss_full = _rss(full, y)
-    rss_red = _rss(full[:, keep], y)
-    return max(0.0, (rss_red - rss_full) / rss_red) if rss_red > 0 else 0.0
-
-
 def regression_sensitivity(design, result: dict, *, q: float = 1.0, alpha: float = 0.05,
                            ks: tuple[float, ...] = (1.0, 2.0, 3.0), r2_max: float | None = None) -> dict:
     """Cinelli & Hazlett sensitivity for an OLS result, with benchmarks from each covariate."""
     est, se, df = result["estimate"], result["std_error"], result["df_resid"]
     t_value = est / se
-    n = design.n
-    ones = np.ones((n, 1))
-    cov = design.covariates
+    x = design.x  # [1, treatment, covariates]
+    k = x.shape[1]
+    # full models once: treatment on covariates, outcome on treatment and covariates
+    d_cols = [0] + list(range(2, k))
+    xd = x[:, d_cols]
+    rss_d = _rss(xd, design.t)
+    rss_y = _rss(x, design.y)
     benchmarks = []
     for var, idx in design.groups.items():
         if var.startswith("_"):
             continue
-        xd = np.hstack([ones, cov])
-        r2dxj = _group_partial_r2(design.t, xd, [1 + i for i in idx])
-        xy = np.hstack([ones, design.t[:, None], cov])
-        r2yxj = _group_partial_r2(design.y, xy, [2 + i for i in idx])
-        for k in ks:
-            r2dz, r2yz = benchmark_bounds(r2dxj, r2yxj, kd=k)
+        drop = {2 + i for i in idx}
+        rss_d_red = _rss(x[:, [c for c in d_cols if c not in drop]], design.t)
+        rss_y_red = _rss(x[:, [c for c in range(k) if c not in drop]], design.y)
+        r2dxj = max(0.0, (rss_d_red - rss_d) / rss_d_red) if rss_d_red > 0 else 0.0
+        r2yxj = max(0.0, (rss_y_red - rss_y) / rss_y_red) if rss_y_red > 0 else 0.0
+        for kk in ks:
+            r2dz, r2yz = benchmark_bounds(r2dxj, r2yxj, kd=kk)
             if r2dz >= 1 or r2yz >= 1:
                 continue
             benchmarks.append({
-                "variable": var, "k": k, "r2dz": r2dz, "r2yz": r2yz,
+                "variable": var, "k": kk, "r2dz": r2dz, "r2yz": r2yz,
+                "covariate_r2_treatment": r2dxj, "covariate_r2_outcome": r2yxj,
                 "adjusted_estimate": float(adjusted_estimate(est, se, df, r2dz, r2yz)),
                 "adjusted_se": float(adjusted_se(se, df, r2dz, r2yz)),
             })
