@@ -69,3 +69,13 @@ def test_instrument_with_conditioning_set_is_passed_as_controls():
     result = service.estimate(diagram, frame, checks=False)
     assert result["strategy"] == "instrument" and result["instrument"] == "z" and result["given"] == ["w"]
     assert result["ci"][0] < 2.0 < result["ci"][1]
+
+
+def test_standardization_point_function_matches_the_full_estimate():
+    from app.estimation import estimators
+    from app.estimation.design import build_design
+
+    frame, _ = _binary_frame(seed=43, n=3000)
+    design = build_design(frame, {c: c for c in frame.columns}, treatment="t", outcome="y", adjust=["c"])
+    full = estimators.standardization(design, resamples=20)
+    assert estimators.point_standardization(design) == pytest.approx(full["estimate"], rel=1e-7)

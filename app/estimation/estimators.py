@@ -271,7 +271,11 @@ def standardization(design: Design, *, resamples: int = 200, seed: int = 7) -> d
 
 
 def point_standardization(design: Design) -> float:
-    p0, p1, _ = _risks(design)
+    start = [np.zeros(1 + design.covariates.shape[1])] * 2
+    try:
+        p0, p1 = _quick_risks(design, start)
+    except FitFailed:
+        p0, p1, _ = _risks(design)
     return p1 - p0
 
 
