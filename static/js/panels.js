@@ -357,6 +357,13 @@ export function renderPeople(app) {
       el('button', { type: 'button', text: 'Arrowmoot JSON', on: { click: () => app.downloadDocument('json') } }),
       el('button', { type: 'button', text: 'GraphML', on: { click: () => app.downloadDocument('graphml') } }),
       el('button', { type: 'button', text: 'DOT', on: { click: () => app.downloadDocument('dot') } })));
+  if (app.isFacilitator || app.me?.analyst) {
+    box.append(el('h3', { text: 'The workshop record' }),
+      el('p', { class: 'muted', text: 'The report (prints to PDF) and the full record: diagram, votes, decisions, analysis and estimates.' }),
+      el('div', { class: 'row' },
+        el('button', { type: 'button', text: 'Open the report', on: { click: () => app.openReport() } }),
+        el('button', { type: 'button', text: 'Download the record', on: { click: () => app.downloadBundle() } })));
+  }
   if (app.isFacilitator && app.state.session.stage === 'drafting') {
     const file = el('input', { type: 'file', accept: '.json,.graphml,.xml,.dot,.gv', 'aria-label': 'Diagram file' });
     box.append(el('h3', { text: 'Replace the diagram from a file' }),

@@ -220,6 +220,26 @@ class SessionApp {
     document.body.append(a); a.click(); a.remove();
   }
 
+  /** Open the session's report in a new tab, through a short-lived link (tabs cannot send the key). */
+  async openReport() {
+    const tab = window.open('', '_blank');  // opened now, inside the click, so it is not blocked
+    try {
+      const data = await callApi('POST', `/api/sessions/${encodeURIComponent(this.sessionId)}/report/link`, undefined, this.token);
+      if (tab) { tab.opener = null; tab.location.href = data.url; } else location.assign(data.url);
+    } catch (err) {
+      if (tab) tab.close();
+      toast(err.message, 'error');
+    }
+  }
+
+  /** Download the versioned record bundle of the whole workshop. */
+  async downloadBundle() {
+    const response = await fetch(`/api/sessions/${encodeURIComponent(this.sessionId)}/export/bundle`, { headers: { [TOKEN_HEADER]: this.token } });
+    if (!response.ok) { toast((await response.json().catch(() => ({}))).error || 'export failed', 'error'); return; }
+    const a = el('a', { href: URL.createObjectURL(await response.blob()), download: 'workshop.record.json' });
+    document.body.append(a); a.click(); a.remove();
+  }
+
   async importFile(file) {
     if (!file) { toast('Choose a file first.', 'error'); return; }
     const lower = file.name.toLowerCase();
