@@ -162,6 +162,20 @@ def test_join_limit_window_moves_on_and_is_per_address():
     limiter.check("10.0.0.1")
 
 
+def test_join_limiter_forgets_quiet_addresses():
+    from app.web.guards import JoinLimiter
+
+    now = [0.0]
+    limiter = JoinLimiter(limit=3, window=60.0, clock=lambda: now[0])
+    limiter.MAX_ADDRESSES = 100
+    for i in range(150):
+        limiter.check(f"10.0.{i // 256}.{i % 256}")
+        limiter.failed(f"10.0.{i // 256}.{i % 256}")
+    now[0] += 61
+    limiter.check("10.9.9.9")
+    assert len(limiter._failures) <= 1
+
+
 # -- keys --------------------------------------------------------------------------------
 def test_keys_are_stored_only_as_digests(tmp_path):
     with TestClient(make_app(tmp_path)) as client:

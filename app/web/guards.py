@@ -139,6 +139,8 @@ class OriginGuard:
 class JoinLimiter:
     """At most ``limit`` wrong join codes per address within ``window`` seconds."""
 
+    MAX_ADDRESSES = 10000
+
     def __init__(self, limit: int = 10, window: float = 60.0, clock=time.monotonic):
         self.limit = limit
         self.window = window
@@ -162,8 +164,8 @@ class JoinLimiter:
                 raise TooManyAttempts(
                     f"too many wrong join codes from this address; wait {wait} s and check "
                     "the code with the facilitator", code="too_many_attempts")
-            if len(self._failures) > 10000:  # forget idle addresses
-                for key in [k for k, v in self._failures.items() if not v][:5000]:
+            if len(self._failures) > self.MAX_ADDRESSES:  # forget addresses quiet for a window
+                for key in [k for k in self._failures if not self._recent(k, now)]:
                     del self._failures[key]
 
     def failed(self, address: str) -> None:
