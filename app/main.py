@@ -109,6 +109,15 @@ def _create_demo_session(hub: Hub, settings: Settings) -> None:
     except Exception as exc:  # a broken demo file must not stop the server
         log.warning("demo session not created: %s", exc)
         return
+    # The demo ships its (invented) data too; the room only sees it at the estimation stage.
+    demo_data = path.with_suffix(".csv")
+    if demo_data.is_file():
+        try:
+            from .web.routes.estimation import attach_file
+
+            attach_file(hub.store, w.id, demo_data)
+        except Exception as exc:  # the diagram alone is still a usable demo
+            log.warning("demo data not attached: %s", exc)
     # The only place a key is ever printed: the console of whoever started the server.
     # ``arrowmoot serve`` sets ARROWMOOT_PUBLIC_URL to the address it binds.
     base = os.environ.get("ARROWMOOT_PUBLIC_URL", "").rstrip("/")
