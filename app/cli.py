@@ -61,6 +61,9 @@ def run_identify(args: argparse.Namespace) -> int:
 
 
 def run_serve(args: argparse.Namespace) -> int:
+    # One BLAS thread per process: the server already runs the analysis in a child
+    # process, and on a small machine threaded BLAS makes small fits far slower.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     import uvicorn
 
     from .main import create_app
