@@ -26,7 +26,7 @@ __all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin
            "guarded_join_lookup"]
 
 # Routes that stream their body to their own, larger limit: data uploads and record bundles.
-UPLOAD_PATH = re.compile(r"^(/api/sessions/[^/]+/estimation/data|/api/records/(import|report))$")
+UPLOAD_PATH = re.compile(r"^(/api/sessions/[^/]+/estimation/data|/api/records/(import|report)|/records/(import|report))$")
 
 
 class TooManyAttempts(AppError):
