@@ -28,6 +28,9 @@ Checks, after each phase, straight from the SQLite file:
 Everything is bounded: each wait has a timeout, the whole run stops after
 --deadline seconds, and the servers it started are killed on the way out.
 
+The server runs as `arrowmoot serve` runs it (no per-message WebSocket compression);
+--server-deflate turns compression on, as a plain `uvicorn.run` would.
+
 Usage: python bench/bench_load.py [--seconds 60] [--kill-seconds 30] [--think 1.5,4.5] [--seed 1]
 Prints markdown tables for bench/README.md; exit code 1 if any check fails.
 """
@@ -86,6 +89,7 @@ class Server:
         self.folder, self.port = folder, port
         self.proc: subprocess.Popen | None = None
         self.profile: Path | None = None
+        self.deflate = False  # as `arrowmoot serve` runs it
         self.log = open(folder / "server.log", "ab")
 
     def start(self) -> None:
@@ -94,7 +98,7 @@ class Server:
                    PYTHONPATH=str(ROOT))
         code = ("import uvicorn; from app.main import create_app; "
                 f"uvicorn.run(create_app(), host='127.0.0.1', port={self.port}, "
-                "log_level='warning', access_log=False)")
+                f"log_level='warning', access_log=False, ws_per_message_deflate={self.deflate})")
         if self.profile:  # cProfile the server; the stats are written when it stops
             # uvicorn re-raises SIGTERM after its clean shutdown; a handler that exits
             # lets the profile be written first.
@@ -519,6 +523,7 @@ async def run(args) -> int:
     wall_deadline = time.monotonic() + args.deadline
     with tempfile.TemporaryDirectory(prefix="arrowmoot-load-") as tmp:
         bench = Bench(args, Path(tmp))
+        bench.server.deflate = args.server_deflate
         if args.profile:
             bench.server.profile = Path(args.profile).resolve()
         bench.server.start()
@@ -546,8 +551,8 @@ def report(args, bench, steady, kill, problems1, problems2) -> None:
     print(f"\n### Steady load: {len(bench.rooms)} sessions, {people} WebSocket clients "
           f"({steady['big_clients']} in the big room), {args.seconds:.0f} s, think time {args.think} s\n")
     print(f"Load average of the machine (1 min) at the start / end: {bench.load_avg[0]:.1f} / "
-          f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs; client compression: "
-          f"{bench.compression or 'off'}.\n")
+          f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs; per-message compression: "
+          f"{'on' if bench.compression and args.server_deflate else 'off'}.\n")
     print("| measure | value | target |\n|---|---|---|")
     print(f"| acknowledged operations (all rooms) | {steady['ops']} ({steady['ops'] / steady['elapsed']:.1f}/s) | |")
     print(f"| big room: edit sent → all {steady['big_clients']} clients hold it, p50 / p95 / p99 ms | "
@@ -590,6 +595,9 @@ def main() -> int:
     parser.add_argument("--profile", help="write cProfile stats of the (first) server to this file")
     parser.add_argument("--no-deflate", dest="deflate", action="store_false",
                         help="clients decline per-message compression (browsers always offer it)")
+    parser.add_argument("--server-deflate", action="store_true",
+                        help="let the server accept per-message compression (plain uvicorn's "
+                        "default; `arrowmoot serve` turns it off)")
     parser.add_argument("--deadline", type=float, default=420, help="hard stop for the whole run, seconds")
     return asyncio.run(run(parser.parse_args()))
 
