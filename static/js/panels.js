@@ -7,7 +7,8 @@ const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
 const ROLE_WORDS = {
   treatment: 'treatment', outcome: 'outcome', confounder: 'confounder', mediator: 'mediator',
   collider: 'collider', treatment_descendant: 'descendant of treatment', instrument: 'instrument',
-  unrelated: 'not on any path',
+  outcome_descendant: 'descendant of outcome', treatment_cause: 'cause of treatment only',
+  outcome_cause: 'cause of outcome only', unrelated: 'not on any path',
 };
 
 function setChips(app, sets, label) {
@@ -93,7 +94,7 @@ export function renderAnalysis(app) {
   box.append(el('h3', { text: 'Roles' }));
   const roles = Object.entries(a.roles || {}).sort(([x], [y]) => x.localeCompare(y));
   box.append(el('table', { class: 'roles' }, el('tbody', {}, roles.map(([name, words]) => el('tr', {},
-    el('th', { text: name }), el('td', { text: words.map((w) => ROLE_WORDS[w] || w).join(', ') }))))));
+    el('th', { text: name }), el('td', { text: words.map((w) => ROLE_WORDS[w] || w.replaceAll('_', ' ')).join(', ') }))))));
 
   box.append(el('h3', { text: `Testable implications (${a.implications_total ?? (a.implications || []).length})` }));
   const imps = a.implications || [];
