@@ -6,20 +6,12 @@ Screenshots land in tests/artifacts/ (git-ignored).
 from __future__ import annotations
 
 import os
-import socket
-import subprocess
-import sys
-import time
-from pathlib import Path
 
-import httpx
 import pytest
 
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
-ROOT = Path(__file__).resolve().parent.parent
+from live_server import ARTIFACTS, CHROMIUM, running_server
+from live_server import CHROMIUM_ARGS as ARGS
+
 
 pytestmark = [
     pytest.mark.browser,
@@ -27,34 +19,10 @@ pytestmark = [
 ]
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-@pytest.fixture
-def server(tmp_path):
-    port = _free_port()
-    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "b.sqlite3"),
-               ARROWMOOT_DATA_DIR=str(tmp_path), ARROWMOOT_DEMO_SESSION="0")
-    code = ("import uvicorn; from app.main import create_app; "
-            f"uvicorn.run(create_app(), host='127.0.0.1', port={port}, log_level='warning')")
-    proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
-                            stdout=subprocess.PIPE, stderr=subprocess.STDOUT)
-    base = f"http://127.0.0.1:{port}"
-    for _ in range(100):
-        try:
-            httpx.get(base + "/", timeout=0.5)
-            break
-        except httpx.HTTPError:
-            time.sleep(0.1)
-    else:
-        proc.kill()
-        raise RuntimeError("server did not start: " + proc.stdout.read().decode())
-    yield base
-    proc.terminate()
-    proc.wait(timeout=10)
+@pytest.fixture(name="server")
+def fixture_server(tmp_path):
+    with running_server(tmp_path) as base:
+        yield base
 
 
 def _watch(page, errors):

@@ -4,67 +4,23 @@ failing implication shown on the diagram. Screenshots in tests/artifacts/."""
 from __future__ import annotations
 
 import json
-import os
-import signal
-import socket
-import subprocess
-import sys
-import time
 from pathlib import Path
 
 import httpx
 import pytest
 
+from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLE = ROOT / "sample_data"
-ARTIFACTS = ROOT / "tests" / "artifacts"
-CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 
 pytestmark = pytest.mark.browser
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @pytest.fixture(name="server")
 def fixture_server(tmp_path):
-    port = _free_port()
-    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "db.sqlite3"), ARROWMOOT_DATA_DIR=str(tmp_path / "data"),
-               ARROWMOOT_DEMO_SESSION="0")
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--host", "127.0.0.1",
-         "--port", str(port), "--log-level", "warning"],
-        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-        start_new_session=True,  # its own process group, so its helper processes stop with it
-    )
-    base = f"http://127.0.0.1:{port}"
-    for _ in range(100):
-        try:
-            httpx.get(base + "/", timeout=0.5)
-            break
-        except httpx.HTTPError:
-            time.sleep(0.1)
-    else:
-        _stop(proc)
-        pytest.fail("server did not start: " + proc.stderr.read().decode()[-2000:])
-    yield base
-    _stop(proc)
-
-
-def _stop(proc: subprocess.Popen) -> None:
-    """Stop the server and every process it started (its own process group)."""
-    try:
-        os.killpg(proc.pid, signal.SIGTERM)
-        proc.wait(timeout=10)
-    except (ProcessLookupError, subprocess.TimeoutExpired):
-        try:
-            os.killpg(proc.pid, signal.SIGKILL)
-        except ProcessLookupError:
-            pass
+    with running_server(tmp_path) as base:
+        yield base
 
 
 def _prepare_session(base: str) -> tuple[str, str]:

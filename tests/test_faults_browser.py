@@ -6,61 +6,19 @@ tests/artifacts/."""
 from __future__ import annotations
 
 import os
-import signal
-import socket
-import subprocess
-import sys
-import time
-from pathlib import Path
 
 import httpx
 import pytest
 
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
-ROOT = Path(__file__).resolve().parent.parent
+from live_server import ARTIFACTS, CHROMIUM, LiveServer as Server
+from live_server import CHROMIUM_ARGS as ARGS
+
 TOKEN_HEADER = "X-Arrowmoot-Token"
 
 pytestmark = [
     pytest.mark.browser,
     pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian chromium is not installed"),
 ]
-
-
-class Server:
-    def __init__(self, folder: Path):
-        with socket.socket() as s:
-            s.bind(("127.0.0.1", 0))
-            self.port = s.getsockname()[1]
-        self.folder = folder
-        self.base = f"http://127.0.0.1:{self.port}"
-        self.proc = None
-
-    def start(self) -> None:
-        env = dict(os.environ, ARROWMOOT_DB_PATH=str(self.folder / "k.sqlite3"),
-                   ARROWMOOT_DATA_DIR=str(self.folder), ARROWMOOT_DEMO_SESSION="0")
-        code = ("import uvicorn; from app.main import create_app; "
-                f"uvicorn.run(create_app(), host='127.0.0.1', port={self.port}, log_level='warning')")
-        self.proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env, start_new_session=True,
-                                     stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-        for _ in range(600):
-            try:
-                httpx.get(self.base + "/", timeout=0.5)
-                return
-            except httpx.HTTPError:
-                time.sleep(0.1)
-        raise RuntimeError("the server did not start")
-
-    def kill(self) -> None:
-        os.killpg(self.proc.pid, signal.SIGKILL)
-        self.proc.wait(10)
-
-    def stop(self) -> None:
-        if self.proc is not None and self.proc.poll() is None:
-            os.killpg(self.proc.pid, signal.SIGTERM)
-            self.proc.wait(15)
 
 
 def test_page_reconnects_after_sigkill_and_keeps_every_acknowledged_edit(tmp_path):

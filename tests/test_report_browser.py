@@ -3,56 +3,22 @@ the page width, printed to PDF. Screenshots and the PDF go to tests/artifacts/."
 
 from __future__ import annotations
 
-import os
-import socket
-import subprocess
-import sys
-import time
-from pathlib import Path
 
 import httpx
 import pytest
-from fastapi.testclient import TestClient
 
 from app.reporting.report import SECTIONS
 
-ROOT = Path(__file__).resolve().parents[1]
-ARTIFACTS = ROOT / "tests" / "artifacts"
-CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+
 
 pytestmark = pytest.mark.browser
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @pytest.fixture(name="server")
 def fixture_server(tmp_path):
-    port = _free_port()
-    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "db.sqlite3"), ARROWMOOT_DATA_DIR=str(tmp_path / "data"),
-               ARROWMOOT_DEMO_SESSION="0")
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory", "--host", "127.0.0.1",
-         "--port", str(port), "--log-level", "warning"],
-        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-    )
-    base = f"http://127.0.0.1:{port}"
-    for _ in range(100):
-        try:
-            httpx.get(base + "/", timeout=0.5)
-            break
-        except httpx.HTTPError:
-            time.sleep(0.1)
-    else:
-        proc.kill()
-        pytest.fail("server did not start: " + proc.stderr.read().decode()[-2000:])
-    yield base
-    proc.terminate()
-    proc.wait(timeout=10)
+    with running_server(tmp_path) as base:
+        yield base
 
 
 class _HttpxAsTestClient:

@@ -7,20 +7,13 @@ from __future__ import annotations
 
 import json
 import os
-import socket
-import subprocess
-import sys
-import time
-from pathlib import Path
 
 import httpx
 import pytest
 
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
-ROOT = Path(__file__).resolve().parent.parent
+from live_server import ARTIFACTS, CHROMIUM, running_server
+from live_server import CHROMIUM_ARGS as ARGS
+
 TOKEN_HEADER = "X-Arrowmoot-Token"
 
 pytestmark = [
@@ -37,29 +30,10 @@ VOTE = "<a href=javascript:window.__pwned=6>why</a>"
 FORMULA = "{{7*7}} ${7*7} &amp;"
 
 
-@pytest.fixture
-def server(tmp_path):
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        port = s.getsockname()[1]
-    env = dict(os.environ, ARROWMOOT_DB_PATH=str(tmp_path / "x.sqlite3"),
-               ARROWMOOT_DATA_DIR=str(tmp_path), ARROWMOOT_DEMO_SESSION="0")
-    code = ("import uvicorn; from app.main import create_app; "
-            f"uvicorn.run(create_app(), host='127.0.0.1', port={port}, log_level='warning')")
-    proc = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, env=env,
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    base = f"http://127.0.0.1:{port}"
-    try:
-        for _ in range(300):
-            try:
-                httpx.get(base + "/", timeout=0.5)
-                break
-            except httpx.HTTPError:
-                time.sleep(0.1)
+@pytest.fixture(name="server")
+def fixture_server(tmp_path):
+    with running_server(tmp_path) as base:
         yield base
-    finally:
-        proc.terminate()
-        proc.wait(timeout=10)
 
 
 def _room(base: str) -> dict:
