@@ -26,7 +26,7 @@ from .errors import DiagramError, MalformedDocument
 
 __all__ = [
     "to_graphml", "from_graphml", "to_dot", "from_dot", "diagram_from_networkx",
-    "read_graph_file", "parse_graph_bytes",
+    "read_graph_file", "parse_graph_bytes", "read_file_bytes", "parse_json_bytes",
 ]
 
 MAX_IMPORT_BYTES = 20 * 1024 * 1024
@@ -251,37 +251,42 @@ def _first_line(err: Exception) -> str:
     return text[0] if text else type(err).__name__
 
 
+def read_file_bytes(path: str | Path, error: type[Exception] = MalformedDocument) -> bytes:
+    """The bytes of a file the user named; a missing or unreadable file raises ``error``."""
+    try:
+        return Path(path).read_bytes()
+    except FileNotFoundError:
+        raise error(f"no such file: {path}") from None
+    except IsADirectoryError:
+        raise error(f"{path} is a folder, not a file") from None
+    except OSError as err:
+        raise error(f"cannot read {path}: {err.strerror}") from None
+
+
+def parse_json_bytes(raw: bytes, name: str, error: type[Exception] = MalformedDocument) -> object:
+    """Decode UTF-8 JSON; text that is not raises ``error`` naming the line and column."""
+    import json
+
+    try:
+        return json.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise error(f"{name} is not UTF-8 text; give a JSON file") from None
+    except json.JSONDecodeError as err:
+        raise error(f"{name} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})") from None
+
+
 def parse_graph_bytes(raw: bytes, name: str) -> Diagram:
     """A diagram from file contents, the format judged by the file name's ending:
     .graphml/.xml GraphML, .dot/.gv DOT, anything else a JSON graph document."""
-    import json
-
     suffix = Path(name).suffix.lower()
     if suffix in (".graphml", ".xml"):
         return from_graphml(raw)
     if suffix in (".dot", ".gv"):
         return from_dot(raw)
     _check_size(raw)
-    try:
-        data = json.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise MalformedDocument(f"{name} is not UTF-8 text; give a JSON graph document") from None
-    except json.JSONDecodeError as err:
-        raise MalformedDocument(
-            f"{name} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})"
-        ) from None
-    return parse_document(data)
+    return parse_document(parse_json_bytes(raw, name))
 
 
 def read_graph_file(path: str | Path) -> Diagram:
     """Read a graph file in any supported format; problems raise MalformedDocument."""
-    file = Path(path)
-    try:
-        raw = file.read_bytes()
-    except FileNotFoundError:
-        raise MalformedDocument(f"no such file: {path}") from None
-    except IsADirectoryError:
-        raise MalformedDocument(f"{path} is a folder, not a graph file") from None
-    except OSError as err:
-        raise MalformedDocument(f"cannot read {path}: {err.strerror}") from None
-    return parse_graph_bytes(raw, str(path))
+    return parse_graph_bytes(read_file_bytes(path), str(path))

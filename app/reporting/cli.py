@@ -29,21 +29,9 @@ def _fail(message: str) -> int:
 
 
 def _read_json(path: str) -> object:
-    file = Path(path)
-    try:
-        raw = file.read_bytes()
-    except FileNotFoundError:
-        raise BundleError(f"no such file: {path}") from None
-    except IsADirectoryError:
-        raise BundleError(f"{path} is a folder, not a file") from None
-    except OSError as err:
-        raise BundleError(f"cannot read {path}: {err.strerror}") from None
-    try:
-        return json.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise BundleError(f"{path} is not UTF-8 text") from None
-    except json.JSONDecodeError as err:
-        raise BundleError(f"{path} is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})") from None
+    from ..graph.formats import parse_json_bytes, read_file_bytes
+
+    return parse_json_bytes(read_file_bytes(path, BundleError), path, BundleError)
 
 
 def _write(text: str, output: str | None) -> None:
