@@ -41,9 +41,29 @@ class Dag:
     def edges(self) -> list[tuple[str, str]]:
         return [(u, v) for u in self.nodes for v in self.children[u]]
 
+    def _sharing(self) -> "Dag":
+        """A shallow copy whose adjacency sets are shared until replaced (never mutated)."""
+        dag = Dag.__new__(Dag)
+        dag.nodes = self.nodes
+        dag.parents = dict(self.parents)
+        dag.children = dict(self.children)
+        return dag
+
+    def with_edges(self, added: Iterable[tuple[str, str]]) -> "Dag":
+        """This graph plus some arrows; only the touched adjacency sets are copied."""
+        dag = self._sharing()
+        for u, v in added:
+            dag.parents[v] = dag.parents[v] | {u}
+            dag.children[u] = dag.children[u] | {v}
+        return dag
+
     def without_edges(self, removed: Iterable[tuple[str, str]]) -> "Dag":
-        removed = set(removed)
-        return Dag(self.nodes, (e for e in self.edges() if e not in removed))
+        """This graph minus some arrows; only the touched adjacency sets are copied."""
+        dag = self._sharing()
+        for u, v in removed:
+            dag.parents[v] = dag.parents[v] - {u}
+            dag.children[u] = dag.children[u] - {v}
+        return dag
 
     def without_edges_out_of(self, sources: Iterable[str]) -> "Dag":
         """G with every arrow leaving ``sources`` removed (G underline-S)."""
@@ -61,6 +81,18 @@ class Dag:
     def descendants(self, sources: Iterable[str], avoid: Iterable[str] = ()) -> set[str]:
         """de(sources), walking only through nodes not in ``avoid``."""
         return _closure(sources, self.children, set(avoid))
+
+    def causal_nodes(self, xs: set[str], ys: set[str]) -> set[str]:
+        """cn(X, Y): nodes other than X on proper causal paths from X to Y."""
+        down = self.descendants([c for x in xs for c in self.children[x] if c not in xs], avoid=xs)
+        up = self.ancestors(ys, avoid=xs)
+        return (down & up) - set(xs)
+
+    def find_cycle(self) -> list[str] | None:
+        """The nodes of one directed cycle, or None when the graph is acyclic."""
+        from .document import find_cycle
+
+        return find_cycle(self.nodes, self.edges())
 
     def topological_order(self) -> list[str]:
         indegree = {v: len(self.parents[v]) for v in self.nodes}
@@ -112,8 +144,30 @@ class Dag:
         return reached
 
     def is_d_separated(self, xs: Iterable[str], ys: Iterable[str], given: Iterable[str] = ()) -> bool:
-        ys = set(ys)
-        return not (self.d_connected(xs, given) & ys)
+        """The same search as :meth:`d_connected`, stopping at the first node of ``ys``."""
+        ys, given = set(ys), set(given)
+        opened = self.ancestors(given)
+        stack = [(s, True) for s in xs]
+        seen: set[tuple[str, bool]] = set()
+        while stack:
+            state = stack.pop()
+            if state in seen:
+                continue
+            seen.add(state)
+            v, upward = state
+            if v not in given and v in ys:
+                return False
+            if upward:
+                if v in given:
+                    continue
+                stack.extend((p, True) for p in self.parents[v])
+                stack.extend((c, False) for c in self.children[v])
+            else:
+                if v not in given:
+                    stack.extend((c, False) for c in self.children[v])
+                if v in opened:
+                    stack.extend((p, True) for p in self.parents[v])
+        return True
 
 
 def _closure(sources: Iterable[str], step: dict[str, set[str]], avoid: set[str]) -> set[str]:

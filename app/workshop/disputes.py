@@ -37,6 +37,7 @@ from ..graph.document import parse_document
 from ..graph.errors import DiagramError
 from .models import Workshop
 from .voting import disputed_items
+from ..graph.dag import Dag
 
 __all__ = ["FastDag", "analysis_key", "analyse_workshop", "analyse_state", "slim_for_push", "dispute_report", "absent_arrow_report",
            "EXACT_LIMIT", "SAMPLE_SEED"]
@@ -50,143 +51,8 @@ ABSENT_BUDGET_S = 4.0
 MINIMISE_BUDGET = 4000  # combinations x variables we are willing to re-check to shrink a set
 
 
-class FastDag:
-    """Adjacency sets and the few graph queries the dispute checks need."""
-
-    __slots__ = ("nodes", "parents", "children")
-
-    def __init__(self, nodes: Iterable[str], edges: Iterable[tuple[str, str]]):
-        self.nodes = list(nodes)
-        self.parents: dict[str, set[str]] = {n: set() for n in self.nodes}
-        self.children: dict[str, set[str]] = {n: set() for n in self.nodes}
-        for a, b in edges:
-            self.parents[b].add(a)
-            self.children[a].add(b)
-
-    @classmethod
-    def derived(cls, base: "FastDag", added: Iterable[tuple[str, str]]) -> "FastDag":
-        """``base`` plus some arrows, sharing every adjacency set the new arrows leave alone."""
-        dag = cls.__new__(cls)
-        dag.nodes = base.nodes
-        dag.parents = dict(base.parents)
-        dag.children = dict(base.children)
-        for a, b in added:
-            dag.parents[b] = dag.parents[b] | {a}
-            dag.children[a] = dag.children[a] | {b}
-        return dag
-
-    def is_acyclic(self) -> bool:
-        """Kahn's algorithm: every node can be removed once its parents are gone."""
-        indegree = {n: len(p) for n, p in self.parents.items()}
-        ready = [n for n, d in indegree.items() if d == 0]
-        removed = 0
-        children = self.children
-        while ready:
-            n = ready.pop()
-            removed += 1
-            for c in children[n]:
-                indegree[c] -= 1
-                if indegree[c] == 0:
-                    ready.append(c)
-        return removed == len(indegree)
-
-    def find_cycle(self) -> list[str] | None:
-        if self.is_acyclic():
-            return None
-        colour = {n: 0 for n in self.nodes}
-        for root in self.nodes:
-            if colour[root]:
-                continue
-            stack = [(root, iter(sorted(self.children[root])))]
-            path = [root]
-            colour[root] = 1
-            while stack:
-                node, it = stack[-1]
-                nxt = next(it, None)
-                if nxt is None:
-                    colour[node] = 2
-                    stack.pop()
-                    path.pop()
-                elif colour[nxt] == 1:
-                    return path[path.index(nxt):]
-                elif colour[nxt] == 0:
-                    colour[nxt] = 1
-                    stack.append((nxt, iter(sorted(self.children[nxt]))))
-                    path.append(nxt)
-        return None
-
-    def _closure(self, start: Iterable[str], step: dict[str, set[str]], avoid: set[str] = frozenset()) -> set[str]:
-        seen = set(start)
-        todo = list(seen)
-        while todo:
-            n = todo.pop()
-            for m in step[n]:
-                if m not in seen and m not in avoid:
-                    seen.add(m)
-                    todo.append(m)
-        return seen
-
-    def ancestors(self, nodes: Iterable[str]) -> set[str]:
-        return self._closure(nodes, self.parents)
-
-    def descendants(self, nodes: Iterable[str]) -> set[str]:
-        return self._closure(nodes, self.children)
-
-    def causal_nodes(self, xs: set[str], ys: set[str]) -> set[str]:
-        """cn(X, Y): nodes other than X on proper causal paths from X to Y."""
-        start = {c for x in xs for c in self.children[x] if c not in xs}
-        down = self._closure(start, self.children, avoid=xs)
-        up = self._closure(ys - xs, self.parents, avoid=xs)
-        return down & up
-
-    def without(self, removed: Iterable[tuple[str, str]]) -> "FastDag":
-        """This graph minus some arrows (adjacency sets shared where untouched)."""
-        dag = FastDag.__new__(FastDag)
-        dag.nodes = self.nodes
-        dag.parents = dict(self.parents)
-        dag.children = dict(self.children)
-        for a, b in removed:
-            dag.parents[b] = dag.parents[b] - {a}
-            dag.children[a] = dag.children[a] - {b}
-        return dag
-
-    def d_separated(self, xs: set[str], ys: set[str], zs: set[str]) -> bool:
-        """Is X d-separated from Y given Z?
-
-        The reachability ("Bayes-ball") search of Koller & Friedman (2009),
-        Algorithm 3.1: a trail may enter a node from a child (moving up) or
-        from a parent (moving down); Y is d-connected if the search reaches it.
-        """
-        an_z = self.ancestors(zs)
-        parents, children = self.parents, self.children
-        seen_up: set[str] = set()
-        seen_down: set[str] = set()
-        up = [x for x in xs]     # nodes entered from a child
-        down: list[str] = []     # nodes entered from a parent
-        while up or down:
-            if up:
-                node = up.pop()
-                if node in seen_up:
-                    continue
-                seen_up.add(node)
-                if node in zs:
-                    continue
-                if node in ys:
-                    return False
-                up.extend(parents[node])
-                down.extend(children[node])
-            else:
-                node = down.pop()
-                if node in seen_down:
-                    continue
-                seen_down.add(node)
-                if node not in zs:
-                    if node in ys:
-                        return False
-                    down.extend(children[node])
-                if node in an_z:
-                    up.extend(parents[node])
-        return True
+# The engine's DAG: adjacency sets shared between the graphs of the combinations.
+FastDag = Dag
 
 
 class _Question:
@@ -197,13 +63,13 @@ class _Question:
         self.cn = dag.causal_nodes(xs, ys)
         self.forb = dag.descendants(self.cn) | xs
         removed = [(x, c) for x in xs for c in dag.children[x] if c in self.cn]
-        self.back_door = dag.without(removed)  # the proper back-door graph
+        self.back_door = dag.without_edges(removed)  # the proper back-door graph
         self.observed = observed
 
     def is_valid(self, zs: set[str]) -> bool:
         if zs & self.forb or not zs <= self.observed:
             return False
-        return self.back_door.d_separated(self.xs, self.ys, zs)
+        return self.back_door.is_d_separated(self.xs, self.ys, zs)
 
     def canonical(self) -> set[str]:
         return (self.dag.ancestors(self.xs | self.ys) & self.observed) - self.xs - self.ys - self.forb
@@ -351,7 +217,7 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
         done += 1
         choice = [items[i]["options"][k] for i, k in enumerate(combo)]
         added = [e for option in choice for e in _option_edges(option)]
-        dag = FastDag.derived(fixed_dag, added)
+        dag = fixed_dag.with_edges(added)
         cycle = dag.find_cycle()
         if cycle:
             cycle_count += 1
