@@ -157,7 +157,7 @@ def test_sets_of_treatments_and_outcomes():
 
 
 def test_implications_are_local_markov_statements():
-    """Pearl 2009, Theorem 1.2.7 (local Markov): a chain a -> b -> c implies a ⫫ c | b."""
+    """Pearl 2009, Theorem 1.2.7 (local Markov): a chain a -> b -> c implies a ⊥ c | b."""
     result = run(document([("a", "b"), ("b", "c")], "a", "c"))
     assert result["implications"] == [{"x": "a", "y": "c", "given": ["b"]}]
 

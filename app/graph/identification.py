@@ -21,8 +21,8 @@ optimal set          O = pa(cn) \\ forb, valid whenever any adjustment set is,
 front-door set       Z intercepting every directed X->Y path, with no open
                      back-door path from X to Z, and every back-door path from
                      Z to Y blocked by X (Pearl 1995; Pearl 2009, Def. 3.3.3),
-                     read for sets as (X ⫫ Z) in G without arrows out of X
-                     and (Z ⫫ Y | X) in G without arrows out of Z (Jeong,
+                     read for sets as (X ⊥ Z) in G without arrows out of X
+                     and (Z ⊥ Y | X) in G without arrows out of Z (Jeong,
                      Tian & Bareinboim 2022).
 instrument           z with conditioning set W (W free of descendants of X):
                      z d-connected to X given W, and d-separated from Y given W

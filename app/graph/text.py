@@ -59,5 +59,5 @@ def format_analysis(result: dict) -> str:
     lines.append(f"Testable implications ({total_imp} in all, {len(implied)} listed):")
     for imp in implied:
         given = f" | {', '.join(imp['given'])}" if imp["given"] else ""
-        lines.append(f"  {imp['x']} ⫫ {imp['y']}{given}")
+        lines.append(f"  {imp['x']} ⊥ {imp['y']}{given}")
     return "\n".join(lines)

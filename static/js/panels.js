@@ -100,7 +100,7 @@ export function renderAnalysis(app) {
   const imps = a.implications || [];
   if (!imps.length) box.append(el('p', { class: 'muted', text: 'The diagram implies no independence among measured variables.' }));
   else box.append(el('ul', { class: 'implications' }, imps.slice(0, 40).map((i) => el('li', {
-    text: `${i.x} ⫫ ${i.y}${i.given.length ? ` | ${i.given.join(', ')}` : ''}`,
+    text: `${i.x} ⊥ ${i.y}${i.given.length ? ` | ${i.given.join(', ')}` : ''}`,
   }))));
   if (imps.length > 40) box.append(el('p', { class: 'muted', text: `…and ${imps.length - 40} more.` }));
   box.append(caution());
