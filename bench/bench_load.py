@@ -168,6 +168,35 @@ class Server:
                 self.kill_hard()
 
 
+def apply_view_patch(view: dict, patch: dict) -> None:
+    """Keep the facilitator's view (what the clients choose their commands from) current.
+
+    Only the parts ``choose`` reads: variables, drawn arrows (a reversed one keeps its
+    place) and proposals. The page's own, complete version is static/js/live.js.
+    """
+    doc = view["document"]
+    positions = {m["name"]: m for m in patch.get("moves", [])}
+    for v in doc["variables"]:
+        if v["name"] in positions:
+            v["x"], v["y"] = positions[v["name"]]["x"], positions[v["name"]]["y"]
+    doc["variables"] += patch.get("variables_added", [])
+    removed = {tuple(a) for a in patch.get("arrows_removed", [])}
+    added = [tuple(a) for a in patch.get("arrows_added", [])]
+    in_place = {(b, a): (a, b) for a, b in added if (b, a) in removed}
+    arrows = []
+    for arrow in doc["arrows"]:
+        pair = (arrow["from"], arrow["to"])
+        if pair in in_place:
+            arrows.append(dict(zip(("from", "to"), in_place[pair])))
+        elif pair not in removed:
+            arrows.append(arrow)
+    doc["arrows"] = arrows + [{"from": a, "to": b} for a, b in added if (a, b) not in in_place.values()]
+    by_id = {p["id"]: p for p in view["proposals"]}
+    for p in patch.get("proposals", []):
+        by_id[p["id"]] = p
+    view["proposals"] = sorted(by_id.values(), key=lambda p: p["id"])
+
+
 # -- one participant ------------------------------------------------------------------
 class Participant:
     def __init__(self, bench: "Bench", room: "Room", token: str, member_id: str, name: str,
@@ -223,15 +252,17 @@ class Participant:
         else:
             message = json.loads(text)
             kind, rev = message["type"], message.get("revision")
+        if message is not None and self.room.big and kind in self.bench.push_sizes:
+            self.bench.push_sizes[kind].append(len(text))
         if kind == "state":
             self._advance(rev, now)
             if message is not None:
                 self.room.view = message["state"]
-                if self.room.big:
-                    self.bench.state_sizes.append(len(text))
         elif kind == "patch":
             base = int(re.search(r'"base": (\d+)', text).group(1))
             if self.revision is not None and base == self.revision:
+                if message is not None and self.room.view is not None:
+                    apply_view_patch(self.room.view, message)
                 self._advance(rev, now)
             elif self.revision is None or rev > self.revision:
                 asyncio.ensure_future(self._send({"type": "resync", "revision": self.revision}))
@@ -360,7 +391,7 @@ class Bench:
         self.refused: dict[str, int] = {}
         self.latency_jobs: list[tuple[Room, int, float]] = []
         self.ack_ms: list[float] = []
-        self.state_sizes: list[int] = []
+        self.push_sizes: dict[str, list[int]] = {"state": [], "patch": [], "analysis": []}
         self.load_avg = os.getloadavg()
         self.compression = "deflate" if args.deflate else None
 
@@ -410,6 +441,8 @@ class Bench:
         cpu0, own0 = self.server.cpu_s(), time.process_time()
         self.latency_jobs.clear()
         self.ack_ms.clear()
+        for sizes in self.push_sizes.values():
+            sizes.clear()
         actors = [asyncio.create_task(p.act(stop, think)) for p in self.everyone()]
         rss, down_s = [], None
         end = start + seconds
@@ -455,7 +488,8 @@ class Bench:
                 "missing_arrivals": len(self.latency_jobs) - len(latency), "rss": rss,
                 "down_s": down_s, "big_clients": len(big.people), "ack_ms": list(self.ack_ms),
                 "server_cpu": server_cpu, "own_cpu": own_cpu,
-                "state_kb": max(self.state_sizes, default=0) / 1024}
+                "push_kb": {k: (max(v, default=0) / 1024, percentile(v, .5) / 1024, len(v))
+                            for k, v in self.push_sizes.items()}}
 
     # -- verification straight from the database -------------------------------------
     def verify(self) -> list[str]:
@@ -562,7 +596,9 @@ def report(args, bench, steady, kill, problems1, problems2) -> None:
           f"{percentile(steady['ack_ms'], .95):.1f} | |")
     print(f"| CPU seconds per second: server (+ worker) / this load generator | "
           f"{steady['server_cpu'] / steady['elapsed']:.2f} / {steady['own_cpu'] / steady['elapsed']:.2f} | |")
-    print(f"| largest state push in the big room, KB | {steady['state_kb']:.0f} | |")
+    for kind, (largest, median, count) in steady["push_kb"].items():
+        print(f"| big room: {kind} pushes to one client, count / median / largest KB | "
+              f"{count} / {median:.1f} / {largest:.0f} | |")
     print(f"| server RSS, start → end (max) MB | {rss[0][0]:.0f} → {rss[-1][0]:.0f} ({max(r[0] for r in rss):.0f}) | |")
     print(f"| analysis worker RSS, max MB | {max(r[1] for r in rss):.0f} | |")
     print(f"| acknowledged operations lost / applied twice / stored state ≠ replay | "

@@ -136,7 +136,7 @@ def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_docu
 
 
 def test_arrow_patches_and_full_states(room):
-    """Reversing and removing arrows travel as patches; other changes as full states."""
+    """Reversing and removing arrows travel as patches; rare changes as full states."""
     room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         _, start = hello(ws, room.facilitator)
@@ -146,7 +146,7 @@ def test_arrow_patches_and_full_states(room):
         assert patch["arrows_removed"] == [["scheme", "sick_days"]]
         assert patch["arrows_added"] == [["sick_days", "scheme"]]
         assert patch["can_undo"] is True
-        room.ok(room.facilitator, {"type": "add_variable", "name": "age"})
+        room.ok(room.facilitator, {"type": "rename_session", "title": "Renamed"})
         state = receive_until(ws, "state", lambda m: m["revision"] == rev + 2)
         assert state["state"]["document"]["arrows"] == [{"from": "sick_days", "to": "scheme"}]
         assert "members" not in state["state"]  # unchanged, so not resent

@@ -2,11 +2,12 @@
 
 Per session there is one asyncio lock; a change is applied to the in-memory
 workshop, written to SQLite (state + log event in one transaction), and only
-then acknowledged and pushed to every connected client as a ``state``
-message. The analysis of the new diagram is computed in a worker thread
-and pushed afterwards as an ``analysis`` message carrying the revision it
-belongs to; when edits arrive faster than the analysis, only the newest
-revision is analysed.
+then acknowledged and pushed to every connected client: frequent changes
+as a ``patch`` against the previous revision, the others as the full
+``state``. The analysis of the new diagram is computed in a worker process
+(or thread) and pushed afterwards as an ``analysis`` message carrying the
+revision it belongs to; when edits arrive faster than the analysis, only the
+newest revision is analysed.
 """
 
 from __future__ import annotations
@@ -29,7 +30,7 @@ from ..store import Store
 from ..workshop.commands import add_member, apply_command, new_workshop, public_event, read_document
 from ..workshop.disputes import analyse_workshop, analysis_key, slim_for_push
 from ..workshop.models import Member, Workshop
-from ..workshop.views import arrow_patch, public_state
+from ..workshop.views import change_patch, public_state
 
 __all__ = ["Hub", "hash_token", "TOKEN_HEADER"]
 
@@ -367,24 +368,29 @@ class Hub:
         conns = self._connections.get(w.id)
         if conns:
             shown = public_event(event) if event else None
-            if event and event.get("kind") == "move_variable":
-                # A move changes one position: send just that; a client that is
-                # not at the previous revision asks for a resync.
-                var = w.variable(event["command"]["name"])
-                text = json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
-                                   "moves": [{"name": var["name"], "x": var["x"], "y": var["y"]}],
-                                   "event": shown})
-            elif event and (patch := arrow_patch(w, event)) is not None:
-                # An arrow drawn, removed or reversed: send the change, not the whole state.
-                text = json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
-                                   **patch, "event": shown})
-            else:
+            text = self.patch_message(w, event) if event else None
+            if text is None:
                 text = self.state_message(w, event=shown,
                                           members=event is None or event.get("kind") in MEMBER_EVENTS)
             for conn in list(conns):
                 conn.send(text)
         if not (event and event.get("kind") == "move_variable"):
             self.schedule_analysis(w.id)  # positions do not change the analysis
+
+    def patch_message(self, w: Workshop, event: dict[str, Any]) -> str | None:
+        """A frequent change (a move, a vote, a proposal, an arrow, a new variable) as a
+        patch against the previous revision, or None: then the full state goes out. A
+        client that is not at the previous revision asks for a resync."""
+        try:
+            patch = change_patch(w, event)
+        except Exception:  # a patch that cannot be built must never cost a push
+            log.exception("could not build the patch for a %s; sending the full state",
+                          event.get("kind"))
+            return None
+        if patch is None:
+            return None
+        return json.dumps({"type": "patch", "revision": w.revision, "base": w.revision - 1,
+                           **patch, "event": public_event(event)})
 
     def _broadcast(self, session_id: str, text: str) -> None:
         for conn in list(self._connections.get(session_id, ())):

@@ -9,7 +9,7 @@ from .models import Workshop, arrow_key
 from .stages import STAGE_TITLES, STAGES
 from .voting import disputed_items, proposal_public, tally, votes_public
 
-__all__ = ["public_state", "history", "arrow_public", "arrow_patch"]
+__all__ = ["public_state", "history", "arrow_public", "change_patch", "can_undo"]
 
 RECENT_EVENTS = 30
 
@@ -38,8 +38,7 @@ def public_state(w: Workshop, *, compact: bool = False) -> dict[str, Any]:
         "members": [m.to_public() for m in w.members.values()],
         "proposals": [proposal_public(w, p) for p in sorted(w.proposals.values(), key=lambda p: p.id)],
         "disputed": disputes,
-        "can_undo": any(e.get("undoable") and not e.get("undone") and e.get("before")
-                        for e in w.log),
+        "can_undo": can_undo(w),
     }
     if not compact:
         out["recent"] = [public_event(e) for e in w.log[-RECENT_EVENTS:]]
@@ -58,19 +57,108 @@ def arrow_public(w: Workshop, a: str, b: str, *, compact: bool = False) -> dict[
             "votes": votes_public(w, subject)}
 
 
-def arrow_patch(w: Workshop, event: dict[str, Any]) -> dict[str, Any] | None:
-    """For a drawn, removed or reversed arrow: just what changed, for a live push."""
-    kind = event.get("kind")
-    if kind not in ("add_arrow", "delete_arrow", "reverse_arrow"):
+def can_undo(w: Workshop) -> bool:
+    """Whether the facilitator has a change to undo (the newest ones are checked first)."""
+    return any(e.get("undoable") and not e.get("undone") and e.get("before")
+               for e in reversed(w.log))
+
+
+# A change's patch says what it did to ``public_state``: the parts named below, each
+# equal to the same part of the full state after the change.
+#   moves            [{"name", "x", "y"}]        new positions
+#   variables_added  [variable]                  appended to document.variables
+#   arrows_removed   [[from, to]]                gone from document.arrows and arrows
+#   arrows_added     [[from, to]]                appended, or in the place of its reverse
+#                                                when that was removed in the same patch
+#   arrow_notes      [arrow_public]              replace the arrow's entry in arrows
+#   proposals        [proposal_public]           replace by id, or insert in id order
+#   disputed, can_undo                           replace (absent: unchanged)
+def change_patch(w: Workshop, event: dict[str, Any]) -> dict[str, Any] | None:
+    """For a frequent change, just what it changed in the public state, for a live push.
+
+    None when the change is not one of these (stages, undo, renames, roles ...) or
+    the workshop has moved on since the event: the caller then sends the full state.
+    """
+    if event.get("revision") != w.revision:
         return None
-    a, b = event["command"]["from"], event["command"]["to"]
-    added = {"add_arrow": [[a, b]], "delete_arrow": [], "reverse_arrow": [[b, a]]}[kind]
-    removed = {"add_arrow": [], "delete_arrow": [[a, b]], "reverse_arrow": [[a, b]]}[kind]
-    notes = [n for n in (arrow_public(w, x, y, compact=True) for x, y in added) if n]
-    return {"arrows_added": added, "arrows_removed": removed, "arrow_notes": notes,
-            "disputed": disputed_items(w),
-            "can_undo": any(e.get("undoable") and not e.get("undone") and e.get("before")
-                            for e in w.log)}
+    builder = _PATCHERS.get(event.get("kind"))
+    return builder(w, event["command"], event) if builder else None
+
+
+def _move_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    var = w.variable(command.get("name"))
+    if var is None:
+        return None
+    return {"moves": [{"name": var["name"], "x": var["x"], "y": var["y"]}]}
+
+
+def _variable_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    if not w.variables or w.variables[-1]["name"] != command.get("name"):
+        return None
+    # A proposal naming a variable that an undo took away counts again once it is back.
+    return {"variables_added": [dict(w.variables[-1])], "disputed": disputed_items(w),
+            "can_undo": can_undo(w)}
+
+
+def _arrow_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    a, b = command["from"], command["to"]
+    added = {"add_arrow": [[a, b]], "delete_arrow": [], "reverse_arrow": [[b, a]]}[event["kind"]]
+    removed = {"add_arrow": [], "delete_arrow": [[a, b]], "reverse_arrow": [[a, b]]}[event["kind"]]
+    return _with_arrows(w, added, removed, {})
+
+
+def _with_arrows(w: Workshop, added: list, removed: list, patch: dict) -> dict[str, Any] | None:
+    drawn = set(w.arrows)
+    if any((x, y) not in drawn for x, y in added) or any((x, y) in drawn for x, y in removed):
+        return None  # not what this change should have left: send the full state
+    notes = [arrow_public(w, x, y) for x, y in added]
+    return {"arrows_added": added, "arrows_removed": removed, "arrow_notes": notes, **patch,
+            "disputed": disputed_items(w), "can_undo": can_undo(w)}
+
+
+def _vote_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    if "proposal" in command:
+        p = w.proposals.get(command["proposal"])
+        if p is None:
+            return None
+        # Votes on a proposal change its tally only: what is disputed depends on the
+        # proposal's status, never on its votes.
+        return {"proposals": [proposal_public(w, p)]}
+    a, b = command["from"], command["to"]
+    # A vote can be withdrawn from an arrow no longer drawn; nothing shown changes then.
+    notes = [arrow_public(w, a, b)] if w.has_arrow(a, b) else []
+    return {"arrow_notes": notes, "disputed": disputed_items(w)}
+
+
+def _proposal_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    p = w.proposals.get(event.get("proposal"))
+    if p is None:
+        return None
+    patch = {"proposals": [proposal_public(w, p)]}
+    if event["kind"] == "settle" and p.status == "accepted":
+        x, y = p.source, p.target
+        added = {"add": [[x, y]], "remove": [], "reverse": [[y, x]]}[p.kind]
+        removed = {"add": [], "remove": [[x, y]], "reverse": [[x, y]]}[p.kind]
+        return _with_arrows(w, added, removed, patch)
+    return {**patch, "disputed": disputed_items(w), "can_undo": can_undo(w)}
+
+
+def _flag_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
+    a, b = command["from"], command["to"]
+    if not w.has_arrow(a, b):
+        return None
+    return {"arrow_notes": [arrow_public(w, a, b)], "disputed": disputed_items(w),
+            "can_undo": can_undo(w)}
+
+
+_PATCHERS = {
+    "move_variable": _move_patch,
+    "add_variable": _variable_patch,
+    "add_arrow": _arrow_patch, "delete_arrow": _arrow_patch, "reverse_arrow": _arrow_patch,
+    "vote": _vote_patch, "withdraw_vote": _vote_patch,
+    "propose": _proposal_patch, "settle": _proposal_patch, "withdraw_proposal": _proposal_patch,
+    "flag_arrow": _flag_patch,
+}
 
 
 def history(w: Workshop) -> list[dict[str, Any]]:

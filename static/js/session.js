@@ -2,13 +2,15 @@
 
 import { el, svg, clear, toast, askText } from './dom.js';
 import { callApi, loadKey, saveKey, forgetKey, TOKEN_HEADER } from './api.js';
-import { LiveSession } from './live.js';
+import { LiveSession, applyPatch, blankArrowNote } from './live.js';
 import { Canvas } from './canvas.js';
 import { renderAnalysis, renderDebate, renderSelection, renderHistory, renderPeople } from './panels.js';
 
 const pageData = JSON.parse(document.getElementById('page-data').textContent);
 const STAGE_NAMES = { drafting: 'Drafting', debating: 'Debating', agreed: 'Agreed', estimation: 'Estimation' };
 const LOCKED = new Set(['agreed', 'estimation']);
+// A patch with nothing but these only moves variables: the analysis stays valid.
+const POSITION_PATCH_KEYS = new Set(['type', 'revision', 'base', 'moves', 'event']);
 
 class SessionApp {
   constructor(sessionId, token) {
@@ -56,28 +58,8 @@ class SessionApp {
   }
 
   receivePatch(message) {
-    if (!this.state) return false;
-    const s = this.state;
-    for (const move of message.moves || []) {
-      const v = s.document.variables.find((x) => x.name === move.name);
-      if (!v) return false;
-      v.x = move.x; v.y = move.y;
-    }
-    if (message.arrows_added || message.arrows_removed) {
-      const gone = new Set((message.arrows_removed || []).map((a) => JSON.stringify(a)));
-      s.document.arrows = s.document.arrows.filter((a) => !gone.has(JSON.stringify([a.from, a.to])));
-      s.arrows = s.arrows.filter((a) => !gone.has(JSON.stringify([a.from, a.to])));
-      const notes = new Map((message.arrow_notes || []).map((n) => [JSON.stringify([n.from, n.to]), n]));
-      for (const [from, to] of message.arrows_added || []) {
-        s.document.arrows.push({ from, to });
-        s.arrows.push(notes.get(JSON.stringify([from, to]))
-          || { from, to, flag: null, tally: { agree: 0, disagree: 0, unsure: 0, total: 0 }, votes: [] });
-      }
-      s.disputed = message.disputed;
-      s.can_undo = message.can_undo;
-    }
-    s.revision = message.revision;
-    const positionsOnly = !message.arrows_added && !message.arrows_removed;
+    if (!this.state || !applyPatch(this.state, message)) return false;
+    const positionsOnly = Object.keys(message).every((k) => POSITION_PATCH_KEYS.has(k));
     if (positionsOnly && this.analysis && this.analysis.revision === message.base) this.analysis.revision = message.revision;
     this.noteEvent(message.event);
     if (positionsOnly) this.renderCanvas();
@@ -493,8 +475,7 @@ class SessionApp {
 function normalizeState(state) {
   if (!state.arrows_compact) return state;
   const notes = new Map(state.arrows.map((a) => [JSON.stringify([a.from, a.to]), a]));
-  state.arrows = state.document.arrows.map((a) => notes.get(JSON.stringify([a.from, a.to]))
-    || { from: a.from, to: a.to, flag: null, tally: { agree: 0, disagree: 0, unsure: 0, total: 0 }, votes: [] });
+  state.arrows = state.document.arrows.map((a) => notes.get(JSON.stringify([a.from, a.to])) || blankArrowNote(a.from, a.to));
   state.arrows_compact = false;
   return state;
 }
