@@ -205,3 +205,87 @@ def test_every_reported_robust_set_is_valid_in_every_combination():
         e += ([("a", "y")] if keep1 else []) + ([("b", "m")] if keep2 else [])
         for s in report["robust_sets"]:
             assert _nx_valid_adjustment(names, e, "x", "y", s), (s, e)
+
+
+def _brute_common_minimal_sets(names, fixed, items, x, y, latent=()):
+    """Every combination of the dispute options, every subset of the other variables, each
+    checked with the networkx adjustment criterion above: the minimal sets valid in every
+    acyclic combination. Exponential; small graphs only."""
+    graphs = []
+    for choice in itertools.product(*(i["options"] for i in items)):
+        e = list(fixed) + [tuple(o) for o in choice if o is not None]
+        g = nx.DiGraph(e)
+        g.add_nodes_from(names)
+        if nx.is_directed_acyclic_graph(g):
+            graphs.append(e)
+    rest = [n for n in names if n not in (x, y) and n not in latent]
+    valid = [set(z) for k in range(len(rest) + 1) for z in itertools.combinations(rest, k)
+             if graphs and all(_nx_valid_adjustment(names, e, x, y, z, latent) for e in graphs)]
+    return sorted((sorted(z) for z in valid if not any(o < z for o in valid)), key=lambda s: (len(s), s))
+
+
+@st.composite
+def disputed_dags(draw):
+    names, edges = draw(dags(max_nodes=7))
+    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1:]]
+    picked = draw(st.lists(st.sampled_from(pairs), unique=True, max_size=min(4, len(pairs))))
+    drawn = set(edges)
+    items = []
+    for a, b in picked:
+        current = [a, b] if (a, b) in drawn else None
+        kind = draw(st.sampled_from(["presence", "direction", "three-way"]))
+        options = {"presence": [[a, b], None], "direction": [[a, b], [b, a]],
+                   "three-way": [[a, b], [b, a], None]}[kind]
+        if current is None:
+            options = [None] + [o for o in options if o is not None]
+        items.append({"pair": [a, b], "options": options, "why": [], "current": 0})
+    fixed = [e for e in edges if (e[0], e[1]) not in set(picked)]
+    latent = draw(st.lists(st.sampled_from(names[1:-1]), unique=True, max_size=1)) if len(names) > 2 else []
+    return names, fixed, items, latent
+
+
+@settings(max_examples=120, deadline=None)
+@given(case=disputed_dags())
+def test_sets_valid_in_every_combination_are_exactly_the_brute_force_ones(case):
+    """The listed sets equal, as a list, the minimal sets valid in every acyclic combination,
+    found by brute force with networkx (both combinations and subsets enumerated), with
+    disputes over presence, direction, or both."""
+    names, fixed, items, latent = case
+    x, y = names[0], names[-1]
+    doc = _doc(names, fixed, x=x, y=y, latent=latent)
+    diagram = parse_document(doc)
+    report = dispute_report(diagram, items, analyze(diagram))
+    expected = _brute_common_minimal_sets(names, fixed, items, x, y, latent)
+    assert report["robust_complete"] is True
+    assert report["robust_sets"] == expected, report["robust_note"]
+
+
+def test_presence_disputes_beyond_the_exact_limit_still_get_exact_sets():
+    """Thirteen disputed confounders c_i with c_i -> x and c_i -> y disputed: sampled for the
+    unidentified combinations, yet the sets valid everywhere follow from the one diagram with
+    every disputed arrow drawn: {c0..c12} (back-door criterion, Pearl 2009, Sec. 3.3.1)."""
+    cs = [f"c{i}" for i in range(13)]
+    names = ["x", "y"] + cs
+    fixed = [("x", "y")] + [(c, "x") for c in cs]
+    diagram = parse_document(_doc(names, fixed + [(c, "y") for c in cs]))
+    items = [{"pair": sorted([c, "y"]), "options": [[c, "y"], None], "why": [], "current": 0} for c in cs]
+    report = dispute_report(diagram, items, analyze(diagram))
+    assert report["sampled"] is True
+    assert report["robust_sets"] == [sorted(cs)]
+    assert report["robust_complete"] and report["robust_method"] == "fullest"
+    assert _nx_valid_adjustment(names, fixed, "x", "y", cs)
+
+
+def test_direction_dispute_needs_a_set_that_works_both_ways():
+    """x <- m -> y and a -> y drawn, with the arrow between m and a disputed in direction.
+    Either way {m} blocks every back-door path (x <- m -> y, and x <- m <- a -> y or
+    x <- m -> a -> y), and {a} leaves x <- m -> y open (back-door criterion, Pearl 2009,
+    Sec. 3.3.1); the brute-force networkx check agrees."""
+    names = ["x", "y", "m", "a"]
+    fixed = [("m", "x"), ("m", "y"), ("x", "y"), ("a", "y")]
+    items = [{"pair": ["a", "m"], "options": [["a", "m"], ["m", "a"]], "why": [], "current": 0}]
+    diagram = parse_document(_doc(names, fixed + [("a", "m")]))
+    report = dispute_report(diagram, items, analyze(diagram))
+    assert report["robust_method"] == "search"
+    assert report["robust_sets"] == _brute_common_minimal_sets(names, fixed, items, "x", "y")
+    assert report["robust_sets"] == [["m"]]

@@ -23,6 +23,16 @@ so an arrow u -> v with v outside an(X u Y u Z) cannot change whether Z is valid
 
 Dispute combinations: up to 4096 exactly (12 two-way disputes); beyond that a
 random sample of 4096 with a fixed, stated seed.
+
+Sets valid in every combination: by fact (1) a set valid in a combination is valid
+in every combination with fewer arrows, so it suffices to check the fullest
+combinations, to which no disputed arrow can be added without a cycle. Disputes over
+whether an arrow exists have one fullest combination (all of them drawn, when that
+makes no cycle), and its minimal adjustment sets are the answer, exactly and however
+many disputes there are. Disputes over direction give several; the sets valid in all
+are found by growing, size by size, the minimal unions of one minimal set from each
+(every valid set contains a minimal one), stopping when every larger candidate must
+contain a set already found, or at a stated time budget.
 """
 
 from __future__ import annotations
@@ -39,12 +49,12 @@ from .models import Workshop
 from .voting import disputed_items
 from ..graph.dag import Dag
 
-__all__ = ["FastDag", "analysis_key", "analyse_workshop", "analyse_state", "slim_for_push", "dispute_report", "absent_arrow_report",
+__all__ = ["FastDag", "fullest_combinations", "common_adjustment_sets", "analysis_key", "analyse_workshop", "analyse_state", "slim_for_push", "dispute_report", "absent_arrow_report",
            "EXACT_LIMIT", "SAMPLE_SEED"]
 
 EXACT_LIMIT = 4096
 SAMPLE_SEED = 20240611
-OTHER_STRATEGY_BUDGET_S = 1.5
+OTHER_STRATEGY_BUDGET_S = 0.4
 ABSENT_LIST_CAP = 200
 COMBINATION_BUDGET_S = 8.0   # a huge diagram stops here and says how far it got
 ABSENT_BUDGET_S = 4.0
@@ -73,6 +83,314 @@ class _Question:
 
     def canonical(self) -> set[str]:
         return (self.dag.ancestors(self.xs | self.ys) & self.observed) - self.xs - self.ys - self.forb
+
+
+FULLEST_CAP = 4096           # fullest combinations we are willing to intersect
+COMMON_SEARCH_BUDGET_S = 0.5
+UNION_CAP = 2000             # minimal unions of one minimal set per diagram, at most
+ANCHOR_DIAGRAMS = 256      # fullest diagrams whose minimal sets are listed to guide the search
+COMMON_VERIFY_LIMIT = 12     # a set found by shrinking is checked against all its subsets up to this size
+
+
+def _reaches(children: dict[str, set[str]], start: str, goal: str) -> bool:
+    """Is there a directed path start -> ... -> goal?"""
+    if start == goal:
+        return True
+    seen, stack = {start}, [start]
+    while stack:
+        for c in children[stack.pop()]:
+            if c == goal:
+                return True
+            if c not in seen:
+                seen.add(c)
+                stack.append(c)
+    return False
+
+
+def fullest_combinations(fixed_dag: FastDag, items: list[dict[str, Any]],
+                         cap: int = FULLEST_CAP) -> tuple[list[list[tuple[str, str]]], bool]:
+    """The acyclic combinations of the disputed options to which no disputed arrow
+    can be added without a cycle (the maximal ones under inclusion of arrows), each as
+    the list of arrows it adds to the undisputed ones. The flag is False when more than
+    ``cap`` exist (the list is then incomplete).
+
+    A combination that leaves dispute i out is maximal exactly when every arrow that
+    dispute offers would close a cycle; if one arrow could be added, that alone gives a
+    larger acyclic combination. So "no arrow" is only tried for disputes whose arrow
+    could close a cycle at all (in the diagram with every disputed arrow drawn).
+    """
+    directed = [[(o[0], o[1]) for o in item["options"] if o is not None] for item in items]
+    every = [e for options in directed for e in options]
+    union_children = {n: set(c) for n, c in fixed_dag.children.items()}
+    for a, b in every:
+        union_children[a].add(b)
+    may_skip = []
+    for i, item in enumerate(items):
+        if None not in item["options"] or not directed[i]:
+            may_skip.append(None in item["options"])
+            continue
+        own = set(directed[i])
+        for a, b in own:
+            union_children[a].discard(b)
+        for a, b in every:  # keep the other disputes' arrows, including between the same pair
+            if (a, b) not in own:
+                union_children[a].add(b)
+        may_skip.append(any(_reaches(union_children, b, a) for a, b in own))
+        for a, b in own:
+            union_children[a].add(b)
+
+    children = {n: set(c) for n, c in fixed_dag.children.items()}
+    found: dict[frozenset, list[tuple[str, str]]] = {}
+    chosen: list[tuple[str, str] | None] = []
+    complete = True
+
+    def leaf_is_maximal() -> bool:
+        return all(all(_reaches(children, b, a) for a, b in directed[i])
+                   for i, c in enumerate(chosen) if c is None)
+
+    def walk(i: int) -> bool:
+        nonlocal complete
+        if i == len(items):
+            if leaf_is_maximal():
+                edges = [c for c in chosen if c is not None]
+                found.setdefault(frozenset(edges), edges)
+                if len(found) > cap:
+                    complete = False
+                    return False
+            return True
+        for a, b in directed[i]:
+            if _reaches(children, b, a):
+                continue  # would close a cycle
+            fresh = b not in children[a]
+            children[a].add(b)
+            chosen.append((a, b))
+            going = walk(i + 1)
+            chosen.pop()
+            if fresh:
+                children[a].discard(b)
+            if not going:
+                return False
+        if may_skip[i]:
+            chosen.append(None)
+            going = walk(i + 1)
+            chosen.pop()
+            if not going:
+                return False
+        return True
+
+    walk(0)
+    out = list(found.values())[:cap]
+    return out, complete
+
+
+def _minimal_unions(lists: list[list[frozenset]], cap: int) -> list[frozenset] | None:
+    """The inclusion-minimal sets formed by taking one set from each list and joining
+    them (None when more than ``cap`` would have to be kept)."""
+    unions = [frozenset()]
+    for options in lists:
+        joined = {u | m for u in unions for m in options}
+        ordered = sorted(joined, key=len)
+        unions = []
+        for u in ordered:
+            if not any(v <= u for v in unions):
+                unions.append(u)
+                if len(unions) > cap:
+                    return None
+    return unions
+
+
+def _fmt_sets(sets: list[list[str]]) -> str:
+    return "; ".join("{" + ", ".join(s) + "}" for s in sets)
+
+
+def common_adjustment_sets(doc: dict[str, Any], fixed_dag: FastDag, items: list[dict[str, Any]],
+                           xs: set[str], ys: set[str], observed: set[str]) -> dict[str, Any]:
+    """The minimal adjustment sets that are valid in every combination of the disputes.
+
+    Adding an arrow never turns an invalid set into a valid one (see the module notes),
+    so a set valid in a combination is valid in every combination with fewer arrows.
+    The sets valid everywhere are therefore exactly those valid in each of the fullest
+    combinations (:func:`fullest_combinations`). With one fullest combination (disputes
+    over whether an arrow exists, whose arrows together make no cycle) they are the
+    minimal adjustment sets of that one diagram, listed by the engine. With several
+    (disputes over an arrow's direction) the sets valid in all of them are searched
+    by size, every set of each size in turn, within a time budget that the note states.
+    """
+    from ..graph.identification import Question, SET_CAP, minimal_adjustment_sets
+
+    fullest, all_found = fullest_combinations(fixed_dag, items)
+    if not all_found:
+        return {"sets": [], "complete": False, "method": "too-many",
+                "note": (f"The disputes' directions combine in more than {FULLEST_CAP} ways that cannot "
+                         "all be drawn together, too many to intersect; no set is listed as valid "
+                         "in every combination. Settle some direction disputes to get one.")}
+    if not fullest:
+        return {"sets": [], "complete": True, "method": "none",
+                "note": "Every combination of the disputed arrows closes a cycle."}
+    fixed_edges = [(a, b) for a in fixed_dag.children for b in fixed_dag.children[a]]
+
+    def engine_sets(added: list[tuple[str, str]]) -> tuple[list[list[str]], bool]:
+        d = dict(doc, arrows=[{"from": a, "to": b} for a, b in fixed_edges + added])
+        return minimal_adjustment_sets(Question.of(parse_document(d)))
+
+    if len(fullest) == 1:
+        try:
+            sets, more = engine_sets(fullest[0])
+        except DiagramError as exc:  # not expected: the combination is acyclic
+            return {"sets": [], "complete": False, "method": "error", "note": exc.message}
+        drawn = len(fullest[0])
+        note = ("Exact: adding an arrow never makes an invalid adjustment set valid, so a set is valid in "
+                "every combination exactly when it is valid with "
+                + ("every disputed arrow drawn" if drawn == len(items) else
+                   f"the {drawn} disputed arrows that can be drawn together")
+                + ("; these are all its minimal adjustment sets." if not more else
+                   f"; these are the first {SET_CAP} of its minimal adjustment sets, and there are more."))
+        if not sets:
+            note = ("Exact: no adjustment set is valid in every combination (none is valid with "
+                    + ("every disputed arrow drawn" if drawn == len(items) else "the fullest combination")
+                    + ", and adding an arrow never makes an invalid set valid).")
+        return {"sets": sets, "complete": not more, "method": "fullest", "note": note}
+
+    questions = [_Question(fixed_dag.with_edges(edges), xs, ys, observed) for edges in fullest]
+    forbidden = set().union(*(q.forb for q in questions))
+    neighbours: dict[str, set[str]] = {n: set() for n in fixed_dag.children}
+    for q in questions:
+        for a, cs in q.dag.children.items():
+            for b in cs:
+                neighbours[a].add(b)
+                neighbours[b].add(a)
+    reach, stack = set(xs | ys), list(xs | ys)
+    while stack:
+        for m in neighbours[stack.pop()]:
+            if m not in reach:
+                reach.add(m)
+                stack.append(m)
+    pool = sorted((reach & observed) - xs - ys - forbidden)
+
+    def valid_everywhere(zs: set[str]) -> bool:
+        # Most sets fail somewhere; ask the diagram that refused the last one first.
+        for i, q in enumerate(questions):
+            if not q.is_valid(zs):
+                if i:
+                    questions.insert(0, questions.pop(i))
+                return False
+        return True
+
+    # Within the variables allowed everywhere, a diagram has a valid set only if its
+    # ancestors of X u Y among them form one (van der Zander et al. 2019, with the
+    # allowed variables restricted): if one diagram has none, no set is valid everywhere.
+    for q in questions:
+        if not q.is_valid(q.dag.ancestors(xs | ys) & set(pool)):
+            return {"sets": [], "complete": True, "method": "search",
+                    "note": ("Exact: in at least one combination of the disputed directions no adjustment "
+                             "set can be formed from the variables allowed in all of them, so none is "
+                             "valid in every combination.")}
+
+    # Every set valid in a diagram contains one of that diagram's minimal adjustment sets.
+    # So a set valid everywhere contains one minimal set of each fullest diagram: the
+    # search grows the minimal sets of one diagram (the anchor) and skips any set that
+    # misses every minimal set of some other diagram whose list is complete.
+    started = time.perf_counter()
+    lists: list[list[frozenset]] = []
+    observed_f, xs_f, ys_f = frozenset(observed), frozenset(xs), frozenset(ys)
+    for q in questions[:ANCHOR_DIAGRAMS]:
+        if time.perf_counter() - started > COMMON_SEARCH_BUDGET_S / 2:
+            break
+        # The engine's question built from the pieces already computed (no re-parsing).
+        engine_q = Question(diagram=None, dag=q.dag, xs=xs_f, ys=ys_f, observed=observed_f,
+                            cn=frozenset(q.cn), forb=frozenset(q.forb), pbd=q.back_door)
+        sets, more = minimal_adjustment_sets(engine_q)
+        if not more:
+            lists.append([frozenset(x) for x in sets])
+    if any(not m for m in lists):
+        return {"sets": [], "complete": True, "method": "search",
+                "note": ("Exact: in at least one combination of the disputed directions no adjustment set "
+                         "exists, so none is valid in every combination.")}
+    lists.sort(key=len)
+    pool_set = set(pool)
+    lists = [[m for m in ms if m <= pool_set] for ms in lists]
+    anchors = lists[0] if lists else [frozenset()]
+    others = lists[1:]
+    if len(lists) == len(fullest):
+        # Every diagram's list is known: a set valid everywhere contains a union of one
+        # minimal set from each, so grow the minimal such unions instead.
+        unions = _minimal_unions(lists, UNION_CAP)
+        if unions is not None:
+            anchors, others = unions, []
+    lowest = min((len(m) for m in anchors), default=0)
+
+    found: list[frozenset] = []
+    checked_size = lowest - 1  # every set of at most this many variables was checked
+    out_of_time = False
+    checks = 0
+    exhaustive = False
+    for size in range(lowest, len(pool) + 1):
+        seen: set[frozenset] = set()
+        covered = True  # does every set of this size (around an anchor) contain a found one?
+        for anchor in anchors:
+            if len(anchor) > size:
+                continue
+            for extra in itertools.combinations(sorted(pool_set - anchor), size - len(anchor)):
+                checks += 1
+                if checks % 128 == 0 and time.perf_counter() - started > COMMON_SEARCH_BUDGET_S:
+                    out_of_time = True
+                    break
+                zs = anchor.union(extra)
+                if zs in seen:
+                    continue
+                seen.add(zs)
+                if any(f <= zs for f in found):
+                    continue  # contains a valid set, so not minimal
+                covered = False
+                if not all(any(m <= zs for m in ms) for ms in others):
+                    continue  # invalid in a diagram that has none of its minimal sets inside
+                if valid_everywhere(set(zs)):
+                    found.append(zs)
+            if out_of_time:
+                break
+        if out_of_time or len(found) >= SET_CAP:
+            break
+        checked_size = size
+        if covered:
+            # Each larger set around an anchor contains one of this size, hence a found set.
+            exhaustive = True
+            break
+    exhaustive = exhaustive or checked_size >= len(pool) or not anchors
+    shrunk_note = ""
+    if not exhaustive:
+        # Beyond the searched sizes: shrink the largest set allowed everywhere, if it is valid.
+        ancestors = set().union(*(q.dag.ancestors(xs | ys) for q in questions))
+        big = set(pool) & ancestors
+        if len(big) > checked_size and not any(f <= big for f in found) and valid_everywhere(big):
+            small = set(big)
+            for name in sorted(big):
+                if valid_everywhere(small - {name}):
+                    small -= {name}
+            if len(small) <= COMMON_VERIFY_LIMIT and not any(f <= small for f in found):
+                proper = (set(c) for k in range(checked_size + 1, len(small))
+                          for c in itertools.combinations(sorted(small), k))
+                if not any(valid_everywhere(c) for c in proper):
+                    found.append(frozenset(small))
+                    shrunk_note = (f" {{{', '.join(sorted(small))}}} was found beyond that by dropping "
+                                   "variables from the largest set allowed everywhere; none of its "
+                                   "subsets is valid everywhere.")
+    sets = sorted((sorted(f) for f in found), key=lambda s: (len(s), s))
+    k = len(questions)
+    base = (f"Adding an arrow never makes an invalid adjustment set valid, so a set is valid in every "
+            f"combination exactly when it is valid in each of the {k} fullest ones (the disputed directions "
+            f"combined). ")
+    if exhaustive:
+        note = base + ("The search reached every candidate among the "
+                       f"{len(pool)} variables allowed in all of them: the list is exact.")
+        complete = True
+    else:
+        reach_text = (f"every set of at most {checked_size} variable(s)" if checked_size >= 0
+                      else "no size completely")
+        why = "its time budget" if out_of_time else f"{SET_CAP} sets"
+        note = (base + f"The search stopped at {why} after checking {reach_text} of the {len(pool)} "
+                "allowed; larger minimal sets may exist." + shrunk_note)
+        complete = False
+    return {"sets": sets, "complete": complete, "method": "search", "note": note}
 
 
 def analysis_key(w: Workshop) -> str:
@@ -149,9 +467,6 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
     # One dispute at a time, the others as drawn.
     current = [i["options"][i.get("current", 0)] for i in items]
     report_items = []
-    candidates: list[frozenset] = [frozenset(s) for s in base[2]]
-    if base_result.get("optimal_adjustment_set"):
-        candidates.append(frozenset(base_result["optimal_adjustment_set"]))
     for index, item in enumerate(items):
         effects = []
         decisive = False
@@ -172,7 +487,6 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
                                 if cycle else f"not a valid diagram: {value}"})
                 decisive = True
                 continue
-            candidates.extend(frozenset(s) for s in value[2])
             change = _describe_change(base, value)
             if change != "same answer":
                 decisive = True
@@ -197,14 +511,11 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
         sampled = True
         checked_total = len(combos)
 
-    unique_candidates = list(dict.fromkeys(candidates))
-    survivors = {c: True for c in unique_candidates}
     not_identified: list[list] = []
     not_identified_count = 0
     cycle_count = 0
     cycle_examples: list[list[str]] = []
     other_unchecked = 0
-    acyclic_graphs: list[tuple[FastDag, _Question]] = []
     started = time.perf_counter()
     engine_time = 0.0
     fixed_dag = FastDag(names, fixed)
@@ -225,10 +536,6 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
                 cycle_examples.append(cycle)
             continue
         q = _Question(dag, xs, ys, observed)
-        acyclic_graphs.append((dag, q))
-        for c in unique_candidates:
-            if survivors[c] and not q.is_valid(set(c)):
-                survivors[c] = False
         if q.is_valid(q.canonical()):
             continue
         # No adjustment set here; ask the engine about the other strategies, within a budget.
@@ -247,32 +554,8 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
         if len(not_identified) < 50:
             not_identified.append(choice)
 
-    robust = [sorted(c) for c in unique_candidates if survivors[c]]
-    note_extra = ""
-    if not robust and acyclic_graphs:
-        # Try the largest set that avoids every combination's forbidden variables.
-        common = set(observed) - xs - ys
-        for _, q in acyclic_graphs:
-            common -= q.forb
-        ancestors = set()
-        for dag, _ in acyclic_graphs:
-            ancestors |= dag.ancestors(xs | ys)
-        common &= ancestors
-        if all(q.is_valid(common) for _, q in acyclic_graphs):
-            robust = [sorted(common)]
-            note_extra = (" The set shown is the largest one allowed in every combination;"
-                          " smaller ones may exist.")
-            if len(acyclic_graphs) * len(common) <= MINIMISE_BUDGET:
-                smaller = set(common)
-                for name in sorted(common):
-                    trial = smaller - {name}
-                    if all(q.is_valid(trial) for _, q in acyclic_graphs):
-                        smaller = trial
-                if smaller != common:
-                    robust.insert(0, sorted(smaller))
-                    note_extra = (" The first set was found by dropping variables one at a time from"
-                                  " the largest set allowed in every combination, while it stayed valid"
-                                  " in all of them; other sets may exist.")
+    common = common_adjustment_sets(doc, fixed_dag, items, xs, ys, observed)
+    robust = common["sets"]
     robust.sort(key=lambda s: (len(s), s))
     count = len(items)
     if stopped_early:
@@ -295,8 +578,9 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
         "note": note,
         "items": report_items,
         "robust_sets": robust,
-        "robust_note": (f"Checked {len(unique_candidates)} candidate set(s): the minimal and optimal sets "
-                        "of the diagram as drawn and of each single change." + note_extra),
+        "robust_note": common["note"],
+        "robust_complete": common["complete"],
+        "robust_method": common["method"],
         "not_identified": not_identified,
         "not_identified_count": not_identified_count,
         "cycle_count": cycle_count,

@@ -213,11 +213,14 @@ function renderDisputes(app) {
   }
   box.append(el('h4', { text: 'Adjustment sets valid whatever the disputes decide' }));
   if (d.robust_sets.length) box.append(setChips(app, d.robust_sets, 'this set'));
-  else box.append(el('p', { class: 'notice', text: 'No single adjustment set among those checked works in every combination: settle the decisive disputes first.' }));
+  else box.append(el('p', { class: 'notice', text: d.robust_complete
+    ? 'No adjustment set works in every combination: settle the decisive disputes first.'
+    : 'No adjustment set was found that works in every combination (the search was not complete; see below). Settling the decisive disputes gives a definite answer.' }));
   if (d.robust_note) box.append(el('p', { class: 'muted', text: d.robust_note }));
   box.append(el('h4', { text: `Combinations where the effect is not identified (${d.not_identified_count} of ${d.combinations_checked})` }));
   if (!d.not_identified.length) box.append(el('p', { class: 'muted', text: 'None: the effect is identified in every combination checked.' }));
   else box.append(el('ul', { class: 'combos' }, d.not_identified.map((c) => el('li', { text: c.map(optionText).join('; ') }))));
+  if (d.other_strategies_unchecked) box.append(el('p', { class: 'muted', text: `${d.other_strategies_unchecked} combination(s) without an adjustment set were not checked for other ways of identifying the effect (time limit) and are counted as not identified.` }));
   if (d.cycle_count) box.append(el('p', { class: 'notice', text: `${d.cycle_count} combination(s) would make a cycle (e.g. ${d.cycle_examples[0].join(' → ')}) and cannot all be true at once.` }));
   return box;
 }
