@@ -289,3 +289,88 @@ def test_direction_dispute_needs_a_set_that_works_both_ways():
     assert report["robust_method"] == "search"
     assert report["robust_sets"] == _brute_common_minimal_sets(names, fixed, items, "x", "y")
     assert report["robust_sets"] == [["m"]]
+
+
+def _nx_front_door(names, edges, x, y, z, latent):
+    """The front-door criterion (Pearl 2009, Definition 3.3.3) with networkx calls only."""
+    z = set(z)
+    if not z or z & {x, y} or z & set(latent):
+        return False
+    g = nx.DiGraph(edges)
+    g.add_nodes_from(names)
+    cut = g.copy()
+    cut.remove_nodes_from(z)
+    if nx.has_path(cut, x, y):
+        return False                                     # (i) every directed path meets z
+    no_out_x = g.copy()
+    no_out_x.remove_edges_from(list(g.out_edges(x)))
+    if not nx.is_d_separator(no_out_x, {x}, z, set()):
+        return False                                     # (ii) no open back-door path x to z
+    no_out_z = g.copy()
+    no_out_z.remove_edges_from([e for v in z for e in g.out_edges(v)])
+    return nx.is_d_separator(no_out_z, z, {y}, {x})      # (iii) x blocks z's back doors to y
+
+
+def test_front_door_answer_lists_the_arrows_that_would_break_it():
+    """x -> m -> y with a hidden u -> x, u -> y (Pearl 2009, Sec. 3.3.2, the front-door
+    example). Only two arrows can be added without a cycle, x -> y and u -> m, and each
+    breaks the front-door set {m}."""
+    names, edges = ["x", "m", "y", "u"], [("x", "m"), ("m", "y"), ("u", "x"), ("u", "y")]
+    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    base = analyze(diagram)
+    assert base["strategy"] == "front-door" and base["front_door_sets"] == [["m"]]
+    report = absent_arrow_report(diagram, base)
+    assert report["answer"] == "front-door sets"
+    assert {(a["from"], a["to"]) for a in report["arrows"]} == {("x", "y"), ("u", "m")}
+    assert all(a["severity"] == 3 for a in report["arrows"])
+
+
+@st.composite
+def front_door_dags(draw):
+    """A planted front-door structure x -> m -> y, hidden u -> x, u -> y, plus random
+    arrows among up to four more variables (topological order keeps it acyclic)."""
+    extra = [f"w{i}" for i in range(draw(st.integers(0, 4)))]
+    names = ["u", "x"] + extra[:2] + ["m"] + extra[2:] + ["y"]
+    base = [("x", "m"), ("m", "y"), ("u", "x"), ("u", "y")]
+    pairs = [(names[i], names[j]) for i in range(len(names)) for j in range(i + 1, len(names))
+             if (names[i], names[j]) not in base and {names[i], names[j]} & set(extra)]
+    more = draw(st.lists(st.sampled_from(pairs), unique=True, max_size=5)) if pairs else []
+    return names, base + more
+
+
+@settings(max_examples=60, deadline=None)
+@given(graph=front_door_dags())
+def test_absent_arrows_against_front_door_sets_match_networkx(graph):
+    """When the answer is the front door, an arrow is listed exactly when adding it breaks
+    one of the listed front-door sets, by the networkx front-door criterion above."""
+    names, edges = graph
+    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    base = analyze(diagram)
+    report = absent_arrow_report(diagram, base)
+    if base["strategy"] != "front-door":
+        return
+    listed = {(a["from"], a["to"]) for a in report["arrows"]}
+    g = nx.DiGraph(edges)
+    g.add_nodes_from(names)
+    linked = {frozenset(e) for e in edges}
+    for u, v in itertools.permutations(names, 2):
+        if frozenset((u, v)) in linked or nx.has_path(g, v, u):
+            continue
+        breaks = any(not _nx_front_door(names, edges + [(u, v)], "x", "y", s, ("u",))
+                     for s in base["front_door_sets"])
+        assert ((u, v) in listed) == breaks, (u, v)
+
+
+def test_instrument_answer_lists_the_arrows_that_would_break_it():
+    """z -> x -> y with a hidden u -> x, u -> y: z is an instrument (relevance, exclusion and
+    no shared cause with y; Pearl 2009, Sec. 7.4.5; Hernan & Robins 2020, Ch. 16). The arrows
+    that can be added without a cycle are z -> y, u -> z and z -> u; each breaks exclusion
+    or independence, so each is listed, and the note says no adjustment set can appear."""
+    names, edges = ["z", "x", "y", "u"], [("z", "x"), ("x", "y"), ("u", "x"), ("u", "y")]
+    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    base = analyze(diagram)
+    assert base["strategy"] == "instrument"
+    report = absent_arrow_report(diagram, base)
+    assert report["answer"] == "instruments"
+    assert {(a["from"], a["to"]) for a in report["arrows"]} == {("z", "y"), ("u", "z"), ("z", "u")}
+    assert "can never create one" in report["note"]

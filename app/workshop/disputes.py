@@ -590,24 +590,89 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
     }
 
 
+def _engine_question(dag: FastDag, xs: set[str], ys: set[str], observed: set[str]):
+    """The engine's question for a DAG held here (no document to re-parse)."""
+    from ..graph.identification import Question
+
+    q = _Question(dag, xs, ys, observed)
+    return Question(diagram=None, dag=dag, xs=frozenset(xs), ys=frozenset(ys),
+                    observed=frozenset(observed), cn=frozenset(q.cn), forb=frozenset(q.forb),
+                    pbd=q.back_door)
+
+
+def _braced(names) -> str:
+    return "{" + ", ".join(names) + "}"
+
+
 def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
-    """Arrows not drawn whose addition would change the adjustment answer."""
+    """Arrows not drawn whose addition would change the answer: the minimal adjustment
+    sets when adjustment works; the front-door sets or instruments when the effect is
+    identified that way instead.
+
+    Adding an arrow never makes an invalid adjustment set valid (module notes), so when
+    no adjustment set exists none can appear; and a diagram with more arrows allows more
+    distributions, so an effect that is not identified stays so.
+    """
+    from ..graph.identification import is_front_door_set, is_instrument
+
     xs, ys = set(diagram.treatment), set(diagram.outcome)
     observed = set(diagram.observed)
     names = [v.name for v in diagram.variables]
     edges = [(a.source, a.target) for a in diagram.arrows]
+    strategy = base_result.get("strategy")
     sets = [set(s) for s in base_result.get("minimal_adjustment_sets", [])]
-    if base_result.get("strategy") != "adjustment" or not sets:
-        return {"arrows": [], "checked": 0,
-                "note": "The effect is not identified by adjustment, and adding arrows can never make an "
-                        "adjustment set work, so no left-out arrow is listed."}
+    front = [set(s) for s in base_result.get("front_door_sets", [])] if strategy == "front-door" else []
+    ivs = [i for i in base_result.get("instruments", [])] if strategy == "instrument" else []
+    if strategy == "adjustment" and sets:
+        what, listed = "minimal adjustment sets", [sorted(s) for s in sets]
+        relevant_extra = set().union(*sets)
+    elif front:
+        what, listed = "front-door sets", [sorted(s) for s in front]
+        relevant_extra = set().union(*front)
+    elif ivs:
+        what = "instruments"
+        listed = [[i["instrument"], *i["given"]] for i in ivs]
+        relevant_extra = set().union(*(set(x) for x in listed))
+    else:
+        return {"arrows": [], "checked": 0, "answer": None,
+                "note": "The effect is not identified, and adding arrows can never make it identified, "
+                        "so no left-out arrow is listed."}
     dag = FastDag(names, edges)
-    relevant = dag.ancestors(xs | ys | set().union(*sets))
+    relevant = dag.ancestors(xs | ys | relevant_extra)
     linked = {frozenset(e) for e in edges}
     found = []
     checked = 0
     started = time.perf_counter()
     stopped_early = False
+
+    def broken_by_arrow() -> list[list[str]]:
+        if what == "minimal adjustment sets":
+            q = _Question(dag, xs, ys, observed)
+            return [sorted(s) for s in sets if not q.is_valid(s)]
+        q = _engine_question(dag, xs, ys, observed)
+        if what == "front-door sets":
+            return [sorted(s) for s in front if not is_front_door_set(q, s)]
+        return [[i["instrument"], *i["given"]] for i in ivs
+                if not is_instrument(q, i["instrument"], i["given"])]
+
+    def describe(broken: list[list[str]]) -> tuple[str, int]:
+        if what == "minimal adjustment sets":
+            if len(broken) < len(sets):
+                return ("breaks " + ", ".join(_braced(s) for s in broken) + "; other minimal sets still work", 1)
+            q = _Question(dag, xs, ys, observed)
+            if q.is_valid(q.canonical()):
+                return "every current minimal set stops working; a different set would be needed", 2
+            return "no adjustment set would remain: the effect would not be identified by adjustment", 3
+        if what == "front-door sets":
+            if len(broken) < len(front):
+                return ("breaks the front-door set(s) " + ", ".join(_braced(s) for s in broken)
+                        + "; others still work", 1)
+            return "no listed front-door set would remain: the effect would lose its identification", 3
+        shown = ", ".join(b[0] + (f" given {_braced(b[1:])}" if b[1:] else "") for b in broken)
+        if len(broken) < len(ivs):
+            return f"{shown} would stop being an instrument; others remain", 1
+        return f"{shown} would stop being an instrument, and no listed instrument would remain", 3
+
     for v in sorted(relevant):
         if time.perf_counter() - started > ABSENT_BUDGET_S:
             stopped_early = True
@@ -622,31 +687,26 @@ def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
                 break
             dag.parents[v].add(u)
             dag.children[u].add(v)
-            q = _Question(dag, xs, ys, observed)
-            broken = [sorted(s) for s in sets if not q.is_valid(s)]
-            if broken:
-                if len(broken) < len(sets):
-                    text = ("breaks " + ", ".join("{" + ", ".join(s) + "}" for s in broken)
-                            + "; other minimal sets still work")
-                    severity = 1
-                elif q.is_valid(q.canonical()):
-                    text = "every current minimal set stops working; a different set would be needed"
-                    severity = 2
-                else:
-                    text = "no adjustment set would remain: the effect would not be identified by adjustment"
-                    severity = 3
-                found.append({"from": u, "to": v, "text": text, "severity": severity, "breaks": broken})
-            dag.parents[v].discard(u)
-            dag.children[u].discard(v)
+            try:
+                broken = broken_by_arrow()
+                if broken:
+                    text, severity = describe(broken)
+                    found.append({"from": u, "to": v, "text": text, "severity": severity, "breaks": broken})
+            finally:
+                dag.parents[v].discard(u)
+                dag.children[u].discard(v)
     found.sort(key=lambda f: (-f["severity"], f["from"], f["to"]))
     capped = len(found) > ABSENT_LIST_CAP
     note = (f"Checked {checked} arrow(s) that could be added without a cycle; {len(found)} would change "
-            "the minimal adjustment sets. Confirm each on purpose: leaving an arrow out is an assumption.")
-    if base_result.get("more_sets_exist"):
+            f"the {what}. Confirm each on purpose: leaving an arrow out is an assumption.")
+    if what != "minimal adjustment sets":
+        note += (" No adjustment set exists, and adding an arrow can never create one, so only the "
+                 f"{what} are at stake.")
+    if what == "minimal adjustment sets" and base_result.get("more_sets_exist"):
         note += " Only the listed minimal sets were checked."
     if stopped_early:
         note += f" The check stopped after {ABSENT_BUDGET_S:.0f} s; arrows into later variables were not checked."
-    return {"arrows": found[:ABSENT_LIST_CAP], "capped": capped, "total": len(found),
+    return {"arrows": found[:ABSENT_LIST_CAP], "capped": capped, "total": len(found), "answer": what,
             "checked": checked, "stopped_early": stopped_early, "note": note}
 
 
