@@ -319,7 +319,7 @@ def _infinite(f):
 
 @pytest.mark.parametrize("change, words", [
     (_collinear, "perfectly collinear"),        # a singular design matrix
-    (_overflow, "'fitness'"),                  # squares overflow to inf
+    (_overflow, "values as large as 1e+300"),  # squares would overflow to inf
     (_no_variation, "single value"),
     (_infinite, "infinite values"),
 ])

@@ -207,6 +207,7 @@ def test_csv_with_one_fifty_megabyte_line(data_room, payload):
     started = time.perf_counter()
     body = refused(room.client.put(f"{base}/data?name=long.csv", content=payload, headers=headers), 422)
     assert body["error"].startswith("long.csv")
+    assert "line" in body["error"] and "longer than" in body["error"]  # says what is wrong, plainly
     assert time.perf_counter() - started < 30
     _data_kept(room, base, headers, before)
     leftovers = [p.name for p in (room.client.app.state.store.session_data_dir(room.id)).iterdir()]

@@ -211,12 +211,23 @@ def _is_binary(values: np.ndarray) -> bool:
     return bool(zero.any() and one.any() and (zero | one).all())
 
 
+HUGE_VALUE = 1e100  # beyond this, sums of squares overflow double precision on large tables
+
+
 def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.ndarray, str, str | None]:
     """A column that must be a number (or 0/1). Returns (values with NaN, kind, level coded 1)."""
     if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
         values = _numbers(series.astype(float) if pd.api.types.is_bool_dtype(series) else series)
         if np.isinf(values).any():
             raise NonNumericColumn(f"column {col!r} ({role} {var!r}) holds infinite values", item=col)
+        largest = float(np.nanmax(np.abs(values))) if values.size and not np.isnan(values).all() else 0.0
+        if largest > HUGE_VALUE:
+            raise NonNumericColumn(
+                f"column {col!r} ({role} {var!r}) holds values as large as {largest:.3g}; squares of "
+                f"numbers beyond {HUGE_VALUE:.0e} overflow, so rescale the column (for example to "
+                "thousands or millions of its unit) before estimating",
+                item=col,
+            )
         kind = "binary" if _is_binary(values) else "number"
         return values, kind, ("1" if kind == "binary" else None)
     text, levels = _text_levels(series)

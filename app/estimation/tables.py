@@ -110,14 +110,23 @@ def _refuse_duplicate_header(head: bytes, shown: str) -> None:
         raise NotATable(f"{shown} has duplicate column names: {', '.join(dupes)}", item=dupes)
 
 
+CSV_BLOCK = 16 << 20  # the reader's block; no single line may be longer
+
+
 def _read_csv(source, shown: str) -> pd.DataFrame:
     # pyarrow reads in parallel; converting with split_blocks + self_destruct hands
     # numeric buffers to pandas without a second copy (peak memory ~ one table)
     try:
-        table = pa_csv.read_csv(source, read_options=pa_csv.ReadOptions(block_size=16 << 20))
+        table = pa_csv.read_csv(source, read_options=pa_csv.ReadOptions(block_size=CSV_BLOCK))
     except pa.ArrowInvalid as exc:
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        too_long = (f"{shown} has a line longer than {_human(CSV_BLOCK)}, which no table of "
+                    "measurements needs; check that it is a CSV file with one row per line")
+        if "straddl" in text:
+            raise NotATable(too_long) from None
         if "Empty CSV file" in text:
+            if _has_content(source):
+                raise NotATable(too_long.replace("a line", "a first line (the header)")) from None
             raise EmptyTable(f"{shown} is empty") from None
         raise NotATable(f"{shown} could not be read as a CSV table: {text}") from None
     except Exception as exc:
@@ -127,6 +136,20 @@ def _read_csv(source, shown: str) -> pd.DataFrame:
     del table
     pa.default_memory_pool().release_unused()  # hand the parser's buffers back to the system
     return frame
+
+
+def _has_content(source) -> bool:
+    """Does the file or buffer hold anything but white space? (Read in small pieces.)"""
+    handle = open(source, "rb") if isinstance(source, (str, os.PathLike)) else source
+    try:
+        handle.seek(0)
+        while piece := handle.read(1 << 20):
+            if piece.strip():
+                return True
+        return False
+    finally:
+        if handle is not source:
+            handle.close()
 
 
 def _read_parquet(source, shown: str) -> pd.DataFrame:
