@@ -264,6 +264,7 @@ class Hub:
     async def join(self, code: Any, name: Any) -> tuple[Workshop, Member, str]:
         w = self.find_by_join_code(code)
         async with self._lock(w.id):
+            w = self.workshop(w.id)  # the live copy, should a failed store have replaced it
             member_id = "m" + secrets.token_hex(6)
             backup = (dict(w.members), w.revision, len(w.log))
             member, event = add_member(w, member_id=member_id, name=name, now=time.time())
@@ -292,19 +293,19 @@ class Hub:
         if key is not None and (not isinstance(key, str) or not 0 < len(key) <= 100):
             raise BadRequest("a command key must be text of 1 to 100 characters",
                              code="invalid_key")
-        w = self.workshop(session_id)
+        self.workshop(session_id)  # NotFound for an unknown session
         if self.store.get_attachment(session_id, "record.read_only"):
             # reopened read-only from a record bundle (app.web.routes.records)
             raise AppError("this session was reopened read-only from a record; import the bundle "
                            "as a new session to change it", code="read_only", status=409)
         async with self._lock(session_id):
+            # Fetched under the lock: a change that failed to store while this one waited
+            # has dropped the copy it had changed.
+            w = self.workshop(session_id)
             if key is not None:
                 earlier = self._find_keyed(session_id, f"{member.id}:{key}")
                 if earlier is not None:
                     return dict(earlier, replayed=True)
-            state_before = w.to_state()
-            log_len = len(w.log)
-            flags = [e.get("undone") for e in w.log]
             event = apply_command(w, w.members.get(member.id, member), command, now=time.time())
             if key is not None:
                 event["key"] = f"{member.id}:{key}"
@@ -313,10 +314,12 @@ class Hub:
                                        revision=w.revision, event=event,
                                        mark_undone=event.get("undoes"))
             except Exception:
-                fresh = Workshop.from_state(state_before, w.log[:log_len])
-                for e, f in zip(fresh.log, flags):
-                    e["undone"] = f
-                self._workshops[session_id] = fresh
+                # Nothing was stored (one transaction), so the store still holds the
+                # session as it was: drop the changed copy and read it again from there
+                # when next used, as after a restart. (No copy of the whole state is
+                # kept per edit for this rare case.)
+                self._workshops.pop(session_id, None)
+                self._keyed.pop(session_id, None)
                 raise
         await self._publish(w, event)
         return event
@@ -338,6 +341,7 @@ class Hub:
         """Log an event from another part of the app (e.g. data attached) and push it."""
         w = self.workshop(session_id)
         async with self._lock(session_id):
+            w = self.workshop(session_id)
             w.revision += 1
             event = {"revision": w.revision, "at": time.time(),
                      "actor": member.id if member else None,
