@@ -86,6 +86,80 @@ def run_serve(args: argparse.Namespace) -> int:
     return 0
 
 
+def _open_store(db: str | None):
+    from .settings import Settings
+    from .store import Store
+
+    path = db or str(Settings().db_path)
+    if not os.path.exists(path):
+        raise FileNotFoundError(f"no database at {path}; pass --db with the file the server uses")
+    return Store(path)
+
+
+def run_sessions(args: argparse.Namespace) -> int:
+    import time
+
+    from .workshop.models import Workshop
+
+    try:
+        store = _open_store(args.db)
+    except FileNotFoundError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    rows = store.list_sessions()
+    if not rows:
+        print("no sessions in this database")
+        return 0
+    for row in rows:
+        loaded = store.load_session(row["id"])
+        members = Workshop.from_state(loaded[0]).members.values() if loaded else []
+        people = sorted((m.name, m.role) for m in members)
+        shown = ", ".join(f"{n} ({r})" if r == "facilitator" else n for n, r in people)
+        when = time.strftime("%Y-%m-%d %H:%M", time.localtime(row["updated"] or row["created"]))
+        print(f"{row['id']}  {row['title']}  (revision {row['revision']}, last change {when})")
+        print(f"    members: {shown or 'none'}")
+    return 0
+
+
+def run_key(args: argparse.Namespace) -> int:
+    """Issue a new key to the session's facilitator (or a named member); the old one stops working."""
+    import secrets
+
+    from .web.live import hash_token
+    from .workshop.models import Workshop
+
+    try:
+        store = _open_store(args.db)
+    except FileNotFoundError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    loaded = store.load_session(args.session)
+    if loaded is None:
+        print(f"error: no session {args.session!r} in this database; `arrowmoot sessions` lists them",
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
+    members = list(Workshop.from_state(loaded[0]).members.values())
+    if args.member:
+        wanted = args.member.strip().casefold()
+        chosen = [m for m in members if m.name.strip().casefold() == wanted]
+        who = f"no member named {args.member!r}"
+    else:
+        chosen = [m for m in members if m.is_facilitator]
+        who = "no facilitator"
+    if len(chosen) != 1:
+        names = ", ".join(sorted(m.name for m in members)) or "none"
+        problem = who if not chosen else f"{len(chosen)} members match {args.member or 'facilitator'!r}"
+        print(f"error: {problem} in session {args.session!r} (members: {names})", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    member = chosen[0]
+    token = f"{member.id}.{secrets.token_urlsafe(24)}"
+    store.replace_member_token(session_id=args.session, member_id=member.id, token_hash=hash_token(token))
+    base = os.environ.get("ARROWMOOT_PUBLIC_URL", "http://127.0.0.1:8000").rstrip("/")
+    print(f"New key for {member.name} ({member.role}); the old key no longer works.")
+    print(f"  Link (keep it private): {base}/s/{args.session}#key={token}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="arrowmoot",
@@ -101,6 +175,16 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--db", default=None,
                        help="SQLite database file (default ./data/arrowmoot.sqlite3)")
     serve.set_defaults(run=run_serve)
+
+    sessions = commands.add_parser("sessions", help="list the sessions in the database and their members")
+    sessions.add_argument("--db", default=None, help="SQLite database file (default: as for serve)")
+    sessions.set_defaults(run=run_sessions)
+
+    key = commands.add_parser("key", help="issue a new key for a session's facilitator or a member")
+    key.add_argument("session", help="session id (from the link, or `arrowmoot sessions`)")
+    key.add_argument("--member", default=None, help="member's display name (default: the facilitator)")
+    key.add_argument("--db", default=None, help="SQLite database file (default: as for serve)")
+    key.set_defaults(run=run_key)
 
     identify = commands.add_parser("identify", help="analyse a diagram for its question")
     identify.add_argument("graph", help="graph file: .json document, .graphml or .dot")
@@ -130,9 +214,26 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _session_id_last(argv: list[str]) -> list[str]:
+    """Session ids may begin with "-": for ``key``, put the options first and the id
+    after "--" so it is never read as an option."""
+    if not argv or argv[0] != "key" or any(a in ("-h", "--help", "--") for a in argv):
+        return argv
+    options, positional, i = [], [], 1
+    while i < len(argv):
+        a = argv[i]
+        if a in ("--member", "--db") and i + 1 < len(argv):
+            options += argv[i:i + 2]
+            i += 2
+            continue
+        (options if a.startswith(("--member=", "--db=")) else positional).append(a)
+        i += 1
+    return ["key", *options, "--", *positional]
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args = parser.parse_args(_session_id_last(list(sys.argv[1:] if argv is None else argv)))
     if not getattr(args, "run", None):
         parser.print_help()
         return EXIT_BAD_INPUT

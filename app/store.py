@@ -227,6 +227,17 @@ class Store:
             return None
         return row["session_id"], row["member_id"]
 
+    def replace_member_token(self, *, session_id: str, member_id: str, token_hash: str,
+                             now: float | None = None) -> None:
+        """Issue a member a new key: the old one stops working at once."""
+        now = time.time() if now is None else now
+        with self._transaction() as conn:
+            conn.execute("DELETE FROM tokens WHERE member_id = ?", (member_id,))
+            conn.execute(
+                "INSERT INTO tokens (token_hash, session_id, member_id, created) VALUES (?, ?, ?, ?)",
+                (token_hash, session_id, member_id, now),
+            )
+
     def token_created(self, token_hash: str) -> float | None:
         """When the key with this digest was issued (seconds since the epoch), or None."""
         with self._lock:
