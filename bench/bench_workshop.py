@@ -249,7 +249,7 @@ def main() -> None:
     mv, ar, vo = result["move_ms"], result["arrow_ms"], result["vote_ms"]
     print(f"| … moves (a one-line patch) | {percentile(mv, .5):.1f} | {percentile(mv, .95):.1f} | {max(mv):.1f} | |")
     print(f"| … arrows drawn or removed (a small patch) | {percentile(ar, .5):.1f} | {percentile(ar, .95):.1f} | {max(ar):.1f} | |")
-    print(f"| … votes (the whole compact state) | {percentile(vo, .5):.1f} | {percentile(vo, .95):.1f} | {max(vo):.1f} | |")
+    print(f"| … votes (a patch: the arrow's votes and the disputed list) | {percentile(vo, .5):.1f} | {percentile(vo, .95):.1f} | {max(vo):.1f} | |")
     print(f"| arrow edit sent → every client has its analysis | {percentile(a, .5):.1f} | {percentile(a, .95):.1f} | {max(a):.1f} | (none) |")
     d = disputes
     print(f"\n### Dispute analysis: 10 disputed arrows ({d['combinations']} combinations), "
