@@ -345,5 +345,9 @@ def test_singular_weighting_fit_is_a_clear_message(agreed):
     room.client.put(f"{base}/data?name=copy.csv", content=_data(copy), headers=headers)
     before = room.state()
     r = room.client.post(f"{base}/estimate", json={"method": "weighting"}, headers=headers)
-    assert r.status_code == 422 and "Singular matrix" in r.json()["error"]
+    # Depending on the linear-algebra build the fit fails as singular or yields a non-finite
+    # estimate; either way the analyst gets a 422 that says so, and the session is untouched.
+    assert r.status_code == 422, r.text
+    error = r.json()["error"]
+    assert "Singular matrix" in error or "not a finite number" in error, error
     assert room.state() == before
