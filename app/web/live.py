@@ -219,8 +219,9 @@ class Hub:
         if self.key_lifetime:
             issued = self.store.token_created(digest)
             if issued is not None and time.time() - issued > self.key_lifetime:
-                raise Unauthorized("that session key has expired; join again with the join code, "
-                                   "or ask the facilitator", code="expired_token")
+                raise Unauthorized("that session key has expired; join again with the join code, or "
+                                   "ask the facilitator; a facilitator's key is re-issued on the server's "
+                                   "machine with `arrowmoot key SESSION_ID`", code="expired_token")
         member = self.workshop(session_id).members.get(member_id)
         if member is None:
             raise Unauthorized("that session key is not valid", code="bad_token")

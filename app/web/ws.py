@@ -5,6 +5,9 @@ Protocol (JSON text frames):
 client -> {"type": "hello", "token": "...", "revision": <last seen or null>}   (first frame)
 server -> {"type": "welcome", "member": {...}, "online": [...]}
 server -> {"type": "state", "revision": n, "state": {...}, "missed": [events after the client's revision]}
+server -> {"type": "patch", "revision": n, "base": n-1, "event": {...}, <parts>}   for moves, arrows,
+          votes, proposals and new variables: only what changed (the parts are listed above
+          ``change_patch`` in app/workshop/views.py); a client not at ``base`` sends a resync
 server -> {"type": "analysis", "revision": n, "analysis": {...} | null, "problem": str | null, ...}
 client -> {"type": "command", "id": <any>, "key": "<optional, unique per member>", "command": {"type": "add_arrow", ...}}
 server -> {"type": "ack", "id": <same>, "revision": n}   (+ "replayed": true when the key was applied before: nothing changed)  or  {"type": "error", "id": ..., "error": ..., "code": ..., "status": ...}
