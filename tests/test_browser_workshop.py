@@ -100,7 +100,7 @@ def test_two_people_draw_and_vote(server):
         par.fill(".vote-reason", "cycling builds fitness")
         par.click(".vote-agree")
         expect(par.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
-        expect(fac.locator(edge + " .edge-badge")).to_contain_text("+1 −0 ?0")
+        expect(fac.locator(edge.replace(".edge", ".edge-badge"))).to_contain_text("+1 −0 ?0")
         fac.mouse.click(*_centre(fac, edge + " .edge-hit"))
         expect(fac.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")
         expect(fac.locator(".votes")).to_contain_text("cycling builds fitness")

@@ -2,7 +2,7 @@
 // change the view (pan, zoom, drag) or ask the session to send a command.
 // Visual language: see static/visual-language.md.
 
-import { svg, clear } from './dom.js';
+import { svg, clear, ROLE_WORDS } from './dom.js';
 
 const BOX_HEIGHT = 46;
 const MIN_WIDTH = 96;
@@ -65,8 +65,9 @@ export class Canvas {
     this.layerHalo = svg('g', { class: 'layer-halo' });
     this.layerEdges = svg('g', { class: 'layer-edges' });
     this.layerNodes = svg('g', { class: 'layer-nodes' });
+    this.layerBadges = svg('g', { class: 'layer-badges' });  // arrow badges above the boxes, never hidden
     this.layerGhost = svg('g', { class: 'layer-ghost' });
-    this.viewport.append(this.layerHalo, this.layerEdges, this.layerNodes, this.layerGhost);
+    this.viewport.append(this.layerHalo, this.layerEdges, this.layerNodes, this.layerBadges, this.layerGhost);
     this.root.append(this.viewport);
     host.append(this.root);
     this.attachPointer();
@@ -168,7 +169,7 @@ export class Canvas {
     const adjusted = new Set(model.adjusted || []);
     const highlight = model.highlight;
     const selection = model.selection;
-    clear(this.layerHalo); clear(this.layerEdges); clear(this.layerNodes);
+    clear(this.layerHalo); clear(this.layerEdges); clear(this.layerNodes); clear(this.layerBadges);
 
     if (highlight?.nodes) {
       const nodes = highlight.nodes;
@@ -238,18 +239,42 @@ export class Canvas {
     if (badges.length) {
       const text = badges.join('  ');
       const w = textWidth(text) * 0.8 + 14;
-      // Sit beside the line (on its left-hand normal), not on top of it.
+      // Sit beside the line (on its upper normal), not on top of it, and off every box:
+      // try a few places along the line and both sides before settling for the first.
       const length = Math.hypot(x2 - x1, y2 - y1) || 1;
       let nx = -(y2 - y1) / length, ny = (x2 - x1) / length;
       if (ny > 0) { nx = -nx; ny = -ny; }
       const offset = 15 + Math.abs(nx) * (w / 2 - 8);
-      const bx = mx + nx * offset, by = my + ny * offset;
-      const badge = svg('g', { class: 'edge-badge', transform: `translate(${bx},${by})` },
+      const spots = [];
+      for (const t of [along, along - 0.15, along + 0.15, along - 0.28, along + 0.28]) {
+        for (const side of [1, -1]) {
+          spots.push({ x: x1 + (x2 - x1) * t + side * nx * offset, y: y1 + (y2 - y1) * t + side * ny * offset });
+        }
+      }
+      const covered = spots.map((s) => this.boxOverlap(s.x, s.y, w / 2, 11));
+      const best = covered.indexOf(Math.min(...covered));  // the first spot clear of boxes, or the least covered
+      const bx = spots[best].x, by = spots[best].y;
+      const badge = svg('g', { class: 'edge-badge', transform: `translate(${bx},${by})`,
+        dataset: { ...group.dataset } },
         svg('rect', { x: -w / 2, y: -11, width: w, height: 22, rx: 4 }),
         svg('text', { x: 0, y: 5, 'text-anchor': 'middle', text }));
-      group.append(badge);
+      this.layerBadges.append(badge);  // same data as its arrow, so a click on it selects the arrow
     }
     return group;
+  }
+
+  /** How much of a rectangle centred at (x, y), with these half sizes, the variables' boxes
+   *  (and their captions) cover, in square pixels. */
+  boxOverlap(x, y, halfWidth, halfHeight) {
+    let area = 0;
+    for (const v of this.model.document.variables) {
+      const p = this.position(v);
+      const { width, height } = this.size(v);
+      const ox = Math.min(x + halfWidth, p.x + width / 2 + 4) - Math.max(x - halfWidth, p.x - width / 2 - 4);
+      const oy = Math.min(y + halfHeight, p.y + height / 2 + 20) - Math.max(y - halfHeight, p.y - height / 2 - 14);
+      if (ox > 0 && oy > 0) area += ox * oy;
+    }
+    return area;
   }
 
   drawNode(v, flags) {
@@ -293,7 +318,7 @@ export class Canvas {
     }
     const roles = (this.model.roles?.[v.name] || []).filter((r) => !['treatment', 'outcome', 'unrelated'].includes(r));
     if (roles.length) {
-      group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? 24 : 16), 'text-anchor': 'middle', text: roles.join(', ').replaceAll('_', ' ') }));
+      group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? 24 : 16), 'text-anchor': 'middle', text: roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ') }));
     }
     group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? 14 : 0), cy: 0, r: 7 }));
     const title = svg('title', { text: v.description ? `${v.name}: ${v.description}` : v.name });
@@ -309,7 +334,7 @@ export class Canvas {
       this.zoomBy(event.deltaY < 0 ? 1.1 : 1 / 1.1, event.clientX, event.clientY);
     }, { passive: false });
     root.addEventListener('dblclick', (event) => {
-      if (event.target.closest('.node') || event.target.closest('.edge')) return;
+      if (event.target.closest('.node') || event.target.closest('.edge') || event.target.closest('.edge-badge')) return;
       const p = this.toWorld(event.clientX, event.clientY);
       this.callbacks.onAddVariable(Math.round(p.x), Math.round(p.y));
     });
@@ -323,7 +348,7 @@ export class Canvas {
     if (event.button !== 0) return;
     this.root.focus({ preventScroll: true });
     const nodeEl = event.target.closest('.node');
-    const edgeEl = event.target.closest('.edge');
+    const edgeEl = event.target.closest('.edge') || event.target.closest('.edge-badge');
     const start = { clientX: event.clientX, clientY: event.clientY };
     if (nodeEl) {
       const name = nodeEl.dataset.name;

@@ -98,3 +98,11 @@ export function clock(seconds) {
   const d = new Date(seconds * 1000);
   return d.toLocaleTimeString([], { hour: '2-digit', minute: '2-digit', second: '2-digit' });
 }
+
+/** How each role of a variable is written, on the canvas and in the panels alike. */
+export const ROLE_WORDS = {
+  treatment: 'treatment', outcome: 'outcome', confounder: 'confounder', mediator: 'mediator',
+  collider: 'collider', treatment_descendant: 'descendant of treatment', instrument: 'instrument',
+  outcome_descendant: 'descendant of outcome', treatment_cause: 'cause of treatment only',
+  outcome_cause: 'cause of outcome only', unrelated: 'not on any path',
+};

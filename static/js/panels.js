@@ -1,15 +1,9 @@
 // Side panels: what the diagram implies, the debate, the selection, history, people.
 // Each function takes the app object and returns DOM built with textContent only.
 
-import { el, clock } from './dom.js';
+import { el, clock, ROLE_WORDS } from './dom.js';
 
 const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
-const ROLE_WORDS = {
-  treatment: 'treatment', outcome: 'outcome', confounder: 'confounder', mediator: 'mediator',
-  collider: 'collider', treatment_descendant: 'descendant of treatment', instrument: 'instrument',
-  outcome_descendant: 'descendant of outcome', treatment_cause: 'cause of treatment only',
-  outcome_cause: 'cause of outcome only', unrelated: 'not on any path',
-};
 
 function setChips(app, sets, label) {
   if (!sets?.length) return el('p', { class: 'muted', text: 'none' });
