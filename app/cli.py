@@ -91,8 +91,9 @@ def _open_store(db: str | None):
     from .store import Store
 
     path = db or str(Settings().db_path)
-    if not os.path.exists(path):
-        raise FileNotFoundError(f"no database at {path}; pass --db with the file the server uses")
+    if not os.path.exists(path):  # never create a database by a typo
+        print(f"error: no database at {path}; pass --db with the file the server uses", file=sys.stderr)
+        return None
     return Store(path)
 
 
@@ -101,10 +102,8 @@ def run_sessions(args: argparse.Namespace) -> int:
 
     from .workshop.models import Workshop
 
-    try:
-        store = _open_store(args.db)
-    except FileNotFoundError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+    store = _open_store(args.db)
+    if store is None:
         return EXIT_BAD_INPUT
     rows = store.list_sessions()
     if not rows:
@@ -128,10 +127,8 @@ def run_key(args: argparse.Namespace) -> int:
     from .web.live import hash_token
     from .workshop.models import Workshop
 
-    try:
-        store = _open_store(args.db)
-    except FileNotFoundError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+    store = _open_store(args.db)
+    if store is None:
         return EXIT_BAD_INPUT
     loaded = store.load_session(args.session)
     if loaded is None:
