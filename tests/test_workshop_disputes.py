@@ -134,6 +134,15 @@ def test_more_than_twelve_disputes_are_sampled_with_a_stated_seed():
     assert all(not i["decisive"] for i in report["items"])
 
 
+def _addable_arrows(names, edges):
+    """Every arrow not drawn (either way) whose addition keeps the diagram acyclic, by networkx."""
+    g = nx.DiGraph(edges)
+    g.add_nodes_from(names)
+    linked = {frozenset(e) for e in edges}
+    return [(u, v) for u, v in itertools.permutations(names, 2)
+            if frozenset((u, v)) not in linked and not nx.has_path(g, v, u)]
+
+
 @settings(max_examples=40, deadline=None)
 @given(graph=dags(max_nodes=7))
 def test_absent_arrows_match_networkx(graph):
@@ -149,12 +158,7 @@ def test_absent_arrows_match_networkx(graph):
         assert report["arrows"] == []
         return
     listed = {(a["from"], a["to"]) for a in report["arrows"]}
-    g = nx.DiGraph(edges)
-    g.add_nodes_from(names)
-    linked = {frozenset(e) for e in edges}
-    for u, v in itertools.permutations(names, 2):
-        if frozenset((u, v)) in linked or nx.has_path(g, v, u):
-            continue
+    for u, v in _addable_arrows(names, edges):
         new_edges = edges + [(u, v)]
         breaks = any(not _nx_valid_adjustment(names, new_edges, x, y, s)
                      for s in base["minimal_adjustment_sets"])
@@ -350,12 +354,7 @@ def test_absent_arrows_against_front_door_sets_match_networkx(graph):
     if base["strategy"] != "front-door":
         return
     listed = {(a["from"], a["to"]) for a in report["arrows"]}
-    g = nx.DiGraph(edges)
-    g.add_nodes_from(names)
-    linked = {frozenset(e) for e in edges}
-    for u, v in itertools.permutations(names, 2):
-        if frozenset((u, v)) in linked or nx.has_path(g, v, u):
-            continue
+    for u, v in _addable_arrows(names, edges):
         breaks = any(not _nx_front_door(names, edges + [(u, v)], "x", "y", s, ("u",))
                      for s in base["front_door_sets"])
         assert ((u, v) in listed) == breaks, (u, v)
