@@ -81,6 +81,14 @@ class _Question:
             return False
         return self.back_door.is_d_separated(self.xs, self.ys, zs)
 
+    def for_engine(self):
+        """The engine's question built from these pieces (no document to re-parse)."""
+        from ..graph.identification import Question
+
+        return Question(diagram=None, dag=self.dag, xs=frozenset(self.xs), ys=frozenset(self.ys),
+                        observed=frozenset(self.observed), cn=frozenset(self.cn),
+                        forb=frozenset(self.forb), pbd=self.back_door)
+
     def canonical(self) -> set[str]:
         return (self.dag.ancestors(self.xs | self.ys) & self.observed) - self.xs - self.ys - self.forb
 
@@ -129,12 +137,9 @@ def fullest_combinations(fixed_dag: FastDag, items: list[dict[str, Any]],
         if None not in item["options"] or not directed[i]:
             may_skip.append(None in item["options"])
             continue
-        own = set(directed[i])
+        own = directed[i]  # disputes are per pair, so no other dispute or fixed arrow is one of these
         for a, b in own:
             union_children[a].discard(b)
-        for a, b in every:  # keep the other disputes' arrows, including between the same pair
-            if (a, b) not in own:
-                union_children[a].add(b)
         may_skip.append(any(_reaches(union_children, b, a) for a, b in own))
         for a, b in own:
             union_children[a].add(b)
@@ -197,10 +202,6 @@ def _minimal_unions(lists: list[list[frozenset]], cap: int) -> list[frozenset] |
                 if len(unions) > cap:
                     return None
     return unions
-
-
-def _fmt_sets(sets: list[list[str]]) -> str:
-    return "; ".join("{" + ", ".join(s) + "}" for s in sets)
 
 
 def common_adjustment_sets(doc: dict[str, Any], fixed_dag: FastDag, items: list[dict[str, Any]],
@@ -292,14 +293,10 @@ def common_adjustment_sets(doc: dict[str, Any], fixed_dag: FastDag, items: list[
     # misses every minimal set of some other diagram whose list is complete.
     started = time.perf_counter()
     lists: list[list[frozenset]] = []
-    observed_f, xs_f, ys_f = frozenset(observed), frozenset(xs), frozenset(ys)
     for q in questions[:ANCHOR_DIAGRAMS]:
         if time.perf_counter() - started > COMMON_SEARCH_BUDGET_S / 2:
             break
-        # The engine's question built from the pieces already computed (no re-parsing).
-        engine_q = Question(diagram=None, dag=q.dag, xs=xs_f, ys=ys_f, observed=observed_f,
-                            cn=frozenset(q.cn), forb=frozenset(q.forb), pbd=q.back_door)
-        sets, more = minimal_adjustment_sets(engine_q)
+        sets, more = minimal_adjustment_sets(q.for_engine())
         if not more:
             lists.append([frozenset(x) for x in sets])
     if any(not m for m in lists):
@@ -429,7 +426,7 @@ def _describe_change(base: tuple, other: tuple) -> str:
     if b_strategy != o_strategy:
         return f"identified by {o_strategy} instead of {b_strategy}"
     if b_sets != o_sets:
-        shown = "; ".join("{" + ", ".join(s) + "}" for s in o_sets[:3]) or "none"
+        shown = "; ".join(_braced(s) for s in o_sets[:3]) or "none"
         return f"the minimal adjustment sets change to {shown}"
     return "same answer"
 
@@ -590,16 +587,6 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
     }
 
 
-def _engine_question(dag: FastDag, xs: set[str], ys: set[str], observed: set[str]):
-    """The engine's question for a DAG held here (no document to re-parse)."""
-    from ..graph.identification import Question
-
-    q = _Question(dag, xs, ys, observed)
-    return Question(diagram=None, dag=dag, xs=frozenset(xs), ys=frozenset(ys),
-                    observed=frozenset(observed), cn=frozenset(q.cn), forb=frozenset(q.forb),
-                    pbd=q.back_door)
-
-
 def _braced(names) -> str:
     return "{" + ", ".join(names) + "}"
 
@@ -649,7 +636,7 @@ def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
         if what == "minimal adjustment sets":
             q = _Question(dag, xs, ys, observed)
             return [sorted(s) for s in sets if not q.is_valid(s)]
-        q = _engine_question(dag, xs, ys, observed)
+        q = _Question(dag, xs, ys, observed).for_engine()
         if what == "front-door sets":
             return [sorted(s) for s in front if not is_front_door_set(q, s)]
         return [[i["instrument"], *i["given"]] for i in ivs
