@@ -100,10 +100,14 @@ def _variable_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] |
             "can_undo": can_undo(w)}
 
 
+def _arrow_change(kind: str, a: str, b: str) -> tuple[list, list]:
+    """(added, removed) arrows for adding, removing or reversing a -> b."""
+    return {"add": ([[a, b]], []), "remove": ([], [[a, b]]), "reverse": ([[b, a]], [[a, b]])}[kind]
+
+
 def _arrow_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] | None:
-    a, b = command["from"], command["to"]
-    added = {"add_arrow": [[a, b]], "delete_arrow": [], "reverse_arrow": [[b, a]]}[event["kind"]]
-    removed = {"add_arrow": [], "delete_arrow": [[a, b]], "reverse_arrow": [[a, b]]}[event["kind"]]
+    kind = {"add_arrow": "add", "delete_arrow": "remove", "reverse_arrow": "reverse"}[event["kind"]]
+    added, removed = _arrow_change(kind, command["from"], command["to"])
     return _with_arrows(w, added, removed, {})
 
 
@@ -136,9 +140,7 @@ def _proposal_patch(w: Workshop, command: dict, event: dict) -> dict[str, Any] |
         return None
     patch = {"proposals": [proposal_public(w, p)]}
     if event["kind"] == "settle" and p.status == "accepted":
-        x, y = p.source, p.target
-        added = {"add": [[x, y]], "remove": [], "reverse": [[y, x]]}[p.kind]
-        removed = {"add": [], "remove": [[x, y]], "reverse": [[x, y]]}[p.kind]
+        added, removed = _arrow_change(p.kind, p.source, p.target)
         return _with_arrows(w, added, removed, patch)
     return {**patch, "disputed": disputed_items(w), "can_undo": can_undo(w)}
 
