@@ -29,10 +29,10 @@ Everything below is stable; import from ``app.web.deps``.
 * Errors: raise ``app.errors.NotFound`` / ``BadRequest`` / ``Conflict`` /
   ``Forbidden`` / ``PayloadTooLarge`` (or any ``AppError``); one handler turns them
   into ``{"ok": false, "error", "status", "code"}``. ``DiagramError`` becomes 422.
-* The session page loads ``/static/estimation.js`` (an ES module) when that file
-  exists, and calls its ``mountEstimation(element, context)`` export with the
+* The session page loads ``/static/js/estimation.js`` (an ES module) when that
+  file exists, and calls its ``mountEstimation(element, context)`` export with the
   panel element ``#estimation-panel`` and ``{sessionId, token, member, state,
-  api}`` (see static/js/session.js). A router ``app.web.routes.estimation.router``
+  subscribe}`` (see static/js/session.js). A router ``app.web.routes.estimation.router``
   is included by ``create_app`` when that module exists.
 """
 

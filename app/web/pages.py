@@ -38,7 +38,7 @@ def session_page(session_id: str, request: Request, hub: HubDep):
     """The live workshop page; the key comes from the URL fragment or this browser's storage."""
     w = hub.workshop(session_id)
     static_dir = request.app.state.static_dir
-    has_estimation = (static_dir / "estimation.js").is_file()
+    has_estimation = (static_dir / "js" / "estimation.js").is_file()
     return _render(request, "session.html", title=w.title,
                    page_data={"page": "session", "session_id": w.id, "title": w.title,
-                              "estimation_module": "/static/estimation.js" if has_estimation else None})
+                              "estimation_module": "/static/js/estimation.js" if has_estimation else None})

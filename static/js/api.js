@@ -58,3 +58,74 @@ export async function callApi(method, path, body, token) {
   if (!response.ok) throw new ApiError(data, response.status);
   return data;
 }
+
+const sessionPath = (sessionId) => `/api/sessions/${encodeURIComponent(sessionId)}`;
+
+/** The session page's starting data: the member, the shared state and who is online. */
+export function fetchSession(sessionId, token) {
+  return callApi('GET', sessionPath(sessionId), undefined, token);
+}
+
+/** The session's history of events. */
+export function fetchHistory(sessionId, token) {
+  return callApi('GET', `${sessionPath(sessionId)}/history`, undefined, token);
+}
+
+/** Paths and the check of one adjustment set, for a document (no session needed). */
+export function checkAdjustmentSet(document, set) {
+  return callApi('POST', '/api/identify', { ...document, adjust: set });
+}
+
+/** A short-lived link to the session's report (a new tab cannot send the key). */
+export function createReportLink(sessionId, token) {
+  return callApi('POST', `${sessionPath(sessionId)}/report/link`, undefined, token);
+}
+
+/** Fetch a file the server builds (a document export, the record bundle) as a Blob. */
+async function fetchFile(path, token) {
+  const response = await fetch(path, { headers: { [TOKEN_HEADER]: token } });
+  if (!response.ok) throw new ApiError(await response.json().catch(() => ({ error: 'export failed' })), response.status);
+  return response.blob();
+}
+
+/** The diagram in GraphML or DOT, as the server writes it. */
+export function fetchDocumentExport(sessionId, token, format) {
+  return fetchFile(`${sessionPath(sessionId)}/document?format=${encodeURIComponent(format)}`, token);
+}
+
+/** The versioned record bundle of the whole workshop. */
+export function fetchRecordBundle(sessionId, token) {
+  return fetchFile(`${sessionPath(sessionId)}/export/bundle`, token);
+}
+
+/** Send a command over HTTP (the live connection falls back to this while it is down). */
+export function postCommand(sessionId, token, command) {
+  return callApi('POST', `${sessionPath(sessionId)}/commands`, command, token);
+}
+
+/** The estimation stage's shared state: data, variables and the latest results. */
+export function fetchEstimation(sessionId, token) {
+  return callApi('GET', `${sessionPath(sessionId)}/estimation`, undefined, token);
+}
+
+/** Attach a data file (sent as it is, not as a form). */
+export async function uploadEstimationData(sessionId, token, file) {
+  const response = await fetch(`${sessionPath(sessionId)}/estimation/data?name=${encodeURIComponent(file.name)}`, {
+    method: 'PUT', body: file,
+    headers: { [TOKEN_HEADER]: token, 'Content-Type': 'application/octet-stream', Accept: 'application/json' },
+  });
+  let body = null;
+  try { body = await response.json(); } catch { body = null; }
+  if (!response.ok) throw new ApiError(body, response.status);
+  return body;
+}
+
+/** Save which column measures which variable. */
+export function saveEstimationMapping(sessionId, token, mapping) {
+  return callApi('PUT', `${sessionPath(sessionId)}/estimation/mapping`, { mapping }, token);
+}
+
+/** Run one of the estimation stage's analyses: 'estimate', 'stability', 'sensitivity' or 'disputes'. */
+export function runEstimation(sessionId, token, kind, body) {
+  return callApi('POST', `${sessionPath(sessionId)}/estimation/${encodeURIComponent(kind)}`, body, token);
+}

@@ -1,7 +1,7 @@
 // The live connection: a WebSocket that says hello with the key, resyncs from the last
 // revision after a drop, and carries commands (falling back to HTTP while it is down).
 
-import { callApi } from './api.js';
+import { postCommand } from './api.js';
 
 export class LiveSession {
   /**
@@ -100,7 +100,7 @@ export class LiveSession {
   send(command) {
     const socket = this.socket;
     if (!socket || socket.readyState !== WebSocket.OPEN) {
-      return callApi('POST', `/api/sessions/${encodeURIComponent(this.sessionId)}/commands`, command, this.token);
+      return postCommand(this.sessionId, this.token, command);
     }
     const id = this.nextId++;
     const key = `${this.keyPrefix}-${id}`;
@@ -114,73 +114,4 @@ export class LiveSession {
     this.stopped = true;
     this.socket?.close();
   }
-}
-
-const arrowId = (from, to) => JSON.stringify([from, to]);
-
-/** The entry an arrow without votes or a mark has in the page's state. */
-export function blankArrowNote(from, to) {
-  return { from, to, flag: null, tally: { agree: 0, disagree: 0, unsure: 0, total: 0 }, votes: [] };
-}
-
-/**
- * Apply a patch (see app/workshop/views.py, change_patch) to the page's state, whose
- * `arrows` lists every drawn arrow in the document's order. Checks first and changes
- * nothing when the patch does not fit that state (the caller then asks for a resync).
- * @returns {boolean} whether it was applied
- */
-export function applyPatch(state, patch) {
-  const doc = state.document;
-  const variables = new Map(doc.variables.map((v) => [v.name, v]));
-  if ((patch.moves || []).some((m) => !variables.has(m.name))) return false;
-  if ((patch.variables_added || []).some((v) => variables.has(v.name))) return false;
-  const drawn = new Set(doc.arrows.map((a) => arrowId(a.from, a.to)));
-  if (state.arrows.length !== doc.arrows.length) return false;
-  const removed = new Set((patch.arrows_removed || []).map(([from, to]) => arrowId(from, to)));
-  for (const id of removed) { if (!drawn.has(id)) return false; drawn.delete(id); }
-  for (const [from, to] of patch.arrows_added || []) {
-    const id = arrowId(from, to);
-    if (drawn.has(id)) return false;
-    drawn.add(id);
-  }
-  if ((patch.arrow_notes || []).some((n) => !drawn.has(arrowId(n.from, n.to)))) return false;
-
-  for (const m of patch.moves || []) { const v = variables.get(m.name); v.x = m.x; v.y = m.y; }
-  for (const v of patch.variables_added || []) doc.variables.push(v);
-  if (removed.size || patch.arrows_added?.length) {
-    // A reversed arrow keeps its place in the list, as on the server.
-    const inPlace = new Map();
-    const appended = [];
-    for (const [from, to] of patch.arrows_added || []) {
-      if (removed.has(arrowId(to, from))) inPlace.set(arrowId(to, from), [from, to]);
-      else appended.push([from, to]);
-    }
-    const rebuild = (list, make) => {
-      const out = [];
-      for (const a of list) {
-        const id = arrowId(a.from, a.to);
-        if (inPlace.has(id)) out.push(make(...inPlace.get(id)));
-        else if (!removed.has(id)) out.push(a);
-      }
-      return out.concat(appended.map(([from, to]) => make(from, to)));
-    };
-    doc.arrows = rebuild(doc.arrows, (from, to) => ({ from, to }));
-    state.arrows = rebuild(state.arrows, blankArrowNote);
-  }
-  if (patch.arrow_notes?.length) {
-    const notes = new Map(patch.arrow_notes.map((n) => [arrowId(n.from, n.to), n]));
-    state.arrows = state.arrows.map((a) => notes.get(arrowId(a.from, a.to)) || a);
-  }
-  for (const p of patch.proposals || []) {
-    const i = state.proposals.findIndex((x) => x.id === p.id);
-    if (i >= 0) state.proposals[i] = p;
-    else {
-      const at = state.proposals.findIndex((x) => x.id > p.id);
-      state.proposals.splice(at < 0 ? state.proposals.length : at, 0, p);
-    }
-  }
-  if ('disputed' in patch) state.disputed = patch.disputed;
-  if ('can_undo' in patch) state.can_undo = patch.can_undo;
-  state.revision = patch.revision;
-  return true;
 }

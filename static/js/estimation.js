@@ -2,8 +2,8 @@
 // against the data, stability and sensitivity, and the disputed-arrow forest plot.
 // Mounted by the session page through mountEstimation(element, context).
 
-import { el, clear } from './js/dom.js';
-import { TOKEN_HEADER, ApiError } from './js/api.js';
+import { el, clear } from './dom.js';
+import { fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation } from './api.js';
 
 const METHODS = [
   ['auto', 'Chosen from the diagram and the data'],
@@ -58,8 +58,6 @@ class EstimationPanel {
     this.version = 0;
   }
 
-  get base() { return `/api/sessions/${encodeURIComponent(this.context.sessionId)}/estimation`; }
-
   get canEdit() {
     const id = this.context.member?.id;
     const me = this.context.state?.()?.members?.find((m) => m.id === id) || this.context.member;
@@ -68,15 +66,11 @@ class EstimationPanel {
 
   get stage() { return this.context.state?.()?.session?.stage; }
 
-  async call(method, path = '', body) {
-    return this.context.api(method, this.base + path, body, this.context.token);
-  }
-
   /** Fetch the shared state; with quiet, render only if something changed. */
   async load({ quiet = false } = {}) {
     const version = this.version;
     try {
-      const data = await this.call('GET');
+      const data = await fetchEstimation(this.context.sessionId, this.context.token);
       if (version !== this.version) return; // an action answered meanwhile; its result is newer
       const signature = (value) => JSON.stringify(value, (key, v) => (key === 'stale' ? undefined : v));
       const before = signature([this.data, this.variables, this.results]);
@@ -111,13 +105,7 @@ class EstimationPanel {
 
   upload(file) {
     return this.act('upload', async () => {
-      const response = await fetch(`${this.base}/data?name=${encodeURIComponent(file.name)}`, {
-        method: 'PUT', body: file,
-        headers: { [TOKEN_HEADER]: this.context.token, 'Content-Type': 'application/octet-stream', Accept: 'application/json' },
-      });
-      let body = null;
-      try { body = await response.json(); } catch { body = null; }
-      if (!response.ok) throw new ApiError(body, response.status);
+      const body = await uploadEstimationData(this.context.sessionId, this.context.token, file);
       this.data = body.data;
       this.pendingFile = null;
       for (const key of Object.keys(this.results)) this.results[key] = null;
@@ -131,7 +119,7 @@ class EstimationPanel {
       if (select.value) mapping[select.dataset.variable] = select.value;
     }
     return this.act('mapping', async () => {
-      const body = await this.call('PUT', '/mapping', { mapping });
+      const body = await saveEstimationMapping(this.context.sessionId, this.context.token, mapping);
       this.data = body.data;
       this.message = { kind: 'ok', text: 'Mapping saved.' };
     });
@@ -146,7 +134,7 @@ class EstimationPanel {
     const opts = this.options();
     return this.act(kind, async () => {
       const body = kind === 'estimate' ? opts : { method: opts.method, adjust: opts.adjust };
-      const out = await this.call('POST', `/${kind}`, body);
+      const out = await runEstimation(this.context.sessionId, this.context.token, kind, body);
       this.results[kind] = out.result;
     });
   }
@@ -397,7 +385,7 @@ function loadStyles() {
 /**
  * Entry point called by the session page.
  * @param {HTMLElement} element the panel to fill
- * @param {{sessionId: string, token: string, member: any, state: () => any, api: Function, highlight?: Function}} context
+ * @param {{sessionId: string, token: string, member: any, state: () => any, subscribe?: (listener: (kind: string, message: any) => void) => () => void, highlight?: Function}} context
  */
 export function mountEstimation(element, context) {
   loadStyles();
@@ -409,11 +397,14 @@ export function mountEstimation(element, context) {
   panel.render();
   if (!element.hidden) panel.load();
   // Others' uploads and estimates arrive as new session revisions: reload when one
-  // lands while the panel is open (a cheap local check; no request otherwise).
+  // lands while the panel is open (no request otherwise; a hidden panel reloads on opening).
   let seen = context.state?.()?.revision;
-  setInterval(() => {
+  context.subscribe?.((kind) => {
+    if (kind !== 'state' && kind !== 'patch') return;
     const now = context.state?.()?.revision;
-    if (now !== seen && !element.hidden && !panel.busy) { seen = now; panel.load({ quiet: true }); }
-  }, 1500);
+    if (now === seen) return;
+    seen = now;
+    if (!element.hidden && !panel.busy) panel.load({ quiet: true });
+  });
   return panel;
 }

@@ -1,0 +1,123 @@
+// What the people in the room can ask of the diagram, as named actions. Each builds a
+// command for the server (see app/workshop/commands.py) from the page's state, sends it
+// through the app, and says what went wrong in a toast when it is refused.
+
+import { toast, askText } from './dom.js';
+
+const LOCKED = new Set(['agreed', 'estimation']);
+const arrowKey = (from, to) => JSON.stringify([from, to]);
+
+/** Drawing an arrow: a proposal for the room while debating, a plain arrow before. */
+export function arrowCommand(stage, from, to) {
+  if (stage === 'debating') return { type: 'propose', kind: 'add', from, to };
+  return { type: 'add_arrow', from, to };
+}
+
+export function isLocked(stage) { return LOCKED.has(stage); }
+
+function selectedArrow(app) {
+  const sel = app.view.selection;
+  if (sel?.kind !== 'arrow') return null;
+  return app.state.arrows.find((a) => arrowKey(a.from, a.to) === sel.key) || null;
+}
+
+function selectedVariable(app) {
+  const sel = app.view.selection;
+  if (sel?.kind !== 'variable') return null;
+  return app.state.document.variables.find((v) => v.name === sel.name) || null;
+}
+
+/** Ask for an optional reason, then propose to add, remove or reverse an arrow. */
+export async function proposeWithReason(app, kind, from, to) {
+  const reason = await askText(`Propose to ${kind} ${from} → ${to}`, { label: 'Why? (optional, one line)', confirm: 'Propose' });
+  if (reason === null) return;
+  await app.send({ type: 'propose', kind, from, to, reason }).catch(() => {});
+  app.tab = 'debate';
+  app.renderAll();
+}
+
+export async function addVariableAt(app, x, y) {
+  if (LOCKED.has(app.state.session.stage)) { toast('The diagram is locked; the facilitator can reopen it.', 'error'); return; }
+  const name = await askText('New variable', { label: 'Name', required: true, confirm: 'Add' });
+  if (!name) return;
+  const p = x === undefined ? app.canvas.visibleCentre() : { x, y };
+  await app.send({ type: 'add_variable', name, x: Math.round(p.x), y: Math.round(p.y) })
+    .then(() => app.select({ kind: 'variable', name })).catch(() => {});
+}
+
+export function tidyLayout(app) {
+  app.send({ type: 'tidy' }).then(() => app.canvas.fit()).catch(() => {});
+}
+
+export function undoLast(app) {
+  if (app.isFacilitator) app.send({ type: 'undo' }).catch(() => {});
+  else toast('Only the facilitator can undo.', 'error');
+}
+
+/** Delete the selected variable or arrow (a participant proposes the removal while debating). */
+export function deleteSelection(app) {
+  const sel = app.view.selection;
+  if (sel?.kind === 'variable') {
+    app.send({ type: 'delete_variable', name: sel.name }).then(() => app.select(null)).catch(() => {});
+    return;
+  }
+  const a = selectedArrow(app);
+  if (!a) return;
+  if (app.state.session.stage === 'debating' && !app.isFacilitator) proposeWithReason(app, 'remove', a.from, a.to);
+  else app.send({ type: 'delete_arrow', from: a.from, to: a.to }).then(() => app.select(null)).catch(() => {});
+}
+
+export function reverseSelection(app) {
+  const a = selectedArrow(app);
+  if (!a) return;
+  if (app.state.session.stage === 'debating' && !app.isFacilitator) proposeWithReason(app, 'reverse', a.from, a.to);
+  else app.send({ type: 'reverse_arrow', from: a.from, to: a.to }).then(() => app.select({ kind: 'arrow', key: arrowKey(a.to, a.from) })).catch(() => {});
+}
+
+/** Move the selected variable by (dx, dy). @returns {boolean} whether a variable was selected */
+export function nudgeSelection(app, dx, dy) {
+  const v = selectedVariable(app);
+  if (!v) return false;
+  app.send({ type: 'move_variable', name: v.name, x: (v.x || 0) + dx, y: (v.y || 0) + dy }).catch(() => {});
+  return true;
+}
+
+export function toggleLatent(app) {
+  const v = selectedVariable(app);
+  if (v) app.send({ type: 'update_variable', name: v.name, latent: !v.latent }).catch(() => {});
+}
+
+/** @returns {boolean} whether a variable was selected */
+export function renameSelection(app) {
+  const sel = app.view.selection;
+  if (sel?.kind !== 'variable') return false;
+  askText(`Rename ${sel.name}`, { label: 'New name', value: sel.name, required: true, confirm: 'Rename' }).then((name) => {
+    if (name && name !== sel.name) app.send({ type: 'update_variable', name: sel.name, new_name: name }).then(() => app.select({ kind: 'variable', name })).catch(() => {});
+  });
+  return true;
+}
+
+export async function moveStage(app, stage, stageNames) {
+  if (!app.isFacilitator || stage === app.state.session.stage) return;
+  let reason = '';
+  const reopening = LOCKED.has(app.state.session.stage) && !LOCKED.has(stage);
+  if (reopening) {
+    reason = await askText(`Reopen the diagram (${stageNames[stage]})`, { label: 'Why is it being reopened? This goes in the log.', required: true, multiline: true, confirm: 'Reopen' });
+    if (reason === null) return;
+  }
+  app.send({ type: 'set_stage', stage, reason }).catch(() => {});
+}
+
+export async function renameSession(app) {
+  const title = await askText('Rename the session', { label: 'Title', value: app.state.session.title, required: true, confirm: 'Rename' });
+  if (title && title !== app.state.session.title) app.send({ type: 'rename_session', title }).catch(() => {});
+}
+
+/** Replace the diagram with one read from a file (JSON, GraphML or DOT). */
+export async function importFile(app, file) {
+  if (!file) { toast('Choose a file first.', 'error'); return; }
+  const lower = file.name.toLowerCase();
+  const format = lower.endsWith('.graphml') || lower.endsWith('.xml') ? 'graphml' : lower.endsWith('.dot') || lower.endsWith('.gv') ? 'dot' : 'json';
+  const text = await file.text();
+  await app.send({ type: 'import_document', text, format }).then(() => { app.canvas.fitted = false; app.canvas.fit(); toast(`Imported ${file.name}.`); }).catch(() => {});
+}

@@ -1,0 +1,136 @@
+// Drawing the session page's frame from the state: the session bar, the stage banner,
+// the tab row, the legend and the model the canvas draws. Nothing here changes state.
+
+import { el, svg, clear } from './dom.js';
+
+export const STAGE_NAMES = { drafting: 'Drafting', debating: 'Debating', agreed: 'Agreed', estimation: 'Estimation' };
+const LOCKED = new Set(['agreed', 'estimation']);
+
+export function statusText(status) {
+  return { live: 'Live', connecting: 'Connecting…', reconnecting: 'Reconnecting…', offline: 'Offline' }[status] || status;
+}
+
+/** The bar above the workspace: title, stages, join code, who is here, the live badge. */
+export function renderBar(app) {
+  const s = app.state;
+  document.title = `${s.session.title} · Arrowmoot`;
+  const stage = s.session.stage;
+  const stepper = el('ol', { class: 'stages', 'aria-label': 'Stages' }, s.session.stages.map((name, i) => {
+    const current = name === stage;
+    const item = el('li', { class: `stage${current ? ' stage-current' : ''}${s.session.stages.indexOf(stage) > i ? ' stage-done' : ''}` });
+    const label = `${i + 1}. ${STAGE_NAMES[name]}`;
+    if (app.isFacilitator && !current) item.append(el('button', { type: 'button', text: label, title: `Move the session to ${STAGE_NAMES[name]}${LOCKED.has(name) ? ' (locks the diagram)' : ''}`, on: { click: () => app.moveStage(name) } }));
+    else item.append(el('span', { text: label, 'aria-current': current ? 'step' : null }));
+    return item;
+  }));
+  const onlineCount = app.online.size;
+  clear(app.bar).append(
+    app.isFacilitator
+      ? el('h1', { class: 'session-title' }, el('button', { type: 'button', class: 'title-button', text: s.session.title, title: 'Rename the session',
+        on: { click: () => app.renameSession() } }))
+      : el('h1', { class: 'session-title', text: s.session.title }),
+    stepper,
+    el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
+      on: { click: () => showJoinScreen(s.session.join_code) } },
+      el('span', { class: 'muted', text: `${location.host}/join · code ` }), el('strong', { text: s.session.join_code })),
+    el('div', { class: 'who' }, el('span', { text: `${app.me.name} · ${app.me.roles.join(', ')}` }),
+      el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
+    app.statusBadge = el('span', { class: `live-status live-${app.status}`, text: statusText(app.status) }));
+}
+
+export function renderStatus(app) {
+  if (!app.statusBadge) return;
+  app.statusBadge.className = `live-status live-${app.status}`;
+  app.statusBadge.textContent = statusText(app.status);
+}
+
+export function renderBanner(app) {
+  const stage = app.state.session.stage;
+  const text = {
+    debating: 'Debating: new arrows, removals and reversals become proposals for the room to vote on.',
+    agreed: 'The diagram is agreed and locked. The facilitator can reopen it, with a reason for the log.',
+    estimation: 'Estimation: the diagram is locked; the analyst works in the Estimation tab.',
+  }[stage];
+  app.banner.hidden = !text;
+  app.banner.className = `stage-banner stage-banner-${stage}`;
+  app.banner.textContent = text || '';
+}
+
+export function renderTabs(app) {
+  const open = app.state.proposals.filter((p) => p.status === 'open').length;
+  const tabs = [
+    ['analysis', 'Implications'], ['debate', `Debate${open ? ` (${open})` : ''}`], ['selection', 'Selection'],
+    ['history', 'History'], ['people', 'People'],
+  ];
+  if (app.estimationMounted) tabs.push(['estimation', 'Estimation']);
+  clear(app.tabs).append(...tabs.map(([id, text]) => el('button', {
+    type: 'button', role: 'tab', class: `tab${app.tab === id ? ' tab-current' : ''}`, 'aria-selected': app.tab === id ? 'true' : 'false',
+    text, dataset: { tab: id },
+    on: { click: () => app.openTab(id) },
+  })));
+}
+
+/** What the canvas draws: the document, each arrow's marks, pending proposals, the view. */
+export function canvasModel(app, previousRoles) {
+  const s = app.state;
+  const pendingByArrow = new Map();
+  for (const p of s.proposals) {
+    if ((p.kind === 'remove' || p.kind === 'reverse') && ['open', 'disputed'].includes(p.status)) {
+      const key = JSON.stringify([p.from, p.to]);
+      if (!pendingByArrow.has(key)) pendingByArrow.set(key, []);
+      pendingByArrow.get(key).push(p);
+    }
+  }
+  const contested = new Set();
+  for (const item of s.disputed) for (const opt of item.options) if (opt) contested.add(JSON.stringify(opt));
+  const arrows = s.arrows.map((a) => ({ ...a, contested: contested.has(JSON.stringify([a.from, a.to])) && a.flag !== 'settled' && (a.tally.disagree > 0 || pendingByArrow.has(JSON.stringify([a.from, a.to]))) }));
+  const decisive = new Set();
+  const disputes = app.analysis?.disputes;
+  if (disputes) for (const item of disputes.items) if (item.decisive) decisive.add(JSON.stringify(item.pair));
+  return {
+    document: s.document, arrows, proposals: s.proposals, pendingByArrow, decisive,
+    selection: app.view.selection, highlight: app.view.highlight, adjusted: app.view.adjusted || [],
+    roles: app.analysis?.revision === s.revision ? app.analysis?.analysis?.roles : previousRoles,
+  };
+}
+
+export function buildLegend() {
+  const shapes = {
+    rect: () => [svg('rect', { class: 'shape', x: 2, y: 3, width: 42, height: 18, rx: 4 })],
+    hex: () => [svg('polygon', { class: 'shape', points: '8,3 38,3 44,12 38,21 8,21 2,12' })],
+    double: () => [svg('rect', { class: 'shape', x: 2, y: 3, width: 42, height: 18, rx: 4 }),
+      svg('rect', { class: 'shape-inner', x: 5, y: 6, width: 36, height: 12, rx: 2 })],
+    ring: () => [svg('rect', { class: 'adjust-ring', x: 1, y: 1, width: 44, height: 22, rx: 7 }),
+      svg('rect', { class: 'shape', x: 6, y: 5, width: 34, height: 14, rx: 3 })],
+    line: () => [svg('line', { class: 'edge-line', x1: 2, y1: 12, x2: 38, y2: 12 }),
+      svg('path', { class: 'head', d: 'M35,7 L44,12 L35,17 L37,12 z' })],
+    halo: (cls) => [svg('line', { class: `halo ${cls}`, x1: 2, y1: 12, x2: 44, y2: 12 })],
+  };
+  const sample = (cls, text, shape = 'rect') => el('li', {},
+    svg('svg', { width: 46, height: 24, 'aria-hidden': 'true', class: `legend-sample ${cls}` }, shapes[shape](cls)),
+    el('span', { text }));
+  return el('aside', { class: 'legend', 'aria-label': 'Legend' },
+    el('h2', { text: 'Legend' }),
+    el('ul', {},
+      sample('node', 'measured variable'),
+      sample('node node-latent', 'unmeasured (dashed, hatched)'),
+      sample('node node-treatment', 'treatment (pointed ends)', 'hex'),
+      sample('node node-outcome', 'outcome (double border)', 'double'),
+      sample('node node-adjusted', 'in the set shown (dotted ring)', 'ring'),
+      sample('edge', 'arrow', 'line'),
+      sample('edge edge-disputed', 'disputed arrow (long dashes, ?)', 'line'),
+      sample('edge edge-proposed', 'proposed arrow (short dashes)', 'line'),
+      sample('halo-causal', 'causal path shown (solid band)', 'halo'),
+      sample('halo-noncausal', 'non-causal path shown (broken band)', 'halo')));
+}
+
+export function showJoinScreen(code) {
+  const dialog = el('dialog', { class: 'join-screen' },
+    el('p', { text: 'Join this session at' }),
+    el('p', { class: 'join-url', text: `${location.origin}/join` }),
+    el('p', { text: 'with the code' }),
+    el('p', { class: 'join-big', text: code }),
+    el('button', { type: 'button', class: 'primary', text: 'Close', on: { click: () => { dialog.close(); dialog.remove(); } } }));
+  document.body.append(dialog);
+  dialog.showModal();
+}
