@@ -11,7 +11,7 @@ Modules
                   instrument / mediators to use, the smallest groups of unmeasured variables
                   that would allow adjustment, the default method
 ``estimators``    regression (OLS, HC1), standardization (g-formula, bootstrap), weighting and
-                  doubly-robust (statsmodels TreatmentEffect), two-stage (linearmodels IV2SLS),
+                  doubly-robust (analytic sandwich), two-stage (linearmodels IV2SLS),
                   front-door (product of coefficients, bootstrap)
 ``implications``  the diagram's independences tested on the data (Fisher z; likelihood ratio),
                   Holm or Benjamini-Hochberg correction

@@ -2,11 +2,11 @@
 a plain dict with at least ``estimate``, ``std_error``, ``ci``, ``method``.
 
 The statistics come from maintained libraries: statsmodels (OLS with
-heteroskedasticity-robust errors, logistic models, the inverse-probability
-and doubly robust estimators of ``statsmodels.treatment``) and linearmodels
-(two-stage least squares). Only the glue is written here: standardization
-over the sample, overlap and balance summaries, the front-door product and
-the bootstrap loops.
+heteroskedasticity-robust errors, logistic models) and linearmodels
+(two-stage least squares). Written here: standardization over the sample,
+the weighting and doubly robust means with the analytic sandwich of their
+estimating equations, overlap and balance summaries, the front-door product
+and the bootstrap loops.
 
 Every estimator also has a *point* function (``point_<method>``) that
 returns only the estimate, fast, for the resampling checks.
@@ -14,6 +14,7 @@ returns only the estimate, fast, for the resampling checks.
 
 from __future__ import annotations
 
+import math
 import warnings
 from typing import Callable
 
@@ -349,20 +350,105 @@ def balance_table(design: Design, score: np.ndarray) -> list[dict]:
     return out
 
 
-def _treatment_effect(design: Design, kind: str) -> dict:
-    from statsmodels.treatment.treatment_effects import TreatmentEffect
+def _standardized(design: Design) -> np.ndarray:
+    """[1, covariates centred and scaled]: the same fitted values as the raw columns
+    (an invertible linear change of coordinates), but a well-conditioned matrix even
+    when a column holds squares of values in the thousands."""
+    cov = design.covariates.reshape(design.n, -1)
+    if not cov.size:
+        return np.ones((design.n, 1))
+    sd = cov.std(axis=0)
+    sd[sd == 0] = 1.0
+    return _with_const((cov - cov.mean(axis=0)) / sd)
 
+
+def _sandwich_se(moments: np.ndarray, jacobian: np.ndarray, gradient: np.ndarray) -> float:
+    """Standard error of gradient' theta for an exactly identified M-estimator.
+
+    ``moments``: the n x p estimating functions at the solution; ``jacobian``:
+    the p x p sum over rows of their derivatives. Var = J^-1 (Psi'Psi) J^-T
+    (Stefanski & Boos 2002), so the variance of g'theta is |Psi J^-T g|^2.
+    """
+    try:
+        u = np.linalg.solve(jacobian.T, gradient)
+    except np.linalg.LinAlgError:
+        raise FitFailed("the weighting estimating equations are singular; an arm may be empty") from None
+    return float(np.sqrt(np.sum((moments @ u) ** 2)))
+
+
+def _ipw_parts(x: np.ndarray, t: np.ndarray, y: np.ndarray, p: np.ndarray) -> dict:
+    """Normalised (Hajek) inverse probability weighting with its analytic sandwich.
+
+    Parameters (beta, mu1, mu0): the logistic propensity score and the weighted
+    mean outcome in each arm. Estimating functions
+    x (t - p),  t/p (y - mu1),  (1-t)/(1-p) (y - mu0);
+    their derivatives are written out below (dp/dbeta = p (1-p) x).
+    """
+    k = x.shape[1]
+    w1, w0 = t / p, (1 - t) / (1 - p)
+    mu1, mu0 = np.sum(w1 * y) / np.sum(w1), np.sum(w0 * y) / np.sum(w0)
+    moments = np.column_stack([x * (t - p)[:, None], w1 * (y - mu1), w0 * (y - mu0)])
+    jac = np.zeros((k + 2, k + 2))
+    jac[:k, :k] = -(x * (p * (1 - p))[:, None]).T @ x
+    jac[k, :k] = -(w1 * (y - mu1) * (1 - p)) @ x
+    jac[k, k] = -np.sum(w1)
+    jac[k + 1, :k] = (w0 * (y - mu0) * p) @ x
+    jac[k + 1, k + 1] = -np.sum(w0)
+    gradient = np.zeros(k + 2)
+    gradient[k], gradient[k + 1] = 1.0, -1.0
+    return {"estimate": mu1 - mu0, "mean_treated": mu1, "mean_untreated": mu0,
+            "std_error": _sandwich_se(moments, jac, gradient)}
+
+
+def _aipw_parts(x: np.ndarray, t: np.ndarray, y: np.ndarray, p: np.ndarray) -> dict:
+    """Augmented IPW with a linear outcome model per arm, and its analytic sandwich.
+
+    Parameters (beta, gamma1, gamma0, mu1, mu0). Estimating functions
+    x (t - p),  t x (y - x gamma1),  (1-t) x (y - x gamma0),
+    m1 + t (y - m1)/p - mu1,  m0 + (1-t)(y - m0)/(1-p) - mu0  with m_a = x gamma_a.
+    """
+    k = x.shape[1]
+    tr = t == 1
+    gamma1 = np.linalg.lstsq(x[tr], y[tr], rcond=None)[0]
+    gamma0 = np.linalg.lstsq(x[~tr], y[~tr], rcond=None)[0]
+    m1, m0 = x @ gamma1, x @ gamma0
+    r1, r0 = t * (y - m1) / p, (1 - t) * (y - m0) / (1 - p)
+    mu1, mu0 = float(np.mean(m1 + r1)), float(np.mean(m0 + r0))
+    moments = np.column_stack([x * (t - p)[:, None], x * (t * (y - m1))[:, None],
+                               x * ((1 - t) * (y - m0))[:, None], m1 + r1 - mu1, m0 + r0 - mu0])
+    b, g1, g0, a1, a0 = slice(0, k), slice(k, 2 * k), slice(2 * k, 3 * k), 3 * k, 3 * k + 1
+    jac = np.zeros((3 * k + 2, 3 * k + 2))
+    jac[b, b] = -(x * (p * (1 - p))[:, None]).T @ x
+    jac[g1, g1] = -(x * t[:, None]).T @ x
+    jac[g0, g0] = -(x * (1 - t)[:, None]).T @ x
+    jac[a1, b] = -(r1 * (1 - p)) @ x
+    jac[a1, g1] = (1 - t / p) @ x
+    jac[a1, a1] = -len(y)
+    jac[a0, b] = (r0 * p) @ x
+    jac[a0, g0] = (1 - (1 - t) / (1 - p)) @ x
+    jac[a0, a0] = -len(y)
+    gradient = np.zeros(3 * k + 2)
+    gradient[a1], gradient[a0] = 1.0, -1.0
+    return {"estimate": mu1 - mu0, "mean_treated": mu1, "mean_untreated": mu0,
+            "std_error": _sandwich_se(moments, jac, gradient)}
+
+
+def _treatment_effect(design: Design, kind: str) -> dict:
+    """Weighting or doubly robust estimate; standard error from the analytic sandwich
+    of the stacked estimating equations (propensity model included), computed on
+    standardized covariate columns."""
     _require_binary(design, "weighting" if kind == "ipw" else "the doubly robust estimator")
+    tr = design.t == 1
+    if np.ptp(design.y[tr]) == 0 and np.ptp(design.y[~tr]) == 0:
+        raise FitFailed("the outcome takes a single value in each arm, so it carries no information "
+                        "beyond the treatment itself; no standard error or interval can be given")
     x, ps_fit = _propensity(design)
-    score = ps_fit.predict(x)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            model = TreatmentEffect(sm.OLS(design.y, x), design.t.astype(int), results_select=ps_fit)
-            res = model.ipw() if kind == "ipw" else model.aipw()
-        except Exception as exc:
-            raise FitFailed(f"the {'weighting' if kind == 'ipw' else 'doubly robust'} fit failed: {exc}") from None
-    ci = res.conf_int()[0]
+    score = np.asarray(ps_fit.predict(x), dtype=float)
+    xs = _standardized(design)
+    parts = (_ipw_parts if kind == "ipw" else _aipw_parts)(xs, design.t.astype(float), design.y, score)
+    if not (math.isfinite(parts["estimate"]) and math.isfinite(parts["std_error"]) and parts["std_error"] > 0):
+        raise FitFailed(f"the {'weighting' if kind == 'ipw' else 'doubly robust'} fit gave no finite estimate")
+    est, se = parts["estimate"], parts["std_error"]
     overlap = overlap_summary(design.t, score)
     balance = balance_table(design, score)
     notes = []
@@ -379,24 +465,24 @@ def _treatment_effect(design: Design, kind: str) -> dict:
     return {
         "method": "weighting" if kind == "ipw" else "doubly-robust",
         "warnings": notes,
-        "estimate": float(res.effect[0]),
-        "std_error": float(res.sd[0]),
-        "ci": [float(ci[0]), float(ci[1])],
-        "mean_untreated": float(res.effect[1]),
-        "mean_treated": float(res.effect[2]),
-        "interval": "joint estimating-equation (GMM) standard errors, statsmodels",
+        "estimate": est,
+        "std_error": se,
+        "ci": [est - Z95 * se, est + Z95 * se],
+        "mean_untreated": parts["mean_untreated"],
+        "mean_treated": parts["mean_treated"],
+        "interval": "sandwich standard error of the stacked estimating equations (propensity model included)",
         "overlap": overlap,
         "balance": balance,
     }
 
 
 def weighting(design: Design) -> dict:
-    """Inverse probability weighting with normalised weights (statsmodels TreatmentEffect.ipw)."""
+    """Inverse probability weighting with normalised weights (Hajek), statsmodels Logit propensity."""
     return _treatment_effect(design, "ipw")
 
 
 def doubly_robust(design: Design) -> dict:
-    """Augmented IPW (statsmodels TreatmentEffect.aipw), linear outcome model per arm."""
+    """Augmented IPW, linear outcome model per arm, statsmodels Logit propensity."""
     return _treatment_effect(design, "aipw")
 
 
