@@ -148,12 +148,31 @@ def _rss(x: np.ndarray, y: np.ndarray) -> float:
     return float(np.sum((y - x @ beta) ** 2))
 
 
-def regression_sensitivity(design, result: dict, *, q: float = 1.0, alpha: float = 0.05,
+def classical_ols(x: np.ndarray, y: np.ndarray, column: int = 1) -> tuple[float, float, float]:
+    """Coefficient, classical (homoskedastic) standard error and residual df of one column.
+
+    The omitted-variable-bias formulas are identities of the least-squares fit with
+    this standard error, not with a heteroskedasticity-robust one.
+    """
+    from scipy.linalg import solve_triangular
+
+    from .estimators import _least_squares
+
+    n, k = x.shape
+    beta, r = _least_squares(x, y)
+    df = n - k
+    rss = float(np.sum((y - x @ beta) ** 2))
+    rinv = solve_triangular(r, np.eye(k))
+    se = math.sqrt(rss / df * float(rinv[column] @ rinv[column]))
+    return float(beta[column]), se, float(df)
+
+
+def regression_sensitivity(design, *, q: float = 1.0, alpha: float = 0.05,
                            ks: tuple[float, ...] = (1.0, 2.0, 3.0), r2_max: float | None = None) -> dict:
-    """Cinelli & Hazlett sensitivity for an OLS result, with benchmarks from each covariate."""
-    est, se, df = result["estimate"], result["std_error"], result["df_resid"]
-    t_value = est / se
+    """Cinelli & Hazlett sensitivity for the OLS fit of a design, with benchmarks from each covariate."""
     x = design.x  # [1, treatment, covariates]
+    est, se, df = classical_ols(x, design.y)
+    t_value = est / se
     k = x.shape[1]
     # full models once: treatment on covariates, outcome on treatment and covariates
     d_cols = [0] + list(range(2, k))

@@ -208,7 +208,7 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
                        "it is shown for the regression with the same adjustment set")
     if chosen == "regression":
         fit = estimators.regression(design)
-        out["regression"] = regression_sensitivity(design, fit, q=q, alpha=alpha)
+        out["regression"] = regression_sensitivity(design, q=q, alpha=alpha)
         sd = float(np.std(design.y, ddof=1))
         out["e_value"] = standardized_e_value(fit["estimate"], fit["ci"][0], fit["ci"][1], sd)
     elif chosen == "standardization":
