@@ -96,7 +96,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
 
 
 def _create_demo_session(hub: Hub, settings: Settings) -> None:
-    """With an empty database, open the cycle-to-work demo and print its links once."""
+    """With an empty database, open the bike-lease demo and print its links once."""
     if hub.store.count_sessions() > 0:
         return
     path = settings.demo_document
@@ -104,7 +104,7 @@ def _create_demo_session(hub: Hub, settings: Settings) -> None:
         return
     try:
         document = json.loads(path.read_text(encoding="utf-8"))
-        w, token = hub.create_session(title="Cycle-to-work scheme and sick days (demo)",
+        w, token = hub.create_session(title="Bike leases and sick days (demo, invented data)",
                                       facilitator_name="Facilitator", document=document)
     except Exception as exc:  # a broken demo file must not stop the server
         log.warning("demo session not created: %s", exc)

@@ -76,7 +76,7 @@ def open_room(client: TestClient, **body) -> Room:
 
 @pytest.fixture
 def room(client) -> Room:
-    return open_room(client, treatment="scheme", outcome="sick_days")
+    return open_room(client, treatment="bike_lease", outcome="sick_days")
 
 
 @pytest.fixture

@@ -27,11 +27,11 @@ TOKEN_HEADER = "X-Arrowmoot-Token"
 DOCUMENT = {
     "format": "arrowmoot-graph", "version": 1,
     "variables": [{"name": n, "x": x, "y": y} for n, x, y in (
-        ("age", 120, 80), ("scheme", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
+        ("age", 120, 80), ("bike_lease", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
         ("commute", 420, 460))],
     "arrows": [{"from": a, "to": b} for a, b in (
-        ("age", "scheme"), ("age", "sick_days"), ("scheme", "fitness"), ("fitness", "sick_days"))],
-    "treatment": ["scheme"], "outcome": ["sick_days"],
+        ("age", "bike_lease"), ("age", "sick_days"), ("bike_lease", "fitness"), ("fitness", "sick_days"))],
+    "treatment": ["bike_lease"], "outcome": ["sick_days"],
 }
 
 # Records every message the page's WebSocket receives and, right after the page has
@@ -133,14 +133,14 @@ def test_patched_page_equals_a_freshly_loaded_one(tmp_path):
                                "reason": "a long ride <b>tires</b> people"}),
             ("vote on a proposal", ann, {"type": "vote", "proposal": 2, "choice": "agree", "reason": "yes"}),
             ("vote on Bob's proposal", fac, {"type": "vote", "proposal": 1, "choice": "unsure"}),
-            ("vote against an arrow", ann, {"type": "vote", "from": "age", "to": "scheme", "choice": "disagree"}),
-            ("proposal to reverse", ann, {"type": "propose", "kind": "reverse", "from": "scheme", "to": "fitness"}),
+            ("vote against an arrow", ann, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "disagree"}),
+            ("proposal to reverse", ann, {"type": "propose", "kind": "reverse", "from": "bike_lease", "to": "fitness"}),
             ("proposal to remove", fac, {"type": "propose", "kind": "remove", "from": "age", "to": "sick_days"}),
             ("accepted addition", fac, {"type": "settle", "proposal": 2, "decision": "accept"}),
             ("accepted reversal", fac, {"type": "settle", "proposal": 3, "decision": "accept"}),
             ("left disputed", fac, {"type": "settle", "proposal": 4, "decision": "dispute"}),
             ("rejected", fac, {"type": "settle", "proposal": 1, "decision": "reject"}),
-            ("vote withdrawn", ann, {"type": "withdraw_vote", "from": "age", "to": "scheme"}),
+            ("vote withdrawn", ann, {"type": "withdraw_vote", "from": "age", "to": "bike_lease"}),
             ("new variable", ann, {"type": "add_variable", "name": "weather", "latent": True, "x": 700, "y": 90}),
             ("accepted removal", fac, {"type": "settle", "proposal": 4, "decision": "accept"}),
         ]
@@ -164,7 +164,7 @@ def test_patched_page_equals_a_freshly_loaded_one(tmp_path):
             state = json.loads(page.evaluate(SNAPSHOT)["state"])
             # the checks above compared something real: the changes are on the page
             assert [p["status"] for p in state["proposals"]] == ["rejected", "accepted", "accepted", "accepted"]
-            assert {"from": "fitness", "to": "scheme"} in state["document"]["arrows"]
+            assert {"from": "fitness", "to": "bike_lease"} in state["document"]["arrows"]
             assert "a long ride <b>tires</b> people" in page.locator(".panel[role=tabpanel]").text_content()
             assert page.locator(".panel[role=tabpanel] b").count() == 0  # user text is never markup
             # only the first state was a full one: everything after came as patches

@@ -59,13 +59,13 @@ def test_two_people_draw_and_vote(server):
 
         # The facilitator opens a session with its question.
         fac.goto(server + "/")
-        fac.fill("input[name=title]", "Does the cycle-to-work scheme cut sick days?")
+        fac.fill("input[name=title]", "Does the cycle-to-work bike_lease cut sick days?")
         fac.fill("input[name=name]", "Dana")
-        fac.fill("input[name=treatment]", "scheme")
+        fac.fill("input[name=treatment]", "bike_lease")
         fac.fill("input[name=outcome]", "sick_days")
         fac.click("#create-form button[type=submit]")
         expect(fac.locator(".live-status")).to_have_text("Live")
-        expect(fac.locator('.node[data-name="scheme"]')).to_be_visible()
+        expect(fac.locator('.node[data-name="bike_lease"]')).to_be_visible()
         assert "#key=" not in fac.url  # the key is dropped from the address bar
         summary_before = fac.locator(".summary").inner_text()
         code = fac.locator(".join-code strong").inner_text()
@@ -77,8 +77,8 @@ def test_two_people_draw_and_vote(server):
         expect(par.locator(".live-status")).to_have_text("Live")
         expect(fac.locator(".who")).to_contain_text("2 online")
 
-        # Sam draws scheme -> sick_days by Shift-dragging.
-        sx, sy = _node_centre(par, "scheme")
+        # Sam draws bike_lease -> sick_days by Shift-dragging.
+        sx, sy = _node_centre(par, "bike_lease")
         tx, ty = _node_centre(par, "sick_days")
         par.keyboard.down("Shift")
         par.mouse.move(sx, sy)
@@ -88,15 +88,15 @@ def test_two_people_draw_and_vote(server):
         par.mouse.up()
         par.keyboard.up("Shift")
 
-        edge = '.edge[data-key=\'["scheme","sick_days"]\']'
+        edge = '.edge[data-key=\'["bike_lease","sick_days"]\']'
         expect(fac.locator(edge)).to_have_count(1)
         expect(fac.locator(".summary")).not_to_have_text(summary_before)
         fac.get_by_role("tab", name="Implications").click()
-        expect(fac.locator(".paths")).to_contain_text("scheme → sick_days")
+        expect(fac.locator(".paths")).to_contain_text("bike_lease → sick_days")
 
         # Sam votes on the arrow; the tally shows on both screens.
         par.mouse.click(*_centre(par, edge + " .edge-hit"))
-        expect(par.locator(".panel h3").first).to_have_text("Arrow scheme → sick_days")
+        expect(par.locator(".panel h3").first).to_have_text("Arrow bike_lease → sick_days")
         par.fill(".vote-reason", "cycling builds fitness")
         par.click(".vote-agree")
         expect(par.locator(".panel .tally")).to_have_text("1 agree · 0 disagree · 0 unsure")

@@ -69,7 +69,7 @@ def test_bundle_keeps_every_proposal_and_vote_with_name_time_and_reason(recorded
     assert all(isinstance(v["at"], float) and v["at"] > 0 for v in first["votes"])
     assert second["status"] == "rejected" and second["settled_by_name"] == "Fran (facilitator)"
     (arrow,) = bundle["arrow_votes"]
-    assert (arrow["from"], arrow["to"]) == ("promo_email", "scheme")
+    assert (arrow["from"], arrow["to"]) == ("voucher_draw", "bike_lease")
     assert arrow["votes"][0]["reason"] == "not everyone reads the e-mails"
 
 
@@ -77,7 +77,7 @@ def test_bundle_records_decisions_and_stage_history(recorded):
     _, bundle, _ = recorded
     summaries = [d["summary"] for d in bundle["decisions"]]
     assert "left disputed proposal #1: add commute_km → fitness" in summaries
-    assert "rejected proposal #2: remove department → scheme" in summaries
+    assert "rejected proposal #2: remove department → bike_lease" in summaries
     assert all(d["by"] == "Fran (facilitator)" for d in bundle["decisions"])
     assert [(s["from"], s["to"]) for s in bundle["stages"]] == [
         ("drafting", "debating"), ("debating", "agreed"), ("agreed", "estimation")]
@@ -197,7 +197,7 @@ BROKEN = [
     ("no graph", lambda b: {k: v for k, v in b.items() if k != "graph"}, "the bundle is missing 'graph'", "bundle_missing_part"),
     ("no workshop", lambda b: {k: v for k, v in b.items() if k != "workshop"}, "the bundle is missing 'workshop'", "bundle_missing_part"),
     ("no events", lambda b: {**b, "workshop": {"state": b["workshop"]["state"]}}, "missing workshop.'events'", "bundle_missing_part"),
-    ("cyclic graph", lambda b: {**b, "graph": {**b["graph"], "arrows": b["graph"]["arrows"] + [{"from": "sick_days", "to": "scheme"}]}},
+    ("cyclic graph", lambda b: {**b, "graph": {**b["graph"], "arrows": b["graph"]["arrows"] + [{"from": "sick_days", "to": "bike_lease"}]}},
      "the bundle's graph is not valid", "bundle_bad_graph"),
     ("edited graph", lambda b: {**b, "graph": {**b["graph"], "arrows": b["graph"]["arrows"][1:]}},
      "the bundle's graph and its workshop state disagree", "bundle_inconsistent"),

@@ -16,7 +16,7 @@ def _link_key(out: str) -> tuple[str, str]:
 
 
 def test_new_facilitator_key_replaces_the_old_one(client, tmp_path, capsys):
-    room = open_room(client, treatment="scheme", outcome="sick_days")
+    room = open_room(client, treatment="bike_lease", outcome="sick_days")
     ann = room.join("Ann")
     db = str(tmp_path / "arrowmoot.sqlite3")
 
@@ -40,7 +40,7 @@ def test_new_facilitator_key_replaces_the_old_one(client, tmp_path, capsys):
 
 
 def test_new_key_for_a_named_member(client, tmp_path, capsys):
-    room = open_room(client, treatment="scheme", outcome="sick_days")
+    room = open_room(client, treatment="bike_lease", outcome="sick_days")
     ann = room.join("Ann")
     db = str(tmp_path / "arrowmoot.sqlite3")
     assert main(["key", room.id, "--member", "ann", "--db", db]) == 0
@@ -55,7 +55,7 @@ def test_new_key_for_a_named_member(client, tmp_path, capsys):
 
 
 def test_bad_input_is_named(client, tmp_path, capsys):
-    room = open_room(client, treatment="scheme", outcome="sick_days")
+    room = open_room(client, treatment="bike_lease", outcome="sick_days")
     db = str(tmp_path / "arrowmoot.sqlite3")
     assert main(["key", "nosuchsession", "--db", db]) == 2
     assert "no session 'nosuchsession'" in capsys.readouterr().err

@@ -66,7 +66,7 @@ def test_profile_describes_columns(frame):
     frame = frame.copy()
     frame.loc[:9, "fitness"] = np.nan
     profile = {p["name"]: p for p in profile_table(frame)}
-    assert profile["scheme"]["binary"] and profile["scheme"]["kind"] == "binary"
+    assert profile["bike_lease"]["binary"] and profile["bike_lease"]["kind"] == "binary"
     assert profile["department"]["kind"] == "text" and profile["department"]["distinct"] == 3
     assert profile["fitness"]["missing"] == 10 and profile["fitness"]["missing_share"] == pytest.approx(0.02)
     assert profile["age"]["min"] >= 20 and profile["age"]["max"] <= 64
@@ -79,8 +79,8 @@ def test_all_missing_column_is_refused(diagram, frame):
 
 
 def test_constant_treatment_is_refused(diagram, frame):
-    frame["scheme"] = 1
-    with pytest.raises(E.ConstantColumn, match="treatment column 'scheme' takes the single value 1"):
+    frame["bike_lease"] = 1
+    with pytest.raises(E.ConstantColumn, match="treatment column 'bike_lease' takes the single value 1"):
         service.estimate(diagram, frame)
 
 
@@ -89,14 +89,14 @@ def test_perfectly_collinear_adjustment_columns_are_refused(frame):
     frame["fitness_copy"] = 2 * frame["fitness"] - frame["age"] + 3
     mapping = {c: c for c in frame.columns}
     with pytest.raises(E.CollinearColumns, match="perfectly collinear.*'age'.*'fitness'.*'fitness_copy'"):
-        build_design(frame, mapping, treatment="scheme", outcome="sick_days",
+        build_design(frame, mapping, treatment="bike_lease", outcome="sick_days",
                      adjust=["age", "fitness", "fitness_copy"])
 
 
 def test_constant_adjustment_column_is_refused(frame):
     frame["site"] = 4.0
     with pytest.raises(E.CollinearColumns, match="'site' takes a single value"):
-        build_design(frame, {c: c for c in frame.columns}, treatment="scheme", outcome="sick_days", adjust=["site"])
+        build_design(frame, {c: c for c in frame.columns}, treatment="bike_lease", outcome="sick_days", adjust=["site"])
 
 
 def test_text_in_a_numeric_column_is_refused_with_the_lines(diagram, frame):
@@ -111,14 +111,14 @@ def test_text_in_a_mostly_numeric_covariate_is_refused(frame):
     frame["age"] = frame["age"].astype(object)
     frame.loc[0, "age"] = "unknown"
     with pytest.raises(E.NonNumericColumn, match="'age'.*mostly numbers.*'unknown'"):
-        build_design(frame, {c: c for c in frame.columns}, treatment="scheme", outcome="sick_days", adjust=["age"])
+        build_design(frame, {c: c for c in frame.columns}, treatment="bike_lease", outcome="sick_days", adjust=["age"])
 
 
 def test_two_level_text_treatment_is_coded(frame):
-    frame["scheme"] = frame["scheme"].map({1: "yes", 0: "no"})
-    design = build_design(frame, {c: c for c in frame.columns}, treatment="scheme", outcome="sick_days")
-    assert design.t_binary and design.columns["scheme"].treated_level == "yes"
-    assert design.t.sum() == (frame["scheme"] == "yes").sum()
+    frame["bike_lease"] = frame["bike_lease"].map({1: "yes", 0: "no"})
+    design = build_design(frame, {c: c for c in frame.columns}, treatment="bike_lease", outcome="sick_days")
+    assert design.t_binary and design.columns["bike_lease"].treated_level == "yes"
+    assert design.t.sum() == (frame["bike_lease"] == "yes").sum()
 
 
 def test_missing_values_are_dropped_and_counted(diagram, frame):
@@ -130,14 +130,14 @@ def test_missing_values_are_dropped_and_counted(diagram, frame):
 def test_too_few_complete_rows_is_refused(frame):
     frame.loc[2:, "age"] = np.nan
     with pytest.raises(E.TooFewRows, match="only 2 row"):
-        build_design(frame, {c: c for c in frame.columns}, treatment="scheme", outcome="sick_days", adjust=["age"])
+        build_design(frame, {c: c for c in frame.columns}, treatment="bike_lease", outcome="sick_days", adjust=["age"])
 
 
 @pytest.mark.parametrize("mapping, match", [
-    ({"scheme": "nope"}, "not in the data"),
-    ({"nobody": "scheme"}, "not a variable of the diagram"),
-    ({"scheme": "age", "sick_days": "age"}, "mapped to both"),
-    ("scheme=age", "must be an object"),
+    ({"bike_lease": "nope"}, "not in the data"),
+    ({"nobody": "bike_lease"}, "not a variable of the diagram"),
+    ({"bike_lease": "age", "sick_days": "age"}, "mapped to both"),
+    ("bike_lease=age", "must be an object"),
 ])
 def test_bad_mappings_are_refused(diagram, frame, mapping, match):
     with pytest.raises(E.BadMapping, match=match):

@@ -25,7 +25,7 @@ def fixture_server(tmp_path):
 
 def _prepare_session(base: str) -> tuple[str, str]:
     doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
-    made = httpx.post(base + "/api/sessions", json={"title": "Cycle-to-work scheme", "name": "Fac", "document": doc}).json()
+    made = httpx.post(base + "/api/sessions", json={"title": "Bike leases and sick days", "name": "Fac", "document": doc}).json()
     sid, headers = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
 
     def send(command):
@@ -34,7 +34,7 @@ def _prepare_session(base: str) -> tuple[str, str]:
 
     # the room forgot that age shapes fitness: the data will contradict that
     send({"type": "delete_arrow", "from": "age", "to": "fitness"})
-    send({"type": "flag_arrow", "from": "fitness", "to": "scheme", "flag": "disputed"})
+    send({"type": "flag_arrow", "from": "fitness", "to": "bike_lease", "flag": "disputed"})
     send({"type": "set_stage", "stage": "agreed"})
     return sid, made["token"]
 
@@ -54,7 +54,7 @@ def test_estimation_panel_shows_results_and_charts(server):
         page.set_input_files("input[name='data-file']", str(SAMPLE / "cycle_to_work.csv"))
         page.click("button[data-action='upload']")
         page.wait_for_selector("text=Attached cycle_to_work.csv")
-        assert page.locator("select[data-variable='scheme']").input_value() == "scheme"
+        assert page.locator("select[data-variable='bike_lease']").input_value() == "bike_lease"
         assert page.locator("select[data-variable='health_consciousness']").input_value() == ""
 
         page.select_option("select[name='method']", "weighting")

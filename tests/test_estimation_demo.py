@@ -48,9 +48,9 @@ def test_default_estimate_recovers_true_effect(diagram, frame):
 
 def test_naive_and_over_adjusted_estimates_miss_true_effect(frame):
     mapping = {c: c for c in frame.columns}
-    naive = estimators.regression(build_design(frame, mapping, treatment="scheme", outcome="sick_days"))
+    naive = estimators.regression(build_design(frame, mapping, treatment="bike_lease", outcome="sick_days"))
     over = estimators.regression(build_design(
-        frame, mapping, treatment="scheme", outcome="sick_days",
+        frame, mapping, treatment="bike_lease", outcome="sick_days",
         adjust=["age", "commute_km", "department", "fitness", "active_minutes", "engagement_score"]))
     assert not _covers(naive, TRUTH)
     assert not _covers(over, TRUTH)
@@ -74,7 +74,7 @@ def test_without_fitness_falls_back_to_the_instrument(diagram, frame):
     mapping = {c: c for c in frame.columns if c in diagram.names and c != "fitness"}
     result = service.estimate(diagram, frame, mapping, checks=False)
     assert result["strategy"] == "instrument" and result["method"] == "two-stage"
-    assert result["instrument"] == "promo_email" and result["given"] == []
+    assert result["instrument"] == "voucher_draw" and result["given"] == []
     assert result["fixes"] == [["fitness"]]
     assert _covers(result, TRUTH)
     assert result["details"]["first_stage_f"] > 10
@@ -83,7 +83,7 @@ def test_without_fitness_falls_back_to_the_instrument(diagram, frame):
 def test_not_identified_names_the_variables_that_would_fix_it(diagram, frame):
     from app.estimation.errors import NotIdentified
 
-    mapping = {c: c for c in ("scheme", "sick_days", "age", "department", "commute_km")}
+    mapping = {c: c for c in ("bike_lease", "sick_days", "age", "department", "commute_km")}
     with pytest.raises(NotIdentified, match=r"\{fitness\}") as info:
         service.estimate(diagram, frame, mapping)
     assert info.value.item["fixes"] == [["fitness"]]
@@ -108,9 +108,9 @@ def test_sensitivity_for_demo_has_benchmarks_and_contour(diagram, frame):
 
 
 def test_disputed_arrow_changes_the_answer(diagram, frame):
-    out = service.disputed_estimates(diagram, frame, None, [{"from": "fitness", "to": "scheme"}])
+    out = service.disputed_estimates(diagram, frame, None, [{"from": "fitness", "to": "bike_lease"}])
     with_arrow, without = out["rows"]
-    assert with_arrow["choice"][0]["arrow"] == ["fitness", "scheme"] and without["choice"][0]["arrow"] is None
+    assert with_arrow["choice"][0]["arrow"] == ["fitness", "bike_lease"] and without["choice"][0]["arrow"] is None
     assert with_arrow["as_drawn"] and not without["as_drawn"]
     assert "fitness" in with_arrow["adjustment_set"] and "fitness" not in without["adjustment_set"]
     assert _covers(with_arrow, TRUTH) and not _covers(without, TRUTH)
@@ -127,7 +127,7 @@ def test_cli_prints_contract_fields(capsys):
     out = json.loads(captured.out)
     for key in ("estimate", "std_error", "ci", "method", "strategy", "instrument", "given", "n_used", "n_dropped", "checks"):
         assert key in out
-    assert out["method"] == "two-stage" and out["instrument"] == "promo_email"
+    assert out["method"] == "two-stage" and out["instrument"] == "voucher_draw"
     assert out["ci"][0] <= TRUTH <= out["ci"][1]
 
 
@@ -143,11 +143,11 @@ def test_cli_default_reports_adjustment_set(capsys):
 def test_cli_bad_mapping_exits_2_with_message():
     proc = subprocess.run(
         [sys.executable, "-m", "app.cli", "estimate", str(SAMPLE / "cycle_to_work.json"),
-         str(SAMPLE / "cycle_to_work.csv"), "--map", "scheme=joined"],
+         str(SAMPLE / "cycle_to_work.csv"), "--map", "bike_lease=leased"],
         capture_output=True, text=True, cwd=ROOT, timeout=120,
     )
     assert proc.returncode == 2
-    assert "'joined', which is not in the data" in proc.stderr
+    assert "'leased', which is not in the data" in proc.stderr
     assert proc.stdout == ""
 
 

@@ -34,7 +34,7 @@ def test_upload_profile_estimate_and_results_are_kept(room):
     r = client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
     assert r.status_code == 200, r.text
     data = r.json()["data"]
-    assert data["rows"] == 4000 and data["mapping"]["scheme"] == "scheme"
+    assert data["rows"] == 4000 and data["mapping"]["bike_lease"] == "bike_lease"
     assert "health_consciousness" not in data["mapping"]
     r = client.post(f"{base}/estimate", json={}, headers=headers)
     assert r.status_code == 200, r.text
@@ -58,7 +58,7 @@ def test_sensitivity_and_disputes_return_svg_charts(room):
     client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
     sens = client.post(f"{base}/sensitivity", json={}, headers=headers).json()["result"]
     assert "am-contour" in sens["charts"]["contour"]
-    disputes = client.post(f"{base}/disputes", json={"disputed": [{"from": "fitness", "to": "scheme"}]},
+    disputes = client.post(f"{base}/disputes", json={"disputed": [{"from": "fitness", "to": "bike_lease"}]},
                            headers=headers).json()["result"]
     assert len(disputes["rows"]) == 2 and "am-forest" in disputes["charts"]["forest"]
 
@@ -84,7 +84,7 @@ def test_upload_over_limit_is_refused_with_413(room):
 def test_mapping_refusal_and_unmeasured_fallback(room):
     client, base, headers, _ = room
     client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
-    bad = client.put(f"{base}/mapping", json={"mapping": {"scheme": "nope"}}, headers=headers)
+    bad = client.put(f"{base}/mapping", json={"mapping": {"bike_lease": "nope"}}, headers=headers)
     assert bad.status_code == 422 and "'nope', which is not in the data" in bad.json()["error"]
     mapping = client.get(base, headers=headers).json()["data"]["mapping"]
     mapping.pop("fitness")
@@ -147,13 +147,13 @@ def test_disputes_default_to_the_rooms_disputed_arrows(tmp_path):
         doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
         made = client.post("/api/sessions", json={"title": "demo", "name": "Fac", "document": doc}).json()
         sid, headers = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
-        for command in ({"type": "flag_arrow", "from": "fitness", "to": "scheme", "flag": "disputed"},
+        for command in ({"type": "flag_arrow", "from": "fitness", "to": "bike_lease", "flag": "disputed"},
                         {"type": "set_stage", "stage": "agreed"}):
             assert client.post(f"/api/sessions/{sid}/commands", json=command, headers=headers).status_code == 200
         base = f"/api/sessions/{sid}/estimation"
         client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
         result = client.post(f"{base}/disputes", json={}, headers=headers).json()["result"]
-        assert result["disputed"][0]["pair"] == ["fitness", "scheme"]
+        assert result["disputed"][0]["pair"] == ["bike_lease", "fitness"]  # the pair, in name order
         estimates = {r["label"]: r["estimate"] for r in result["rows"]}
         assert len(estimates) == 2 and len(set(round(v, 6) for v in estimates.values())) == 2
 
@@ -168,10 +168,10 @@ def test_disputes_default_to_the_rooms_disputed_arrows(tmp_path):
     ("post", "/stability", {"repeats": 5}),
     ("post", "/stability", {"repeats": "many"}),
     ("post", "/sensitivity", "text"),
-    ("post", "/disputes", {"disputed": "fitness->scheme"}),
-    ("post", "/disputes", {"disputed": [{"from": "ghost", "to": "scheme"}]}),
-    ("put", "/mapping", {"mapping": ["scheme"]}),
-    ("put", "/mapping", {"mapping": {"scheme": 3}}),
+    ("post", "/disputes", {"disputed": "fitness->bike_lease"}),
+    ("post", "/disputes", {"disputed": [{"from": "ghost", "to": "bike_lease"}]}),
+    ("put", "/mapping", {"mapping": ["bike_lease"]}),
+    ("put", "/mapping", {"mapping": {"bike_lease": 3}}),
 ])
 def test_bad_requests_get_one_error_shape_and_keep_the_session(room, method, path, body):
     client, base, headers, _ = room

@@ -53,14 +53,14 @@ def test_regression_matches_nist_longley_certified_coefficients(treatment):
 
 def test_regression_robust_se_matches_direct_statsmodels(demo_frame):
     """Same point estimate, HC1 standard error and interval as a direct statsmodels formula fit."""
-    design = build_design(demo_frame, _identity(demo_frame), treatment="scheme", outcome="sick_days",
+    design = build_design(demo_frame, _identity(demo_frame), treatment="bike_lease", outcome="sick_days",
                           adjust=["age", "commute_km", "department", "fitness"])
     ours = estimators.regression(design)
-    direct = sm.OLS.from_formula("sick_days ~ scheme + age + commute_km + C(department) + fitness",
+    direct = sm.OLS.from_formula("sick_days ~ bike_lease + age + commute_km + C(department) + fitness",
                                  demo_frame).fit(cov_type="HC1")
-    assert ours["estimate"] == pytest.approx(direct.params["scheme"], rel=1e-10)
-    assert ours["std_error"] == pytest.approx(direct.bse["scheme"], rel=1e-10)
-    assert ours["ci"] == pytest.approx(list(direct.conf_int().loc["scheme"]), rel=1e-10)
+    assert ours["estimate"] == pytest.approx(direct.params["bike_lease"], rel=1e-10)
+    assert ours["std_error"] == pytest.approx(direct.bse["bike_lease"], rel=1e-10)
+    assert ours["ci"] == pytest.approx(list(direct.conf_int().loc["bike_lease"]), rel=1e-10)
 
 
 # -- standardization ----------------------------------------------------------
@@ -206,7 +206,7 @@ def test_front_door_product_matches_statsmodels_and_recovers_truth():
 
 def test_fisher_z_partial_correlation_matches_ols_t_identity(demo_frame):
     """partial r = t / sqrt(t^2 + df) for the coefficient of x in OLS(y ~ x + given) (e.g. Greene)."""
-    given = demo_frame[["fitness", "scheme"]].to_numpy(float)
+    given = demo_frame[["fitness", "bike_lease"]].to_numpy(float)
     x, y = demo_frame["age"].to_numpy(float), demo_frame["active_minutes"].to_numpy(float)
     ours = fisher_z_test(x, y, given)
     fit = sm.OLS(y, sm.add_constant(np.column_stack([x, given]))).fit()
@@ -265,7 +265,7 @@ def test_chunked_regression_path_matches_statsmodels(frame_name, demo_frame):
     from app.estimation.estimators import _chunked_hc1
 
     if frame_name == "demo":
-        frame, treatment, others = demo_frame, "scheme", ["age", "commute_km", "department", "fitness"]
+        frame, treatment, others = demo_frame, "bike_lease", ["age", "commute_km", "department", "fitness"]
         outcome = "sick_days"
     else:
         frame = sm.datasets.longley.load_pandas().data

@@ -118,8 +118,8 @@ def test_benchmark_partial_r2_match_statsmodels_t_statistics():
     reg = service.sensitivity(diagram, frame)["regression"]
     age = next(b for b in reg["benchmarks"] if b["variable"] == "age" and b["k"] == 1)
     covs = pd.get_dummies(frame[["age", "commute_km", "department", "fitness"]], drop_first=True, dtype=float)
-    d_fit = sm.OLS(frame.scheme, sm.add_constant(covs)).fit()
-    y_fit = sm.OLS(frame.sick_days, sm.add_constant(pd.concat([frame.scheme, covs], axis=1))).fit()
+    d_fit = sm.OLS(frame.bike_lease, sm.add_constant(covs)).fit()
+    y_fit = sm.OLS(frame.sick_days, sm.add_constant(pd.concat([frame.bike_lease, covs], axis=1))).fit()
     assert age["covariate_r2_treatment"] == pytest.approx(S.partial_r2(d_fit.tvalues["age"], d_fit.df_resid), rel=1e-8)
     assert age["covariate_r2_outcome"] == pytest.approx(S.partial_r2(y_fit.tvalues["age"], y_fit.df_resid), rel=1e-8)
 

@@ -53,7 +53,7 @@ def test_export_round_trip_gives_the_same_diagram(workshop, fmt):
     assert canonical(back) == canonical(_expected(workshop))
     # positions, labels, descriptions, latent flags and the question all survive
     expected = {v["name"]: v for v in _expected(workshop)["variables"]}
-    assert back["treatment"] == ["scheme"] and back["outcome"] == ["sick_days"]
+    assert back["treatment"] == ["bike_lease"] and back["outcome"] == ["sick_days"]
     for v in back["variables"]:
         assert (v["x"], v["y"], v.get("label"), v.get("latent")) == (
             expected[v["name"]]["x"], expected[v["name"]]["y"], expected[v["name"]].get("label"),

@@ -63,7 +63,7 @@ def debate(client, tmp_path):
     start = stored(tmp_path, room.id)[0]
     ann = room.join("Ann")
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-    room.ok(ann, {"type": "propose", "kind": "add", "from": "promo_email", "to": "sick_days",
+    room.ok(ann, {"type": "propose", "kind": "add", "from": "voucher_draw", "to": "sick_days",
                   "reason": "the e-mail also mentions health"})
     return room, ann, start
 
@@ -118,7 +118,7 @@ def test_replayed_undo_is_applied_once(room, tmp_path):
     assert second["id"] == 2 and second["replayed"] is True
     assert second["revision"] == first["revision"]
     names = [v["name"] for v in room.state()["document"]["variables"]]
-    assert names == ["scheme", "sick_days", "age"]  # one undo: only 'fitness' went
+    assert names == ["bike_lease", "sick_days", "age"]  # one undo: only 'fitness' went
     events = assert_whole(tmp_path, room.id, start)
     assert [e["kind"] for e in events].count("undo") == 1
 
@@ -150,13 +150,13 @@ def test_key_is_per_member(debate, tmp_path):
 def test_replay_is_recognised_after_a_restart(tmp_path):
     url_of = "/api/sessions/{}/commands"
     with TestClient(make_app(tmp_path)) as client:
-        room = open_room(client, treatment="scheme", outcome="sick_days")
+        room = open_room(client, treatment="bike_lease", outcome="sick_days")
         start = stored(tmp_path, room.id)[0]
         h = {TOKEN_HEADER: room.facilitator, "Idempotency-Key": "draw-1"}
-        first = client.post(url_of.format(room.id), json={"type": "add_arrow", "from": "scheme",
+        first = client.post(url_of.format(room.id), json={"type": "add_arrow", "from": "bike_lease",
                                                           "to": "sick_days"}, headers=h).json()
     with TestClient(make_app(tmp_path)) as client:
-        again = client.post(url_of.format(room.id), json={"type": "add_arrow", "from": "scheme",
+        again = client.post(url_of.format(room.id), json={"type": "add_arrow", "from": "bike_lease",
                                                           "to": "sick_days"}, headers=h)
         assert again.status_code == 200 and again.json()["replayed"] is True
         assert again.json()["revision"] == first["revision"]
@@ -178,12 +178,12 @@ def test_a_bad_key_is_refused_and_changes_nothing(room, key):
 def test_duplicated_command_without_a_key_is_refused_by_the_rules(debate, tmp_path):
     """Without a key a resent proposal or settle meets the room's own rules, not a second copy."""
     room, ann, start = debate
-    again = room.send(ann, {"type": "propose", "kind": "add", "from": "promo_email", "to": "sick_days"})
+    again = room.send(ann, {"type": "propose", "kind": "add", "from": "voucher_draw", "to": "sick_days"})
     assert again.status_code == 409 and again.json()["code"] == "duplicate_proposal"
     room.ok(room.facilitator, {"type": "settle", "proposal": 1, "decision": "reject"})
     twice = room.send(room.facilitator, {"type": "settle", "proposal": 1, "decision": "accept"})
     assert twice.status_code == 409 and twice.json()["code"] == "already_settled"
-    assert {"from": "promo_email", "to": "sick_days"} not in room.state()["document"]["arrows"]
+    assert {"from": "voucher_draw", "to": "sick_days"} not in room.state()["document"]["arrows"]
     assert_whole(tmp_path, room.id, start)
 
 
@@ -216,7 +216,7 @@ def test_vote_on_a_proposal_settled_meanwhile_is_refused(debate, tmp_path):
 
 def test_two_facilitator_tabs_settle_and_undo_at_once(debate, tmp_path):
     room, ann, start = debate
-    for target in ("commute_km", "promo_email", "engagement_score"):
+    for target in ("commute_km", "voucher_draw", "engagement_score"):
         room.ok(ann, {"type": "propose", "kind": "add", "from": "age", "to": target})
     answers: dict[str, list] = {"a": [], "b": []}
     go = threading.Barrier(2, timeout=20)
@@ -263,7 +263,7 @@ def _answer(ws):
 def test_failure_inside_the_analysis_is_a_clear_message(room, monkeypatch):
     import app.web.live as live
 
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     before = room.state()
 
     def broken(_workshop):
@@ -310,7 +310,7 @@ def _overflow(f):
 
 
 def _no_variation(f):
-    f["scheme"] = 1
+    f["bike_lease"] = 1
 
 
 def _infinite(f):
@@ -341,7 +341,7 @@ def test_singular_weighting_fit_is_a_clear_message(agreed):
     """An outcome that is an exact copy of the treatment makes the weighting fit singular."""
     room, base, headers = agreed
     def copy(f):
-        f["sick_days"] = 3.0 * f["scheme"]
+        f["sick_days"] = 1.0 * f["bike_lease"]
     room.client.put(f"{base}/data?name=copy.csv", content=_data(copy), headers=headers)
     before = room.state()
     r = room.client.post(f"{base}/estimate", json={"method": "weighting"}, headers=headers)

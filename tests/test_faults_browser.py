@@ -29,7 +29,7 @@ def test_page_reconnects_after_sigkill_and_keeps_every_acknowledged_edit(tmp_pat
     server.start()
     try:
         made = httpx.post(server.base + "/api/sessions", json={
-            "title": "Cycle-to-work scheme", "treatment": "scheme", "outcome": "sick_days"}).json()
+            "title": "Bike leases and sick days", "treatment": "bike_lease", "outcome": "sick_days"}).json()
         sid, key = made["session_id"], made["token"]
         with sync_playwright() as p:
             browser = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)

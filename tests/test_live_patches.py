@@ -106,7 +106,7 @@ def debate(room):
     """A room in the debating stage: a small diagram, two participants."""
     for name in ("age", "fitness", "commute"):
         room.ok(room.facilitator, {"type": "add_variable", "name": name})
-    for a, b in (("age", "scheme"), ("age", "sick_days"), ("fitness", "sick_days"), ("scheme", "fitness")):
+    for a, b in (("age", "bike_lease"), ("age", "sick_days"), ("fitness", "sick_days"), ("bike_lease", "fitness")):
         room.ok(room.facilitator, {"type": "add_arrow", "from": a, "to": b})
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
     room.ann, room.bob = room.join("Ann"), room.join("Bob")
@@ -121,12 +121,12 @@ def test_each_frequent_change_arrives_as_a_patch_equal_to_the_full_state(debate)
         (bob, {"type": "vote", "proposal": 1, "choice": "agree", "reason": "seen it"}),
         (ann, {"type": "vote", "proposal": 1, "choice": "disagree"}),
         (ann, {"type": "withdraw_vote", "proposal": 1}),
-        (bob, {"type": "vote", "from": "age", "to": "scheme", "choice": "disagree", "reason": "no"}),
-        (ann, {"type": "vote", "from": "age", "to": "scheme", "choice": "unsure"}),
-        (bob, {"type": "withdraw_vote", "from": "age", "to": "scheme"}),
-        (bob, {"type": "propose", "kind": "reverse", "from": "scheme", "to": "fitness"}),
+        (bob, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "disagree", "reason": "no"}),
+        (ann, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "unsure"}),
+        (bob, {"type": "withdraw_vote", "from": "age", "to": "bike_lease"}),
+        (bob, {"type": "propose", "kind": "reverse", "from": "bike_lease", "to": "fitness"}),
         (ann, {"type": "propose", "kind": "remove", "from": "age", "to": "sick_days"}),
-        (bob, {"type": "propose", "kind": "add", "from": "commute", "to": "scheme"}),
+        (bob, {"type": "propose", "kind": "add", "from": "commute", "to": "bike_lease"}),
         (ann, {"type": "propose", "kind": "add", "from": "age", "to": "commute"}),
         (ann, {"type": "vote", "proposal": 2, "choice": "agree"}),
         (fac, {"type": "settle", "proposal": 1, "decision": "accept"}),
@@ -138,7 +138,7 @@ def test_each_frequent_change_arrives_as_a_patch_equal_to_the_full_state(debate)
         (bob, {"type": "add_variable", "name": "weather", "latent": True, "x": 300, "y": 80}),
         (ann, {"type": "add_variable", "name": "distance", "label": "Distance to work"}),
         (bob, {"type": "move_variable", "name": "age", "x": 42, "y": 24}),
-        (fac, {"type": "flag_arrow", "from": "fitness", "to": "scheme", "flag": "disputed"}),
+        (fac, {"type": "flag_arrow", "from": "fitness", "to": "bike_lease", "flag": "disputed"}),
         (fac, {"type": "flag_arrow", "from": "commute", "to": "sick_days", "flag": "settled"}),
         (fac, {"type": "add_arrow", "from": "weather", "to": "commute"}),
         (fac, {"type": "reverse_arrow", "from": "weather", "to": "commute"}),
@@ -152,7 +152,7 @@ def test_each_frequent_change_arrives_as_a_patch_equal_to_the_full_state(debate)
             check_patch(seen["push"], seen["before"], seen["after"])
             kinds.add(command["type"])
         # the reversal kept the arrow's place; the accepted add arrived with its proposal
-        assert ("fitness", "scheme") in _arrow_pairs(seen["after"])
+        assert ("fitness", "bike_lease") in _arrow_pairs(seen["after"])
     assert kinds >= {"vote", "withdraw_vote", "propose", "settle", "withdraw_proposal",
                      "add_variable", "move_variable", "flag_arrow"}
 
@@ -175,21 +175,21 @@ def test_a_vote_against_an_arrow_puts_it_in_dispute_in_the_patch(debate):
     room = debate
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         watcher = Watcher(room, ws)
-        seen = watcher.change(room.bob, {"type": "vote", "from": "age", "to": "scheme",
+        seen = watcher.change(room.bob, {"type": "vote", "from": "age", "to": "bike_lease",
                                          "choice": "disagree"})
         patch = seen["push"]
         check_patch(patch, seen["before"], seen["after"])
-        assert [item["pair"] for item in patch["disputed"]] == [["age", "scheme"]]
+        assert [item["pair"] for item in patch["disputed"]] == [["age", "bike_lease"]]
         assert patch["arrow_notes"][0]["tally"]["disagree"] == 1
 
 
 def test_withdrawing_a_vote_from_an_arrow_no_longer_drawn_changes_nothing_shown(debate):
     room = debate
-    room.ok(room.bob, {"type": "vote", "from": "age", "to": "scheme", "choice": "agree"})
-    room.ok(room.facilitator, {"type": "delete_arrow", "from": "age", "to": "scheme"})
+    room.ok(room.bob, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "agree"})
+    room.ok(room.facilitator, {"type": "delete_arrow", "from": "age", "to": "bike_lease"})
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         watcher = Watcher(room, ws)
-        seen = watcher.change(room.bob, {"type": "withdraw_vote", "from": "age", "to": "scheme"})
+        seen = watcher.change(room.bob, {"type": "withdraw_vote", "from": "age", "to": "bike_lease"})
         check_patch(seen["push"], seen["before"], seen["after"])
         assert seen["push"]["arrow_notes"] == []
 
@@ -199,11 +199,11 @@ def test_withdrawing_a_vote_from_an_arrow_no_longer_drawn_changes_nothing_shown(
     {"type": "undo"},
     {"type": "rename_session", "title": "Renamed"},
     {"type": "update_variable", "name": "age", "label": "Age in years"},
-    {"type": "set_question", "treatment": ["scheme"], "outcome": ["fitness"]},
+    {"type": "set_question", "treatment": ["bike_lease"], "outcome": ["fitness"]},
 ])
 def test_rare_changes_still_send_the_full_state(debate, command):
     room = debate
-    room.ok(room.facilitator, {"type": "flag_arrow", "from": "age", "to": "scheme", "flag": "settled"})
+    room.ok(room.facilitator, {"type": "flag_arrow", "from": "age", "to": "bike_lease", "flag": "settled"})
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         watcher = Watcher(room, ws)
         seen = watcher.change(room.facilitator, command)
@@ -224,12 +224,12 @@ def test_a_patch_that_cannot_be_built_falls_back_to_the_full_state(debate, monke
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws, \
             caplog.at_level(logging.ERROR, logger="arrowmoot"):
         watcher = Watcher(room, ws)
-        seen = watcher.change(room.bob, {"type": "vote", "from": "age", "to": "scheme",
+        seen = watcher.change(room.bob, {"type": "vote", "from": "age", "to": "bike_lease",
                                          "choice": "agree"})
         assert seen["push"]["type"] == "state"
         assert seen["push"]["state"]["disputed"] == seen["after"]["disputed"]
         notes = {(a["from"], a["to"]): a for a in seen["push"]["state"]["arrows"]}
-        assert notes[("age", "scheme")]["tally"]["agree"] == 1
+        assert notes[("age", "bike_lease")]["tally"]["agree"] == 1
     assert "could not build the patch for a vote" in caplog.text
 
 
@@ -238,9 +238,9 @@ def test_no_patch_for_an_event_the_workshop_has_moved_past(debate):
     from app.workshop.views import change_patch
 
     room = debate
-    room.ok(room.bob, {"type": "vote", "from": "age", "to": "scheme", "choice": "agree"})
+    room.ok(room.bob, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "agree"})
     w = room.client.app.state.hub.workshop(room.id)
     vote = w.log[-1]
     assert change_patch(w, vote)["arrow_notes"][0]["tally"]["agree"] == 1
-    room.ok(room.ann, {"type": "vote", "from": "age", "to": "scheme", "choice": "agree"})
+    room.ok(room.ann, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "agree"})
     assert change_patch(w, vote) is None

@@ -9,7 +9,7 @@ def test_change_that_fails_to_store_leaves_the_session_as_stored(room, monkeypat
     hub = room.client.app.state.hub
     ann = room.join("Ann")
     room.ok(room.facilitator, {"type": "add_variable", "name": "age"})
-    room.ok(ann, {"type": "add_arrow", "from": "age", "to": "scheme"})
+    room.ok(ann, {"type": "add_arrow", "from": "age", "to": "bike_lease"})
     before = room.state()
     real = hub.store.save_change
     calls = []

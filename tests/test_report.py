@@ -91,18 +91,18 @@ def test_report_is_self_contained(reported):
 
 
 def test_report_states_the_estimate_statsmodels_gives(reported):
-    """OLS of sick_days on scheme and the adjustment set with HC1 errors, fitted here."""
+    """OLS of sick_days on bike_lease and the adjustment set with HC1 errors, fitted here."""
     _, response, bundle = reported
     est = bundle["estimation"]["estimate"]
     frame = pd.read_csv(SAMPLE / "cycle_to_work.csv")
-    design = pd.get_dummies(frame[["scheme", "age", "commute_km", "department", "fitness"]],
+    design = pd.get_dummies(frame[["bike_lease", "age", "commute_km", "department", "fitness"]],
                             columns=["department"], drop_first=True, dtype=float)
     fit = sm.OLS(frame["sick_days"], sm.add_constant(design)).fit(cov_type="HC1")
-    low, high = fit.conf_int().loc["scheme"]
-    assert est["estimate"] == pytest.approx(fit.params["scheme"], rel=1e-8)
+    low, high = fit.conf_int().loc["bike_lease"]
+    assert est["estimate"] == pytest.approx(fit.params["bike_lease"], rel=1e-8)
     text = parse(response.text).full_text
-    assert f"{num(fit.params['scheme'])} [{num(low)}, {num(high)}]" in text
-    assert f"about {num(abs(fit.params['scheme']))} lower on average" in text
+    assert f"{num(fit.params['bike_lease'])} [{num(low)}, {num(high)}]" in text
+    assert f"about {num(abs(fit.params['bike_lease']))} lower on average" in text
     assert f"runs from {num(low)} to {num(high)}" in text
 
 
@@ -110,8 +110,8 @@ def test_report_explains_the_adjustment_by_the_paths_it_blocks(reported):
     _, response, _ = reported
     text = parse(response.text).full_text
     assert "Adjustment set: age, commute_km, department and fitness" in text
-    assert "scheme ← fitness → sick_days" in text and "blocked at fitness: adjusted for" in text
-    assert "Paths closed already, at a collider" in text and "scheme → engagement_score ← sick_days" in text
+    assert "bike_lease ← fitness → sick_days" in text and "blocked at fitness: adjusted for" in text
+    assert "Paths closed already, at a collider" in text and "bike_lease → engagement_score ← sick_days" in text
     assert "Causal paths, left open on purpose (2)" in text
 
 
@@ -131,7 +131,7 @@ def test_report_carries_the_decision_record(reported):
     assert "#1 add commute_km → fitness" in text and "disputed" in text
     assert "proposed by Pat (occupational health)" in text
     assert "“fitness was measured first”" in text and "“field staff cannot cycle”" in text
-    assert "rejected proposal #2: remove department → scheme" in text
+    assert "rejected proposal #2: remove department → bike_lease" in text
     assert "moved the session from debating to agreed" in text
 
 
@@ -204,7 +204,7 @@ def test_markup_in_names_shows_as_text(tmp_path):
 def test_diagram_svg_follows_the_visual_language():
     doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
     diagram = parse_document(doc)
-    svg = diagram_svg(diagram, adjusted=["age", "fitness"], disputed=[("fitness", "scheme")],
+    svg = diagram_svg(diagram, adjusted=["age", "fitness"], disputed=[("fitness", "bike_lease")],
                       proposed=[("commute_km", "fitness")])
     root = ET.fromstring(svg)
     lines = [el for el in root.iter(SVG_NS + "line") if "am-arrow" in (el.get("class") or "")]
@@ -241,11 +241,11 @@ def test_diagram_boxes_do_not_overlap():
 
 def test_plain_words_say_when_the_interval_includes_zero():
     diagram = parse_document(json.loads((SAMPLE / "cycle_to_work.json").read_text()))
-    est = {"estimate": 0.4, "ci": [-0.2, 1.0], "treatment": "scheme", "outcome": "sick_days", "n_used": 120,
-           "columns": {"scheme": {"kind": "binary"}}}
+    est = {"estimate": 0.4, "ci": [-0.2, 1.0], "treatment": "bike_lease", "outcome": "sick_days", "n_used": 120,
+           "columns": {"bike_lease": {"kind": "binary"}}}
     text = plain_estimate(est, diagram)
     assert "about 0.4 higher on average" in text and "includes zero" in text
-    assert "comparing scheme = 1 with scheme = 0" in text
+    assert "comparing bike_lease = 1 with bike_lease = 0" in text
 
 
 def _cli(argv):
@@ -271,7 +271,7 @@ def test_cli_report_from_a_bundle_file(reported, tmp_path, capsys):
 
 
 def test_report_of_an_instrument_estimate_says_why_nothing_was_adjusted(tmp_path):
-    """With fitness unmeasured no adjustment set works; promo_email is the demo's instrument."""
+    """With fitness unmeasured no adjustment set works; voucher_draw is the demo's instrument."""
     application = make_app(tmp_path)
     with TestClient(application) as client:
         workshop = build_workshop(client, estimate=False)
@@ -283,7 +283,7 @@ def test_report_of_an_instrument_estimate_says_why_nothing_was_adjusted(tmp_path
         assert client.post(f"{base}/estimate", json={}, headers=head).json()["result"]["strategy"] == "instrument"
         html = workshop.get("/report").text
     text = parse(html).full_text
-    assert "No adjustment set works with the measured variables, so the effect was estimated with promo_email as an instrument" in text
+    assert "No adjustment set works with the measured variables, so the effect was estimated with voucher_draw as an instrument" in text
     assert "{fitness}" in text and "Adjustment set:" not in text
     assert "Baseline fitness (fitness)" not in text or "no column of the data measures it" in text
     root = ET.fromstring(re.search(r'<svg[^>]*class="am-diagram".*?</svg>', html, re.S).group(0))
@@ -305,4 +305,4 @@ def test_diagram_labels_pending_proposals_and_tallies_as_the_canvas_does(reporte
     badges = [t.text for g in root.iter(SVG_NS + "g") if g.get("class") == "am-badge" for t in g.iter(SVG_NS + "text")]
     assert "#1 add? +1 −1 ?0" in badges
     assert "disputed  #2 drop? +0 −1 ?0" in badges  # the drawn arrow is now under a pending removal
-    assert "+0 −0 ?1" in badges  # the vote on promo_email → scheme
+    assert "+0 −0 ?1" in badges  # the vote on voucher_draw → bike_lease

@@ -40,7 +40,7 @@ def _ok(response):
 
 
 def build_workshop(client: TestClient, *, document: dict | None = None, estimate: bool = True,
-                   title: str = "Cycle-to-work scheme and sick days") -> Workshop:
+                   title: str = "Bike leases and sick days and sick days") -> Workshop:
     doc = document or json.loads((SAMPLE / "cycle_to_work.json").read_text())
     made = _ok(client.post("/api/sessions", json={"title": title, "name": "Fran (facilitator)",
                                                   "document": doc}))
@@ -55,17 +55,17 @@ def build_workshop(client: TestClient, *, document: dict | None = None, estimate
     send(fac, {"type": "grant_role", "member": joined_a["member"]["id"], "role": "analyst"})
     send(fac, {"type": "set_stage", "stage": "debating"})
     names = [v["name"] for v in doc["variables"]]
-    if {"commute_km", "fitness", "promo_email", "department"} <= set(names):
+    if {"commute_km", "fitness", "voucher_draw", "department"} <= set(names):
         p1 = send(pat, {"type": "propose", "kind": "add", "from": "commute_km", "to": "fitness",
                         "reason": "People with long commutes have less time to exercise"})["event"]["proposal"]
         send(ana, {"type": "vote", "proposal": p1, "choice": "agree", "reason": "matches the survey"})
         send(fac, {"type": "vote", "proposal": p1, "choice": "disagree", "reason": "fitness was measured first"})
         send(fac, {"type": "settle", "proposal": p1, "decision": "dispute"})
-        p2 = send(ana, {"type": "propose", "kind": "remove", "from": "department", "to": "scheme",
+        p2 = send(ana, {"type": "propose", "kind": "remove", "from": "department", "to": "bike_lease",
                         "reason": "Every department got the same offer"})["event"]["proposal"]
         send(pat, {"type": "vote", "proposal": p2, "choice": "disagree", "reason": "field staff cannot cycle"})
         send(fac, {"type": "settle", "proposal": p2, "decision": "reject"})
-        send(pat, {"type": "vote", "from": "promo_email", "to": "scheme", "choice": "unsure",
+        send(pat, {"type": "vote", "from": "voucher_draw", "to": "bike_lease", "choice": "unsure",
                    "reason": "not everyone reads the e-mails"})
     send(fac, {"type": "set_stage", "stage": "agreed"})
     send(fac, {"type": "set_stage", "stage": "estimation"})

@@ -24,7 +24,7 @@ def debate(client):
     room = open_room(client, document=DOC)
     ann = room.join("Ann")
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-    room.ok(ann, {"type": "propose", "kind": "add", "from": "promo_email", "to": "sick_days"})
+    room.ok(ann, {"type": "propose", "kind": "add", "from": "voucher_draw", "to": "sick_days"})
     return room, ann
 
 
@@ -35,7 +35,7 @@ FACILITATOR_ONLY = [
     ({"type": "settle", "proposal": 1, "decision": "accept"}, "facilitator_only"),
     ({"type": "undo"}, "facilitator_only"),
     ({"type": "grant_role", "member": "SELF", "role": "analyst"}, "facilitator_only"),
-    ({"type": "flag_arrow", "from": "age", "to": "scheme", "flag": "settled"}, "facilitator_only"),
+    ({"type": "flag_arrow", "from": "age", "to": "bike_lease", "flag": "settled"}, "facilitator_only"),
     ({"type": "rename_session", "title": "mine now"}, "facilitator_only"),
     ({"type": "set_question", "treatment": "age", "outcome": "sick_days"}, "facilitator_only"),
 ]
@@ -104,7 +104,7 @@ def test_analyst_role_opens_the_upload_but_not_the_stages(agreed):
 @pytest.mark.parametrize("path", ["", "/history", "/analysis", "/document", "/estimation"])
 def test_participant_cannot_read_another_session(client, debate, path):
     room, ann = debate
-    other = open_room(client, title="Other room", treatment="scheme", outcome="sick_days")
+    other = open_room(client, title="Other room", treatment="bike_lease", outcome="sick_days")
     r = client.get(f"/api/sessions/{other.id}{path}", headers={TOKEN_HEADER: ann})
     assert r.status_code == 403 and r.json()["code"] == "wrong_session"
     assert "Other room" not in r.text
@@ -179,7 +179,7 @@ def test_join_limiter_forgets_quiet_addresses():
 # -- keys --------------------------------------------------------------------------------
 def test_keys_are_stored_only_as_digests(tmp_path):
     with TestClient(make_app(tmp_path)) as client:
-        room = open_room(client, treatment="scheme", outcome="sick_days")
+        room = open_room(client, treatment="bike_lease", outcome="sick_days")
         ann = room.join("Ann")
         room.ok(ann, {"type": "add_variable", "name": "age"})
         store = client.app.state.store

@@ -21,7 +21,7 @@ pytestmark = [
     pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian chromium is not installed"),
 ]
 
-TITLE = '<img src=x onerror="window.__pwned=1">Cycle scheme'
+TITLE = '<img src=x onerror="window.__pwned=1">Bike leases'
 VAR = '<svg onload="window.__pwned=2">'          # a variable name (64 characters at most)
 LABEL = '<script>window.__pwned=3</script>Commute'
 PERSON = '<b onmouseover=alert(4)>Eve</b>'        # a member name (40 at most)
@@ -40,12 +40,12 @@ def _room(base: str) -> dict:
     """A debating session whose every text field carries markup."""
     http = httpx.Client(base_url=base, timeout=30)
     doc = {"format": "arrowmoot-graph", "version": 1,
-           "variables": [{"name": "scheme", "x": 160, "y": 300}, {"name": "sick_days", "x": 700, "y": 300},
+           "variables": [{"name": "bike_lease", "x": 160, "y": 300}, {"name": "sick_days", "x": 700, "y": 300},
                          {"name": VAR, "label": LABEL, "description": FORMULA, "x": 430, "y": 140},
                          {"name": FORMULA, "x": 430, "y": 460}],
-           "arrows": [{"from": VAR, "to": "scheme"}, {"from": VAR, "to": "sick_days"},
-                      {"from": "scheme", "to": "sick_days"}, {"from": FORMULA, "to": "scheme"}],
-           "treatment": "scheme", "outcome": "sick_days"}
+           "arrows": [{"from": VAR, "to": "bike_lease"}, {"from": VAR, "to": "sick_days"},
+                      {"from": "bike_lease", "to": "sick_days"}, {"from": FORMULA, "to": "bike_lease"}],
+           "treatment": "bike_lease", "outcome": "sick_days"}
     made = http.post("/api/sessions", json={"title": TITLE, "name": PERSON, "document": doc}).json()
     sid, fac = made["session_id"], made["token"]
     eve = http.post("/api/join", json={"code": made["join_code"], "name": PERSON[:40]}).json()["token"]
@@ -57,8 +57,8 @@ def _room(base: str) -> dict:
     ok(fac, {"type": "set_stage", "stage": "debating"})
     ok(eve, {"type": "propose", "kind": "add", "from": FORMULA, "to": "sick_days", "reason": REASON})
     ok(eve, {"type": "vote", "proposal": 1, "choice": "agree", "reason": VOTE})
-    ok(eve, {"type": "vote", "from": VAR, "to": "scheme", "choice": "disagree", "reason": VOTE})
-    ok(fac, {"type": "flag_arrow", "from": VAR, "to": "scheme", "flag": "disputed"})
+    ok(eve, {"type": "vote", "from": VAR, "to": "bike_lease", "choice": "disagree", "reason": VOTE})
+    ok(fac, {"type": "flag_arrow", "from": VAR, "to": "bike_lease", "flag": "disputed"})
     return {"sid": sid, "fac": fac, "eve": eve, "http": http}
 
 
@@ -115,7 +115,7 @@ def test_markup_is_inert_everywhere_people_read_it(server):
         # The disputed arrow's own panel lists Eve's vote and its reason, as text.
         edges = page.locator(".edge")
         index = next(i for i in range(edges.count())
-                     if json.loads(edges.nth(i).get_attribute("data-key") or "[]") == [VAR, "scheme"])
+                     if json.loads(edges.nth(i).get_attribute("data-key") or "[]") == [VAR, "bike_lease"])
         box = edges.nth(index).locator(".edge-hit").bounding_box()
         page.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
         panel = page.get_by_role("tabpanel")
@@ -134,7 +134,7 @@ def test_markup_is_inert_everywhere_people_read_it(server):
         r = report.goto(f"{server}/api/sessions/{room['sid']}/report")
         assert r.status == 200
         body = report.locator("body").inner_text()
-        assert "Cycle scheme" in body and "<img" in body  # the title's markup is shown, not run
+        assert "Bike leases" in body and "<img" in body  # the title's markup is shown, not run
         assert VAR in body or "&lt;svg" in report.content()
         _no_injection(report)
         report.screenshot(path=str(ARTIFACTS / "markup_report.png"), full_page=False)

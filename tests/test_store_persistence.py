@@ -12,14 +12,14 @@ from conftest import TOKEN_HEADER, Room, make_app, open_room
 
 def test_restart_brings_back_sessions_edits_and_votes(tmp_path):
     with TestClient(make_app(tmp_path)) as client:
-        room = open_room(client, treatment="scheme", outcome="sick_days")
+        room = open_room(client, treatment="bike_lease", outcome="sick_days")
         other = open_room(client, title="Second room")
         ann = room.join("Ann")
-        room.ok(ann, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
-        room.ok(ann, {"type": "vote", "from": "scheme", "to": "sick_days", "choice": "disagree",
+        room.ok(ann, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
+        room.ok(ann, {"type": "vote", "from": "bike_lease", "to": "sick_days", "choice": "disagree",
                       "reason": "the effect may run the other way"})
         room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-        room.ok(ann, {"type": "propose", "kind": "reverse", "from": "scheme", "to": "sick_days"})
+        room.ok(ann, {"type": "propose", "kind": "reverse", "from": "bike_lease", "to": "sick_days"})
         room.ok(room.facilitator, {"type": "vote", "proposal": 1, "choice": "unsure"})
         before = room.state()
         history_before = client.get(f"/api/sessions/{room.id}/history",
@@ -72,16 +72,16 @@ def test_attachments_are_per_session(tmp_path):
     store = app.state.store
     with TestClient(app) as client:
         a, b = open_room(client), open_room(client, title="B")
-    store.put_attachment(a.id, "mapping", {"scheme": "joined"})
-    assert store.get_attachment(a.id, "mapping") == {"scheme": "joined"}
+    store.put_attachment(a.id, "mapping", {"bike_lease": "joined"})
+    assert store.get_attachment(a.id, "mapping") == {"bike_lease": "joined"}
     assert store.get_attachment(b.id, "mapping") is None
     assert store.session_data_dir(a.id).is_dir()
 
 
 def test_undo_still_works_after_a_restart(tmp_path):
     with TestClient(make_app(tmp_path)) as client:
-        room = open_room(client, treatment="scheme", outcome="sick_days")
-        room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+        room = open_room(client, treatment="bike_lease", outcome="sick_days")
+        room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     with TestClient(make_app(tmp_path)) as client:
         again = Room(client, {"session_id": room.id, "join_code": room.join_code,
                               "token": room.facilitator})

@@ -33,13 +33,13 @@ def test_edit_reaches_every_client(room):
         _, start = hello(fac_ws, room.facilitator)
         hello(ann_ws, ann)
         ann_ws.send_json({"type": "command", "id": 7,
-                          "command": {"type": "add_arrow", "from": "scheme", "to": "sick_days"}})
+                          "command": {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"}})
         new_rev = start["revision"] + 1
         for ws in (fac_ws, ann_ws):
             # a drawn arrow travels as a patch against the previous revision
             patch = receive_until(ws, "patch", lambda m: m["revision"] == new_rev)
             assert patch["base"] == start["revision"]
-            assert patch["arrows_added"] == [["scheme", "sick_days"]] and patch["arrows_removed"] == []
+            assert patch["arrows_added"] == [["bike_lease", "sick_days"]] and patch["arrows_removed"] == []
         ack = receive_until(ann_ws, "ack")
         assert ack["id"] == 7 and ack["revision"] == new_rev
         analysis = receive_until(fac_ws, "analysis", lambda m: m["revision"] == new_rev)
@@ -50,7 +50,7 @@ def test_refused_command_gets_error_with_its_id(room):
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         hello(ws, room.facilitator)
         ws.send_json({"type": "command", "id": "a1",
-                      "command": {"type": "add_arrow", "from": "scheme", "to": "ghost"}})
+                      "command": {"type": "add_arrow", "from": "bike_lease", "to": "ghost"}})
         error = receive_until(ws, "error")
         assert error["id"] == "a1" and error["status"] == 404
         assert error["error"] == "there is no variable 'ghost'"
@@ -70,7 +70,7 @@ def test_reconnect_resyncs_from_last_revision(room):
         _, state = hello(ws, room.facilitator)
         seen = state["revision"]
     room.ok(room.facilitator, {"type": "add_variable", "name": "age"})
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "age", "to": "scheme"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "age", "to": "bike_lease"})
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         _, state = hello(ws, room.facilitator, revision=seen)
         assert state["revision"] == seen + 2
@@ -103,7 +103,7 @@ def test_simultaneous_edits_all_land(room):
 
 
 def test_analysis_endpoint_answers_for_the_current_revision(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     answer = room.analysis()
     assert answer["revision"] == room.state()["revision"]
     assert answer["analysis"]["identifiable"] is True
@@ -137,16 +137,16 @@ def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_docu
 
 def test_arrow_patches_and_full_states(room):
     """Reversing and removing arrows travel as patches; rare changes as full states."""
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     with room.client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
         _, start = hello(ws, room.facilitator)
         rev = start["revision"]
-        room.ok(room.facilitator, {"type": "reverse_arrow", "from": "scheme", "to": "sick_days"})
+        room.ok(room.facilitator, {"type": "reverse_arrow", "from": "bike_lease", "to": "sick_days"})
         patch = receive_until(ws, "patch", lambda m: m["revision"] == rev + 1)
-        assert patch["arrows_removed"] == [["scheme", "sick_days"]]
-        assert patch["arrows_added"] == [["sick_days", "scheme"]]
+        assert patch["arrows_removed"] == [["bike_lease", "sick_days"]]
+        assert patch["arrows_added"] == [["sick_days", "bike_lease"]]
         assert patch["can_undo"] is True
         room.ok(room.facilitator, {"type": "rename_session", "title": "Renamed"})
         state = receive_until(ws, "state", lambda m: m["revision"] == rev + 2)
-        assert state["state"]["document"]["arrows"] == [{"from": "sick_days", "to": "scheme"}]
+        assert state["state"]["document"]["arrows"] == [{"from": "sick_days", "to": "bike_lease"}]
         assert "members" not in state["state"]  # unchanged, so not resent

@@ -10,8 +10,8 @@ from conftest import TOKEN_HEADER, open_room
 def test_create_session_adds_question_variables(room):
     state = room.state()
     names = [v["name"] for v in state["document"]["variables"]]
-    assert names == ["scheme", "sick_days"]
-    assert state["document"]["treatment"] == ["scheme"]
+    assert names == ["bike_lease", "sick_days"]
+    assert state["document"]["treatment"] == ["bike_lease"]
     assert state["session"]["stage"] == "drafting"
     assert len(room.join_code) == 6
 
@@ -59,35 +59,35 @@ def test_join_code_is_case_and_space_tolerant(room):
 def test_participant_edits_while_drafting(room):
     ann = room.join("Ann")
     room.ok(ann, {"type": "add_variable", "name": "age", "x": 100, "y": 50})
-    room.ok(ann, {"type": "add_arrow", "from": "age", "to": "scheme"})
+    room.ok(ann, {"type": "add_arrow", "from": "age", "to": "bike_lease"})
     state = room.state(ann)
-    assert {"from": "age", "to": "scheme"} in state["document"]["arrows"]
+    assert {"from": "age", "to": "bike_lease"} in state["document"]["arrows"]
     assert state["recent"][-1]["actor_name"] == "Ann"
 
 
 def test_cycle_is_refused_with_the_cycle_named_and_nothing_lost(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     before = room.state()
-    r = room.send(room.facilitator, {"type": "add_arrow", "from": "sick_days", "to": "scheme"})
+    r = room.send(room.facilitator, {"type": "add_arrow", "from": "sick_days", "to": "bike_lease"})
     assert r.status_code == 422
     body = r.json()
     assert body["code"] == "cycle"
-    assert "sick_days -> scheme -> sick_days" in body["error"] or "scheme -> sick_days -> scheme" in body["error"]
+    assert "sick_days -> bike_lease -> sick_days" in body["error"] or "bike_lease -> sick_days -> bike_lease" in body["error"]
     after = room.state()
     assert after["document"] == before["document"]
     assert after["revision"] == before["revision"]
 
 
 @pytest.mark.parametrize("command, status, code", [
-    ({"type": "add_arrow", "from": "scheme", "to": "nobody"}, 404, "unknown_variable"),
-    ({"type": "add_arrow", "from": "scheme", "to": "scheme"}, 422, "self_loop"),
-    ({"type": "add_variable", "name": "scheme"}, 409, "duplicate_variable"),
+    ({"type": "add_arrow", "from": "bike_lease", "to": "nobody"}, 404, "unknown_variable"),
+    ({"type": "add_arrow", "from": "bike_lease", "to": "bike_lease"}, 422, "self_loop"),
+    ({"type": "add_variable", "name": "bike_lease"}, 409, "duplicate_variable"),
     ({"type": "add_variable", "name": "bad\u0007name"}, 422, "invalid_name"),
     ({"type": "add_variable", "name": ""}, 422, "invalid_name"),
     ({"type": "explode"}, 400, "unknown_command"),
-    ({"type": "move_variable", "name": "scheme", "x": "left", "y": 1}, 400, "invalid_field"),
-    ({"type": "vote", "from": "scheme", "to": "sick_days", "choice": "maybe"}, 400, "invalid_field"),
-    ({"type": "propose", "kind": "add", "from": "scheme", "to": "sick_days"}, 409, "wrong_stage"),
+    ({"type": "move_variable", "name": "bike_lease", "x": "left", "y": 1}, 400, "invalid_field"),
+    ({"type": "vote", "from": "bike_lease", "to": "sick_days", "choice": "maybe"}, 400, "invalid_field"),
+    ({"type": "propose", "kind": "add", "from": "bike_lease", "to": "sick_days"}, 409, "wrong_stage"),
 ])
 def test_bad_commands_get_a_clear_message(room, command, status, code):
     r = room.send(room.facilitator, command)
@@ -112,7 +112,7 @@ def test_only_facilitator_moves_stages_and_undoes(room):
     assert r.json()["error"] == "only the facilitator can move the session to another stage"
     r = room.send(ann, {"type": "undo"})
     assert r.status_code == 403
-    r = room.send(ann, {"type": "set_question", "treatment": ["sick_days"], "outcome": ["scheme"]})
+    r = room.send(ann, {"type": "set_question", "treatment": ["sick_days"], "outcome": ["bike_lease"]})
     assert r.status_code == 403
 
 
@@ -139,16 +139,16 @@ def test_debating_turns_arrow_edits_into_proposals(room):
 
 
 def test_accepting_a_proposal_that_makes_a_cycle_is_refused(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-    room.ok(room.facilitator, {"type": "propose", "kind": "add", "from": "sick_days", "to": "scheme"})
+    room.ok(room.facilitator, {"type": "propose", "kind": "add", "from": "sick_days", "to": "bike_lease"})
     r = room.send(room.facilitator, {"type": "settle", "proposal": 1, "decision": "accept"})
     assert r.status_code == 422 and r.json()["code"] == "cycle"
     assert room.state()["proposals"][0]["status"] == "open"
 
 
 def test_locking_and_reopening_needs_a_reason(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     room.ok(room.facilitator, {"type": "set_stage", "stage": "agreed"})
     r = room.send(room.facilitator, {"type": "add_variable", "name": "age"})
     assert r.status_code == 409 and r.json()["code"] == "diagram_locked"
@@ -162,9 +162,9 @@ def test_locking_and_reopening_needs_a_reason(room):
 
 
 def test_locking_with_open_proposals_is_refused(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-    room.ok(room.facilitator, {"type": "propose", "kind": "remove", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "propose", "kind": "remove", "from": "bike_lease", "to": "sick_days"})
     r = room.send(room.facilitator, {"type": "set_stage", "stage": "agreed"})
     assert r.status_code == 409 and r.json()["code"] == "open_proposals"
     room.ok(room.facilitator, {"type": "settle", "proposal": 1, "decision": "dispute"})
@@ -173,7 +173,7 @@ def test_locking_with_open_proposals_is_refused(room):
 
 def test_undo_reverts_the_last_graph_change(room):
     room.ok(room.facilitator, {"type": "add_variable", "name": "age", "x": 10, "y": 10})
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "age", "to": "scheme"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "age", "to": "bike_lease"})
     room.ok(room.facilitator, {"type": "move_variable", "name": "age", "x": 300, "y": 40})
     room.ok(room.facilitator, {"type": "undo"})
     state = room.state()
@@ -181,7 +181,7 @@ def test_undo_reverts_the_last_graph_change(room):
     age = next(v for v in state["document"]["variables"] if v["name"] == "age")
     assert (age["x"], age["y"]) == (300, 40)  # later moves survive the undo
     room.ok(room.facilitator, {"type": "undo"})
-    assert [v["name"] for v in room.state()["document"]["variables"]] == ["scheme", "sick_days"]
+    assert [v["name"] for v in room.state()["document"]["variables"]] == ["bike_lease", "sick_days"]
     events = room.client.get(f"/api/sessions/{room.id}/history",
                              headers={TOKEN_HEADER: room.facilitator}).json()["events"]
     assert [e["kind"] for e in events][-2:] == ["undo", "undo"]
@@ -189,12 +189,12 @@ def test_undo_reverts_the_last_graph_change(room):
 
 
 def test_rename_updates_arrows_question_and_votes(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
-    room.ok(room.facilitator, {"type": "vote", "from": "scheme", "to": "sick_days", "choice": "agree"})
-    room.ok(room.facilitator, {"type": "update_variable", "name": "scheme", "new_name": "joined_scheme"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "vote", "from": "bike_lease", "to": "sick_days", "choice": "agree"})
+    room.ok(room.facilitator, {"type": "update_variable", "name": "bike_lease", "new_name": "leased_bike"})
     state = room.state()
-    assert state["document"]["treatment"] == ["joined_scheme"]
-    assert state["arrows"][0]["from"] == "joined_scheme"
+    assert state["document"]["treatment"] == ["leased_bike"]
+    assert state["arrows"][0]["from"] == "leased_bike"
     assert state["arrows"][0]["tally"]["agree"] == 1
 
 
@@ -269,7 +269,7 @@ def test_create_from_graphml_and_export_dot_round_trip(client, demo_document):
 
 
 def test_import_refuses_a_cyclic_dot_file_and_keeps_the_diagram(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     before = room.state()["document"]
     r = room.send(room.facilitator, {"type": "import_document", "format": "dot",
                                      "text": "digraph { a -> b; b -> a }"})
@@ -278,13 +278,13 @@ def test_import_refuses_a_cyclic_dot_file_and_keeps_the_diagram(room):
 
 
 def test_undoing_a_rename_brings_back_names_in_proposals_and_votes(room):
-    room.ok(room.facilitator, {"type": "add_arrow", "from": "scheme", "to": "sick_days"})
-    room.ok(room.facilitator, {"type": "vote", "from": "scheme", "to": "sick_days", "choice": "agree"})
+    room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "vote", "from": "bike_lease", "to": "sick_days", "choice": "agree"})
     room.ok(room.facilitator, {"type": "set_stage", "stage": "debating"})
-    room.ok(room.facilitator, {"type": "propose", "kind": "remove", "from": "scheme", "to": "sick_days"})
-    room.ok(room.facilitator, {"type": "update_variable", "name": "scheme", "new_name": "joined"})
+    room.ok(room.facilitator, {"type": "propose", "kind": "remove", "from": "bike_lease", "to": "sick_days"})
+    room.ok(room.facilitator, {"type": "update_variable", "name": "bike_lease", "new_name": "joined"})
     assert room.state()["proposals"][0]["from"] == "joined"
     room.ok(room.facilitator, {"type": "undo"})
     state = room.state()
-    assert state["proposals"][0]["from"] == "scheme"
+    assert state["proposals"][0]["from"] == "bike_lease"
     assert state["arrows"][0]["tally"]["agree"] == 1

@@ -167,10 +167,10 @@ def test_absent_arrows_match_networkx(graph):
 
 def test_demo_diagram_disputes_run_on_the_engine_answer(demo_document):
     w, fac = _workshop(demo_document)
-    apply_command(w, fac, {"type": "vote", "from": "age", "to": "scheme", "choice": "disagree"}, now=1)
+    apply_command(w, fac, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "disagree"}, now=1)
     result = analyse_workshop(w)
     assert result["disputes"]["count"] == 1
-    assert result["disputes"]["items"][0]["pair"] == ["age", "scheme"]
+    assert result["disputes"]["items"][0]["pair"] == ["age", "bike_lease"]
     assert result["absent"]["checked"] > 0
 
 

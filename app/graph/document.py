@@ -7,7 +7,7 @@ optional)::
      "variables": [{"name": "age", "label": "Age in years", "latent": false,
                     "x": 120, "y": 80, "description": "..."}],
      "arrows": [{"from": "age", "to": "fitness"}],
-     "treatment": ["scheme"], "outcome": ["sick_days"]}
+     "treatment": ["bike_lease"], "outcome": ["sick_days"]}
 
 ``treatment`` and ``outcome`` may also be bare strings. :func:`parse_document`
 validates everything up front and raises a :class:`~app.graph.errors.DiagramError`
