@@ -2,6 +2,7 @@
 // Each function takes the app object and returns DOM built with textContent only.
 
 import { el, clock, ROLE_WORDS } from './dom.js';
+import { draftField } from './drafts.js';
 
 const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
 
@@ -51,8 +52,10 @@ export function renderAnalysis(app) {
   box.append(el('h3', { text: 'Minimal adjustment sets' }));
   box.append(setChips(app, a.minimal_adjustment_sets, 'this adjustment set'));
   if (a.more_sets_exist) box.append(el('p', { class: 'muted', text: 'More sets exist; the first ones are listed.' }));
-  if (app.view.adjusted !== null && a.adjustment_check) {
-    const check = a.adjustment_check;
+  // The paths and the check for the set shown, worked out for this very revision and set.
+  const given = app.adjustedView();
+  if (given?.adjustment_check) {
+    const check = given.adjustment_check;
     box.append(el('div', { class: `set-check ${check.valid ? 'set-valid' : 'set-invalid'}` },
       el('strong', { text: `{ ${check.set.join(', ')} } ${check.valid ? 'is a valid adjustment set' : 'is not a valid adjustment set'}` }),
       check.reasons?.length ? el('ul', {}, check.reasons.map((r) => el('li', { text: r }))) : null));
@@ -71,19 +74,22 @@ export function renderAnalysis(app) {
   }
 
   const arrowsSet = new Set(app.state.document.arrows.map((x) => JSON.stringify([x.from, x.to])));
-  const paths = a.paths || [];
+  const pending = app.view.adjusted !== null && !given;
+  const shown = given || a;
+  const paths = shown.paths || [];
   const biasing = paths.filter((p) => !p.causal && p.open);
   const blocked = paths.filter((p) => !p.causal && !p.open);
   const causal = paths.filter((p) => p.causal);
   const adjustedText = app.view.adjusted?.length ? ` given { ${app.view.adjusted.join(', ')} }` : ' (adjusting for nothing)';
   box.append(el('h3', { text: `Open non-causal paths${adjustedText}` }));
-  box.append(pathList(app, biasing, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
+  if (pending) box.append(el('p', { class: 'muted', text: 'Working out which paths this set blocks…' }));
+  else box.append(pathList(app, biasing, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
   box.append(el('h3', { text: 'Causal paths' }));
   box.append(pathList(app, causal, arrowsSet, 'No causal path: the diagram says the treatment does not affect the outcome.'));
   if (blocked.length) {
     box.append(el('details', {}, el('summary', { text: `Blocked non-causal paths (${blocked.length})` }), pathList(app, blocked, arrowsSet, '')));
   }
-  if (a.paths_capped) box.append(el('p', { class: 'muted', text: `Showing ${paths.length} of ${a.paths_total} paths.` }));
+  if (shown.paths_capped) box.append(el('p', { class: 'muted', text: `Showing ${paths.length} of ${shown.paths_total} paths.` }));
 
   box.append(el('h3', { text: 'Roles' }));
   const roles = Object.entries(a.roles || {}).sort(([x], [y]) => x.localeCompare(y));
@@ -126,22 +132,35 @@ function tallyLine(tally) {
   return `${tally.agree} agree · ${tally.disagree} disagree · ${tally.unsure} unsure`;
 }
 
+function voteDraftKey(target) {
+  return JSON.stringify(target.proposal !== undefined ? ['proposal', target.proposal, 'reason'] : ['arrow', JSON.stringify([target.from, target.to]), 'reason']);
+}
+
 function voteBox(app, target, votes, closed) {
   const mine = votes.find((v) => v.member === app.me.id);
-  const reason = el('input', { type: 'text', maxlength: 200, placeholder: 'Reason (optional, one line)', class: 'vote-reason', 'aria-label': 'Reason for your vote' });
-  if (mine?.reason) reason.value = mine.reason;
+  const key = voteDraftKey(target);
+  // A closed vote still shows a reason someone was typing, so it is not lost.
+  const showReason = !closed || app.drafts.has(key);
+  const reason = draftField(el('input', { type: 'text', maxlength: 200, placeholder: 'Reason (optional, one line)', class: 'vote-reason', 'aria-label': 'Reason for your vote', disabled: closed }), key, mine?.reason || '');
+  reason.value = mine?.reason || '';
+  const vote = (choice) => {
+    const sent = reason.value;
+    reason.dataset.base = sent;
+    app.drafts.delete(key);
+    app.send({ type: 'vote', ...target, choice, reason: sent }).catch(() => {});
+  };
   const buttons = Object.entries(VOTE_LABELS).map(([choice, label]) => el('button', {
     type: 'button', class: `vote vote-${choice}${mine?.choice === choice ? ' vote-mine' : ''}`,
     'aria-pressed': mine?.choice === choice ? 'true' : 'false', disabled: closed,
     text: label, dataset: { choice },
-    on: { click: () => app.send({ type: 'vote', ...target, choice, reason: reason.value }) },
+    on: { click: () => vote(choice) },
   }));
   const list = votes.length ? el('ul', { class: 'votes' }, votes.map((v) => el('li', {},
     el('span', { class: `vote-word vote-word-${v.choice}`, text: VOTE_LABELS[v.choice] }),
     el('span', { class: 'voter', text: ` ${v.name}` }),
     v.reason ? el('span', { class: 'vote-why', text: ` — ${v.reason}` }) : null))) : null;
   return el('div', { class: 'vote-box' }, closed ? null : el('div', { class: 'vote-buttons' }, buttons),
-    closed ? null : reason, list);
+    showReason ? reason : null, list);
 }
 
 /** Proposals, disputes and the absent-arrow check. */
@@ -149,13 +168,16 @@ export function renderDebate(app) {
   const box = el('div', { class: 'panel-body' });
   const s = app.state;
   const stage = s.session.stage;
+  if (app.analysis && app.analysis.revision !== s.revision) box.append(el('p', { class: 'updating', text: 'Updating for the latest edit…' }));
   if (stage === 'drafting') box.append(el('p', { class: 'notice', text: 'Drafting: everyone draws directly. When the facilitator moves to debating, arrow changes become proposals the room votes on.' }));
   const open = s.proposals.filter((p) => p.status === 'open' || p.status === 'disputed');
   const done = s.proposals.filter((p) => !(p.status === 'open' || p.status === 'disputed'));
   box.append(el('h3', { text: `Proposals (${open.length} open or disputed)` }));
   if (!open.length) box.append(el('p', { class: 'muted', text: stage === 'debating' ? 'No open proposals. Draw an arrow, or select one to propose removing or reversing it.' : 'None.' }));
   for (const p of open) box.append(proposalCard(app, p));
-  if (done.length) box.append(el('details', {}, el('summary', { text: `Settled (${done.length})` }), done.map((p) => proposalCard(app, p))));
+  // Opened when a reason someone was typing sits in a proposal settled meanwhile.
+  const typing = done.some((p) => app.drafts.has(voteDraftKey({ proposal: p.id })));
+  if (done.length) box.append(el('details', { open: typing }, el('summary', { text: `Settled (${done.length})` }), done.map((p) => proposalCard(app, p))));
   box.append(renderDisputes(app));
   box.append(renderAbsent(app));
   return box;
@@ -246,19 +268,22 @@ export function renderSelection(app) {
   if (sel.kind === 'variable') {
     const v = s.document.variables.find((x) => x.name === sel.name);
     if (!v) return box;
-    const name = el('input', { type: 'text', maxlength: 64, value: v.name, disabled: locked, 'aria-label': 'Name' });
-    const label = el('input', { type: 'text', maxlength: 200, value: v.label || '', disabled: locked, 'aria-label': 'Label' });
-    const description = el('textarea', { rows: 3, maxlength: 2000, disabled: locked, 'aria-label': 'Description' });
+    const field = (node, what, base) => draftField(node, JSON.stringify(['variable', v.name, what]), base);
+    const name = field(el('input', { type: 'text', maxlength: 64, value: v.name, disabled: locked, 'aria-label': 'Name' }), 'name', v.name);
+    const label = field(el('input', { type: 'text', maxlength: 200, value: v.label || '', disabled: locked, 'aria-label': 'Label' }), 'label', v.label || '');
+    const description = field(el('textarea', { rows: 3, maxlength: 2000, disabled: locked, 'aria-label': 'Description' }), 'description', v.description || '');
     description.value = v.description || '';
     const latent = el('input', { type: 'checkbox', disabled: locked });
     latent.checked = !!v.latent;
     const save = () => {
+      // What is sent is no longer unsaved typing.
+      for (const f of [name, label, description]) { f.dataset.base = f.value; app.drafts.delete(f.dataset.draft); }
       const cmd = { type: 'update_variable', name: v.name };
       if (label.value.trim() !== (v.label || '')) cmd.label = label.value.trim();
       if (description.value !== (v.description || '')) cmd.description = description.value;
       if (latent.checked !== !!v.latent) cmd.latent = latent.checked;
       if (name.value.trim() && name.value.trim() !== v.name) cmd.new_name = name.value.trim();
-      if (Object.keys(cmd).length > 2) app.send(cmd).then(() => { if (cmd.new_name) app.select({ kind: 'variable', name: cmd.new_name }); });
+      if (Object.keys(cmd).length > 2) app.send(cmd).then(() => { if (cmd.new_name) app.select({ kind: 'variable', name: cmd.new_name }); }).catch(() => {});
     };
     box.append(el('h3', { text: `Variable ${v.name}` }),
       el('form', { class: 'stack', on: { submit: (e) => { e.preventDefault(); save(); } } },
@@ -268,7 +293,9 @@ export function renderSelection(app) {
         el('label', { class: 'check' }, latent, ' Unmeasured (no data will exist for it)'),
         locked ? null : el('div', { class: 'row' }, el('button', { type: 'submit', class: 'primary', text: 'Save' }),
           el('button', { type: 'button', class: 'danger', text: 'Delete variable', on: { click: () => app.send({ type: 'delete_variable', name: v.name }).then(() => app.select(null)) } }))));
-    const roles = app.analysis?.analysis?.roles?.[v.name];
+    const current = app.analysis?.revision === s.revision;
+    const roles = current ? app.analysis?.analysis?.roles?.[v.name] : null;
+    if (!current) box.append(el('p', { class: 'updating', text: 'Working out its role after the latest edit…' }));
     if (roles) box.append(el('p', { class: 'note', text: `Role for this question: ${roles.map((r) => ROLE_WORDS[r] || r).join(', ')}` }));
     if (app.isFacilitator && !locked) {
       const t = s.document.treatment.includes(v.name), o = s.document.outcome.includes(v.name);

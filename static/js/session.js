@@ -12,11 +12,12 @@ import { Canvas } from './canvas.js';
 import { renderAnalysis, renderDebate, renderSelection, renderHistory, renderPeople } from './panels.js';
 import {
   createPageState, reduceLoaded, reduceFullState, reducePatch, reduceEvent, reduceSelection, reduceHighlight,
-  reduceAdjusted, reduceAdjustedPaths,
+  reduceAdjusted, reduceAdjustedPaths, adjustedPaths,
 } from './state.js';
 import { STAGE_NAMES, renderBar, renderStatus, renderBanner, renderTabs, canvasModel, buildLegend } from './render.js';
 import * as commands from './commands.js';
 import { attachKeyboard, showShortcuts } from './keyboard.js';
+import { readPanel, restorePanel, orphanNotes } from './drafts.js';
 
 const pageData = JSON.parse(document.getElementById('page-data').textContent);
 
@@ -26,6 +27,10 @@ class SessionApp {
     this.token = token;
     this.page = createPageState();
     this.listeners = new Set();
+    // Unsaved text in the panels, by field (see drafts.js), kept across live updates.
+    this.drafts = new Map();
+    this.panelTab = null;
+    this.lastEvent = null;
   }
 
   // The page's state lives in one object (state.js); these name its parts.
@@ -114,6 +119,7 @@ class SessionApp {
   }
 
   noteEvent(event) {
+    if (event) this.lastEvent = event;
     if (!reduceEvent(this.page, event)) { this.loadHistory(); return; }
     if (event && this.history && this.tab === 'history') this.refreshPanel();
   }
@@ -151,6 +157,7 @@ class SessionApp {
     const set = this.view.adjusted;
     if (!set || !this.analysis?.analysis) return;
     const revision = this.analysis.revision;
+    if (this.adjustedView()) return;
     checkAdjustmentSet(this.state.document, set).then((result) => {
       if (reduceAdjustedPaths(this.page, revision, set, result)) this.refreshPanel();
     }).catch((err) => {
@@ -160,6 +167,9 @@ class SessionApp {
       this.renderAll();
     });
   }
+
+  /** Paths and the check given the set shown, when worked out for the current revision; else null. */
+  adjustedView() { return adjustedPaths(this.page); }
 
   addVariableAt(x, y) { return commands.addVariableAt(this, x, y); }
 
@@ -299,9 +309,29 @@ class SessionApp {
     if (showEstimation) return;
     const scroll = this.panel.scrollTop;
     const render = { analysis: renderAnalysis, debate: renderDebate, selection: renderSelection, history: renderHistory, people: renderPeople }[this.tab];
+    const before = readPanel(this.panel, this.drafts, this.panelTab);
     clear(this.panel).append(render(this));
+    this.panelTab = this.tab;
+    const missing = restorePanel(this.panel, this.drafts, before)
+      .filter((key) => this.drafts.get(key).tab === this.tab && this.isDraftOrphaned(key));
+    if (missing.length) this.panel.prepend(...orphanNotes(this.drafts, missing, this.orphanReason(), () => this.refreshPanel()));
     this.panel.scrollTop = scroll;
     this.renderTabs();
+  }
+
+  /** Whether the variable, arrow or proposal a draft's key names is gone from the state. */
+  isDraftOrphaned(key) {
+    const [kind, id] = JSON.parse(key);
+    const s = this.state;
+    if (kind === 'variable') return !s.document.variables.some((v) => v.name === id);
+    if (kind === 'arrow') return !s.arrows.some((a) => JSON.stringify([a.from, a.to]) === id);
+    if (kind === 'proposal') return !s.proposals.some((p) => p.id === id);
+    return false;
+  }
+
+  orphanReason() {
+    const e = this.lastEvent;
+    return e && e.actor !== this.me.id ? `${e.actor_name} ${e.summary} while you were typing.` : 'What you were editing changed while you were typing.';
   }
 
   async mountEstimation() {

@@ -17,7 +17,7 @@ const arrowId = (from, to) => JSON.stringify([from, to]);
 export function createPageState() {
   return {
     shared: null, analysis: null, history: null, me: null, online: new Set(), tab: 'analysis',
-    view: { selection: null, highlight: null, adjusted: null }, status: 'connecting',
+    view: { selection: null, highlight: null, adjusted: null }, adjusted: null, status: 'connecting',
   };
 }
 
@@ -98,11 +98,22 @@ export function reduceAdjusted(page, set) {
   page.view.highlight = null;
 }
 
-/** The paths as they stand given the adjustment set shown, answered for one revision. */
+/**
+ * The paths as they stand given the adjustment set shown, answered for one revision.
+ * Kept beside the analysis, never written into it, so showing no set lists the
+ * analysis's own paths again.
+ */
 export function reduceAdjustedPaths(page, revision, set, result) {
   if (!page.analysis?.analysis || page.analysis.revision !== revision || page.view.adjusted !== set) return false;
-  page.analysis = { ...page.analysis, analysis: { ...page.analysis.analysis, paths: result.paths, paths_total: result.paths_total, paths_capped: result.paths_capped, adjustment_check: result.adjustment_check } };
+  page.adjusted = { key: JSON.stringify(set), revision, result };
   return true;
+}
+
+/** The paths and check given the set shown, if worked out for this set and revision; else null. */
+export function adjustedPaths(page) {
+  const a = page.adjusted;
+  if (page.view.adjusted === null || !a || !page.analysis) return null;
+  return a.key === JSON.stringify(page.view.adjusted) && a.revision === page.analysis.revision ? a.result : null;
 }
 
 /**

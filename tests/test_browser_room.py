@@ -1,0 +1,221 @@
+"""A live room in several chromium windows at once: what one person types survives
+what the others do, and what the panels say follows the current state.
+
+Ann and Bob each have their own browser context; the facilitator drives the session
+over HTTP. Screenshots land in tests/artifacts/ (git-ignored).
+"""
+
+from __future__ import annotations
+
+import os
+import time
+
+import httpx
+import pytest
+
+from live_server import ARTIFACTS, CHROMIUM, running_server
+from live_server import CHROMIUM_ARGS as ARGS
+
+pytestmark = [
+    pytest.mark.browser,
+    pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian chromium is not installed"),
+]
+
+TOKEN_HEADER = "X-Arrowmoot-Token"
+# age confounds scheme -> sick_days: one back-door path, blocked by { age }.
+DOCUMENT = {
+    "format": "arrowmoot-graph", "version": 1,
+    "variables": [{"name": n, "x": x, "y": y} for n, x, y in (
+        ("age", 120, 80), ("scheme", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
+        ("commute", 420, 460))],
+    "arrows": [{"from": a, "to": b} for a, b in (
+        ("age", "scheme"), ("age", "sick_days"), ("scheme", "fitness"), ("fitness", "sick_days"))],
+    "treatment": ["scheme"], "outcome": ["sick_days"],
+}
+
+
+class Room:
+    """A session with a facilitator (HTTP) and members who each get a browser page."""
+
+    def __init__(self, http, browser, base, errors):
+        self.http, self.browser, self.base, self.errors = http, browser, base, errors
+        created = http.post("/api/sessions", json={"title": "Room check", "name": "Fay",
+                                                   "document": DOCUMENT}).json()
+        self.sid, self.fac, self.code = created["session_id"], created["token"], created["join_code"]
+
+    def send(self, token, command):
+        r = self.http.post(f"/api/sessions/{self.sid}/commands", json=command, headers={TOKEN_HEADER: token})
+        assert r.status_code == 200, r.text
+        return r.json()["revision"]
+
+    def member(self, name, viewport=(1440, 900)):
+        token = self.http.post("/api/join", json={"code": self.code, "name": name}).json()["token"]
+        context = self.browser.new_context(viewport={"width": viewport[0], "height": viewport[1]})
+        page = context.new_page()
+        page.on("console", lambda m: self.errors.append(f"{name} console: {m.text}") if m.type == "error" else None)
+        page.on("pageerror", lambda e: self.errors.append(f"{name} page error: {e}"))
+        page.goto(f"{self.base}/s/{self.sid}#key={token}")
+        wait(page, "!!(window.arrowmoot?.state && document.querySelector('.live-status.live-live'))", "live")
+        return page, token
+
+
+def wait(page, expression, what, seconds=20.0):
+    """Poll ``expression`` (the page's policy forbids the eval that wait_for_function uses)."""
+    deadline = time.monotonic() + seconds
+    while not page.evaluate(expression):
+        if time.monotonic() > deadline:
+            raise AssertionError(f"the page never got {what}")
+        page.wait_for_timeout(25)
+
+
+def at_revision(page, revision):
+    wait(page, f"window.arrowmoot.state.revision >= {revision} && window.arrowmoot.analysis?.revision >= {revision}",
+         f"revision {revision}")
+
+
+def select_variable(page, name):
+    box = page.locator(f'.node[data-name="{name}"] .shape').first.bounding_box()
+    page.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
+    wait(page, f"document.querySelector('.panel h3')?.textContent === 'Variable {name}'", f"{name} selected")
+
+
+FOCUS = """() => { const f = document.activeElement;
+  return { label: f.getAttribute('aria-label'), value: f.value, start: f.selectionStart, end: f.selectionEnd }; }"""
+
+
+@pytest.fixture(name="room")
+def fixture_room(tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    ARTIFACTS.mkdir(exist_ok=True)
+    errors: list[str] = []
+    with running_server(tmp_path) as base, httpx.Client(base_url=base, timeout=30) as http, \
+            sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        try:
+            yield Room(http, browser, base, errors)
+        finally:
+            browser.close()
+    assert errors == []
+
+
+def test_typing_survives_other_peoples_edits(room):
+    """Focus, caret and unsaved text stay through live updates; changes and deletions
+    by someone else are said beside the field, and the typing is kept."""
+    ann, _ = room.member("Ann")
+    bob, bob_token = room.member("Bob", (1280, 720))
+
+    # Ann starts describing fitness and moves the caret back into her text.
+    select_variable(ann, "fitness")
+    description = ann.locator('.panel textarea[aria-label="Description"]')
+    description.click()
+    ann.keyboard.type("Riders are fitter")
+    for _ in range(6):
+        ann.keyboard.press("ArrowLeft")
+    # Bob adds a variable from his own page; Ann's panel is redrawn by the push.
+    revision = bob.evaluate("window.arrowmoot.send({ type: 'add_variable', name: 'weather', x: 700, y: 90 })"
+                            ".then((ack) => ack.revision)")
+    at_revision(ann, revision)
+    assert ann.locator('.node[data-name="weather"]').count() == 1
+    assert ann.evaluate(FOCUS) == {"label": "Description", "value": "Riders are fitter", "start": 11, "end": 11}
+    ann.keyboard.type("much ")
+    assert description.input_value() == "Riders are much fitter"
+
+    # Bob rewrites the same description: Ann's text stays, a note says what it now reads.
+    revision = room.send(bob_token, {"type": "update_variable", "name": "fitness", "description": "Bob's words"})
+    at_revision(ann, revision)
+    assert description.input_value() == "Riders are much fitter"
+    assert ann.evaluate(FOCUS)["label"] == "Description"
+    note = ann.locator(".panel .draft-note")
+    assert "Someone else changed this while you were typing" in note.inner_text()
+    assert "“Bob's words”" in note.inner_text()
+    ann.screenshot(path=str(ARTIFACTS / "room-draft-changed.png"))
+    # Saving sends Ann's text; the note goes once the field holds what the server holds.
+    ann.locator(".panel button[type=submit]").click()
+    wait(ann, "window.arrowmoot.state.document.variables.find((v) => v.name === 'fitness').description"
+         " === 'Riders are much fitter'", "Ann's description saved")
+    wait(ann, "!document.querySelector('.panel .draft-note')", "the note gone")
+
+    # Ann types about commute; Bob deletes commute: the text is shown to copy, with who did it.
+    select_variable(ann, "commute")
+    ann.locator('.panel textarea[aria-label="Description"]').fill("Long rides tire people")
+    revision = room.send(bob_token, {"type": "delete_variable", "name": "commute"})
+    at_revision(ann, revision)
+    orphan = ann.locator(".panel .draft-orphan")
+    assert "Bob deleted variable 'commute' while you were typing" in orphan.inner_text()
+    assert orphan.locator("textarea").input_value() == "Long rides tire people"
+    ann.screenshot(path=str(ARTIFACTS / "room-draft-deleted.png"))
+
+
+def test_vote_reason_survives_other_votes(room):
+    room.send(room.fac, {"type": "set_stage", "stage": "debating"})
+    ann, _ = room.member("Ann")
+    bob, bob_token = room.member("Bob", (1024, 768))
+    room.send(bob_token, {"type": "propose", "kind": "add", "from": "commute", "to": "fitness", "reason": "hills"})
+    for page in (ann, bob):
+        page.locator('.tabs [data-tab="debate"]').click()
+        wait(page, "!!document.querySelector('.panel [data-proposal=\"1\"] .vote-reason')", "the proposal")
+    reason = ann.locator('.panel [data-proposal="1"] .vote-reason')
+    reason.click()
+    ann.keyboard.type("Only for those who ride uphi")
+    # Bob votes from his page by clicking; the push rebuilds Ann's Debate panel.
+    bob.locator('.panel [data-proposal="1"] button[data-choice="agree"]').click()
+    wait(ann, "window.arrowmoot.state.proposals[0].tally.agree === 1", "Bob's vote")
+    assert ann.evaluate(FOCUS) == {"label": "Reason for your vote", "value": "Only for those who ride uphi",
+                                   "start": 28, "end": 28}
+    ann.keyboard.type("ll")
+    ann.locator('.panel [data-proposal="1"] button[data-choice="unsure"]').click()
+    wait(ann, "window.arrowmoot.state.proposals[0].tally.unsure === 1", "Ann's vote")
+    votes = ann.evaluate("window.arrowmoot.state.proposals[0].votes.map((v) => [v.name, v.reason])")
+    assert ["Ann", "Only for those who ride uphill"] in votes
+
+    # The facilitator settles the proposal while Ann is retyping her reason: voting has
+    # closed, so the field is kept (read-only) with a note instead of vanishing.
+    reason.fill("Changed my mind")
+    revision = room.send(room.fac, {"type": "settle", "proposal": 1, "decision": "reject"})
+    at_revision(ann, revision)
+    kept = ann.locator('.panel [data-proposal="1"] .vote-reason')
+    assert kept.input_value() == "Changed my mind" and kept.is_disabled()
+    assert "can no longer be changed here" in ann.locator('.panel [data-proposal="1"] .draft-note').inner_text()
+
+
+def test_paths_heading_follows_the_set_shown(room):
+    """Showing a set and clicking it again lists the paths given nothing once more."""
+    ann, _ = room.member("Ann")
+    heading = ann.locator(".panel h3", has_text="Open non-causal paths")
+    chip = ann.locator(".panel .chip", has_text="{ age }").first
+    assert heading.text_content() == "Open non-causal paths (adjusting for nothing)"
+    open_paths = ann.evaluate(
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        ".nextElementSibling.textContent")
+    assert "scheme ← age → sick_days" in open_paths
+
+    chip.click()
+    wait(ann, "[...document.querySelectorAll('.panel h3')].some((h) => h.textContent === "
+              "'Open non-causal paths given { age }')", "the heading given age")
+    wait(ann, "!!document.querySelector('.panel .set-check.set-valid')", "the check of { age }")
+    given = ann.evaluate(
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        ".nextElementSibling.textContent")
+    assert given.startswith("No open non-causal path")
+
+    ann.locator(".panel .chip", has_text="{ age }").first.click()
+    wait(ann, "[...document.querySelectorAll('.panel h3')].some((h) => h.textContent === "
+              "'Open non-causal paths (adjusting for nothing)')", "the heading given nothing")
+    again = ann.evaluate(
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        ".nextElementSibling.textContent")
+    assert again == open_paths
+    assert ann.locator(".panel .set-check").count() == 0
+
+    # After an edit the shown set is checked again against the new diagram.
+    chip = ann.locator(".panel .chip", has_text="{ age }").first
+    chip.click()
+    wait(ann, "!!document.querySelector('.panel .set-check.set-valid')", "the check of { age }")
+    revision = room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "scheme"})
+    room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "sick_days"})
+    at_revision(ann, revision + 1)
+    wait(ann, "!!document.querySelector('.panel .set-check.set-invalid')", "{ age } found invalid after the edit")
+    assert "scheme ← commute → sick_days" in ann.evaluate(
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        ".nextElementSibling.textContent")
