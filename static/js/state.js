@@ -5,7 +5,7 @@
 /**
  * @typedef {{selection: any, highlight: any, adjusted: string[]|null}} ViewState
  * @typedef {{shared: any, analysis: any, history: any[]|null, me: any, online: Set<string>,
- *            tab: string, view: ViewState, status: string}} PageState
+ *            tab: string, view: ViewState, adjusted: any, status: string}} PageState
  */
 
 // A patch with nothing but these only moves variables: the analysis stays valid.
