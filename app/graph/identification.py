@@ -62,7 +62,9 @@ __all__ = [
     "Question",
     "analyze",
     "identify_effect",
+    "answer_question",
     "check_adjustment",
+    "has_adjustment_set",
     "is_adjustment_set",
     "minimal_adjustment_sets",
     "optimal_adjustment_set",
@@ -91,7 +93,7 @@ _A, _B = "\0a", "\0b"
 class Question:
     """The diagram prepared for one treatment/outcome question."""
 
-    diagram: Diagram
+    diagram: Diagram | None
     dag: Dag
     xs: frozenset[str]
     ys: frozenset[str]
@@ -115,12 +117,27 @@ class Question:
             raise BadQuestion("no treatment is set: say which variable's effect to study")
         if not ys:
             raise BadQuestion("no outcome is set: say which variable the effect is on")
-        dag = Dag.from_diagram(diagram)
-        xset, yset = frozenset(xs), frozenset(ys)
+        return cls.on_dag(Dag.from_diagram(diagram), xs, ys, diagram.observed, diagram=diagram)
+
+    @classmethod
+    def on_dag(
+        cls,
+        dag: Dag,
+        treatment: Iterable[str],
+        outcome: Iterable[str],
+        observed: Iterable[str],
+        diagram: Diagram | None = None,
+    ) -> "Question":
+        """The question asked of a bare graph (no document: for graphs derived from one).
+
+        cn, forb and the proper back-door graph are computed once here
+        (Perkovic et al. 2018, Definition 3.3; van der Zander et al. 2019).
+        """
+        xset, yset = frozenset(treatment), frozenset(outcome)
         cn = frozenset(dag.causal_nodes(xset, yset))
         forb = frozenset(dag.descendants(cn) | xset)
         pbd = dag.without_edges((x, w) for x in xset for w in dag.children[x] if w in cn)
-        return cls(diagram, dag, xset, yset, diagram.observed, cn, forb, pbd)
+        return cls(diagram, dag, xset, yset, frozenset(observed), cn, forb, pbd)
 
     @property
     def relevant(self) -> set[str]:
@@ -145,6 +162,24 @@ def is_adjustment_set(q: Question, zs: Iterable[str]) -> bool:
     if zs & (q.xs | q.ys) or zs & q.forb or zs - q.observed:
         return False
     return q.pbd.is_d_separated(q.xs, q.ys, zs)
+
+
+def has_adjustment_set(q: Question) -> bool:
+    """Does any adjustment set over measured variables exist?
+
+    Some set exists iff (an(X u Y) n observed) minus (X u Y u forb) is one
+    (van der Zander, Liskiewicz & Textor 2019, the constructive set Adjust(X, Y),
+    restricted to measured variables). Linear time.
+    """
+    canonical = (q.dag.ancestors(q.xs | q.ys) & q.observed) - q.xs - q.ys - q.forb
+    return is_adjustment_set(q, canonical)
+
+
+def answer_question(q: Question, *, set_cap: int = SET_CAP) -> dict:
+    """Whether and how the effect is identified, for a prepared question: the minimal
+    adjustment sets, the optimal set, and the front-door sets and instruments when no
+    adjustment set exists (the cheap part of :func:`analyze`)."""
+    return _identify(q, set_cap)
 
 
 def check_adjustment(q: Question, zs: Iterable[str]) -> dict:

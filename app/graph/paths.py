@@ -205,6 +205,101 @@ def iter_paths(
             stack.append((w, head_at_w, iter(neighbours[w])))
 
 
+class _SplitNetwork:
+    """The node-split skeleton of the inner nodes as a unit-capacity residual network.
+
+    Node v becomes arcs 2i -> 2i+1; an edge v - w becomes 2i+1 -> 2j; neighbours in
+    xs (ys) lead to one side node, and both side nodes lead to the sink.
+    """
+
+    def __init__(self, dag: Dag, xs: set[str], ys: set[str], inner: list[str]):
+        self.index = {v: i for i, v in enumerate(inner)}
+        k = len(inner)
+        self.side_x, self.side_y, self.sink, self.source = 2 * k, 2 * k + 1, 2 * k + 2, 2 * k + 3
+        self.adjacency: list[list[int]] = [[] for _ in range(2 * k + 4)]
+        self.capacity: dict[tuple[int, int], int] = {}
+        for v in inner:
+            i = self.index[v]
+            self._arc(2 * i, 2 * i + 1)
+            for w in dag.neighbours(v):
+                if w in self.index:
+                    self._arc(2 * i + 1, 2 * self.index[w])
+                elif w in xs or w in ys:
+                    self._arc(2 * i + 1, self.side_x if w in xs else self.side_y)
+        self._arc(self.side_x, self.sink)
+        self._arc(self.side_y, self.sink)
+        self.distance = self._distances_to_sink(4 * k + 8)
+        for a in range(len(self.adjacency)):
+            self.adjacency[a].sort(key=lambda v: -self.distance[v])
+
+    def _arc(self, a: int, b: int) -> None:
+        if (a, b) not in self.capacity:
+            self.adjacency[a].append(b)
+            self.adjacency[b].append(a)
+            self.capacity.setdefault((b, a), 0)
+        self.capacity[(a, b)] = 1
+
+    def _distances_to_sink(self, far: int) -> list[int]:
+        """Breadth-first over reversed arcs from the sink."""
+        distance = [far] * len(self.adjacency)
+        distance[self.sink] = 0
+        frontier = [self.sink]
+        while frontier:
+            nxt = []
+            for b in frontier:
+                for a in self.adjacency[b]:
+                    if self.capacity.get((a, b), 0) > 0 and distance[a] == far:
+                        distance[a] = distance[b] + 1
+                        nxt.append(a)
+            frontier = nxt
+        return distance
+
+    def entry(self, v: str, xs: set[str], ys: set[str]) -> int | None:
+        if v in self.index:
+            return 2 * self.index[v]
+        if v in xs or v in ys:
+            return self.side_x if v in xs else self.side_y
+        return None
+
+    def _augment(self, starts: set[int], blocked: set[int], changed: list[tuple[int, int]]) -> int | None:
+        """Push one unit from a start to the sink, avoiding ``blocked``; the start used,
+        or None. Depth-first, nearest-to-a-side first (distances precomputed once on
+        the full network), so a path is usually found after a few steps."""
+        back: dict[int, int] = {}
+        stack = [(s, self.source) for s in sorted(starts, key=lambda v: -self.distance[v])
+                 if s not in blocked]
+        while stack:
+            a, parent = stack.pop()
+            if a in back:
+                continue
+            back[a] = parent
+            if a == self.sink:
+                break
+            stack.extend((b, a) for b in self.adjacency[a]
+                         if b not in back and b not in blocked and self.capacity[(a, b)] > 0)
+        else:
+            return None
+        b = self.sink
+        while back[b] != self.source:
+            a = back[b]
+            self.capacity[(a, b)] -= 1
+            self.capacity[(b, a)] += 1
+            changed.append((a, b))
+            b = a
+        return b
+
+    def two_disjoint(self, starts: set[int], blocked: set[int]) -> bool:
+        """Do two vertex-disjoint paths run from distinct starts to the sink? The
+        network is restored afterwards."""
+        changed: list[tuple[int, int]] = []
+        used = self._augment(starts, blocked, changed)
+        ok = used is not None and self._augment(starts - {used}, blocked, changed) is not None
+        for a, b in changed:
+            self.capacity[(a, b)] += 1
+            self.capacity[(b, a)] -= 1
+        return ok
+
+
 def colliders_on_paths(
     dag: Dag, xs: set[str], ys: set[str], relevant: set[str], known: set[str] = frozenset()
 ) -> set[str]:
@@ -217,96 +312,15 @@ def colliders_on_paths(
     O(n + m), on one residual network built once.
     """
     inner = sorted(relevant)
-    index = {v: i for i, v in enumerate(inner)}
-    k = len(inner)
-    side_x, side_y, sink, source = 2 * k, 2 * k + 1, 2 * k + 2, 2 * k + 3
-    adjacency: list[list[int]] = [[] for _ in range(2 * k + 4)]
-    capacity: dict[tuple[int, int], int] = {}
-
-    def arc(a: int, b: int) -> None:
-        if (a, b) not in capacity:
-            adjacency[a].append(b)
-            adjacency[b].append(a)
-            capacity.setdefault((b, a), 0)
-        capacity[(a, b)] = 1
-
-    for v in inner:
-        i = index[v]
-        arc(2 * i, 2 * i + 1)
-        for w in dag.neighbours(v):
-            if w in index:
-                arc(2 * i + 1, 2 * index[w])
-            elif w in xs:
-                arc(2 * i + 1, side_x)
-            elif w in ys:
-                arc(2 * i + 1, side_y)
-    arc(side_x, sink)
-    arc(side_y, sink)
-
-    far = 4 * k + 8
-    distance = [far] * (2 * k + 4)
-    distance[sink] = 0
-    frontier = [sink]
-    while frontier:  # breadth-first over reversed arcs from the sink
-        nxt = []
-        for b in frontier:
-            for a in adjacency[b]:
-                if capacity.get((a, b), 0) > 0 and distance[a] == far:
-                    distance[a] = distance[b] + 1
-                    nxt.append(a)
-        frontier = nxt
-    for a in range(len(adjacency)):
-        adjacency[a].sort(key=lambda v: -distance[v])
-
+    net = _SplitNetwork(dag, xs, ys, inner)
     found: set[str] = set(known) & relevant
     for c in inner:
         if c in found:
             continue
-        starts = set()
-        for p in dag.parents[c]:
-            if p in index:
-                starts.add(2 * index[p])
-            elif p in xs:
-                starts.add(side_x)
-            elif p in ys:
-                starts.add(side_y)
+        starts = {e for p in dag.parents[c] if (e := net.entry(p, xs, ys)) is not None}
         if len(starts) < 2:
             continue
-        blocked = {2 * index[c], 2 * index[c] + 1}
-        changed: list[tuple[int, int]] = []
-        used_starts: set[int] = set()
-        flow = 0
-        for _ in range(2):
-            # Depth-first, nearest-to-a-side first (distances precomputed once on
-            # the full network), so a path is usually found after a few steps.
-            back: dict[int, int] = {}
-            stack = [(s, source) for s in sorted(starts, key=lambda v: -distance[v])
-                     if s not in used_starts and s not in blocked]
-            reached = False
-            while stack:
-                a, parent = stack.pop()
-                if a in back:
-                    continue
-                back[a] = parent
-                if a == sink:
-                    reached = True
-                    break
-                stack.extend((b, a) for b in adjacency[a]
-                             if b not in back and b not in blocked and capacity[(a, b)] > 0)
-            if not reached:
-                break
-            flow += 1
-            b = sink
-            while back[b] != source:
-                a = back[b]
-                capacity[(a, b)] -= 1
-                capacity[(b, a)] += 1
-                changed.append((a, b))
-                b = a
-            used_starts.add(b)
-        for a, b in changed:
-            capacity[(a, b)] += 1
-            capacity[(b, a)] -= 1
-        if flow >= 2:
+        i = net.index[c]
+        if net.two_disjoint(starts, {2 * i, 2 * i + 1}):
             found.add(c)
     return found

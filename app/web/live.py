@@ -28,7 +28,8 @@ from typing import Any
 from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
 from ..store import Store
 from ..workshop.commands import add_member, apply_command, new_workshop, public_event, read_document
-from ..workshop.disputes import analyse_workshop, analysis_key, slim_for_push
+from ..workshop.disputes import analyse_workshop, analysis_key
+from .push import slim_for_push
 from ..workshop.models import Member, Workshop
 from ..workshop.views import change_patch, public_state
 

@@ -15,7 +15,7 @@ from typing import Any, Callable
 from ..errors import AppError, BadRequest, Conflict, Forbidden, InvalidDiagram, NotFound
 from ..graph.document import check_name, parse_document
 from ..graph.errors import DiagramError
-from . import layout
+from ..graph import layout
 from .models import (
     PROPOSAL_KINDS, VOTE_CHOICES, Member, Proposal, Vote, Workshop, arrow_key,
 )
