@@ -54,8 +54,9 @@ from typing import Iterable, Optional
 
 from .dag import Dag
 from .identification import (
-    SET_CAP, Question, answer_question, has_adjustment_set, is_adjustment_set,
-    is_front_door_set, is_instrument, minimal_adjustment_sets,
+    SET_CAP, Question, answer_question, has_adjustment_set, instrument_candidates, instrument_for,
+    instruments, is_adjustment_set, is_front_door_set, is_instrument, is_separable_from_outcome,
+    minimal_adjustment_sets,
 )
 
 __all__ = [
@@ -197,18 +198,39 @@ class DisputeAnalysis:
 
 @dataclass
 class AbsentArrow:
-    """A left-out arrow whose addition breaks listed answers. ``consequence``: "some"
-    (other listed answers remain), "new-set" (a different adjustment set would be
-    needed), "none-left" (no listed answer remains)."""
+    """A left-out arrow whose addition would change the engine's answer.
+
+    ``breaks``: listed items that stop holding (adjustment or front-door sets; an
+    instrument as ``[z, *conditioning set]``). ``consequence``:
+
+    * "some": other listed items still hold;
+    * "new-set": every listed set breaks, but another set of the same kind exists;
+    * "none-left": nothing of that strategy remains; ``after`` is the engine's new
+      strategy (None: not identified) and ``after_items`` its first listed items;
+    * "instruments": the instruments change (``breaks``, ``regiven``, ``gained``) and
+      at least one remains;
+    * "identified": an effect not identified becomes identified by an instrument.
+
+    ``regiven``: ``(z, old conditioning set, new one)`` for an instrument that stays one
+    only given another set; ``gained``: new instruments as ``[z, *conditioning set]``.
+    """
 
     source: str
     target: str
     breaks: list[list[str]]
     consequence: str
+    after: str | None = None
+    after_items: list[list[str]] = field(default_factory=list)
+    regiven: list[tuple[str, list[str], list[str]]] = field(default_factory=list)
+    gained: list[list[str]] = field(default_factory=list)
 
     @property
     def severity(self) -> int:
-        return {"some": 1, "new-set": 2, "none-left": 3}[self.consequence]
+        """3: identification lost; 2: the strategy or every listed item changes, or
+        identification is gained; 1: some listed items change."""
+        if self.consequence == "none-left":
+            return 3 if self.after is None else 2
+        return 2 if self.consequence in ("new-set", "identified") else 1
 
 
 @dataclass
@@ -654,59 +676,160 @@ def _listed_answers(result: dict) -> tuple[str | None, list[list[str]]]:
     return None, []
 
 
-def _still_holds(q: Question, answer: str, item: list[str]) -> bool:
-    if answer == "adjustment":
-        return is_adjustment_set(q, item)
-    if answer == "front-door":
-        return is_front_door_set(q, item)
-    return is_instrument(q, item[0], item[1:])
+def _items_of(answer: dict) -> list[list[str]]:
+    return _listed_answers(answer)[1]
 
 
-def _consequence(q: Question, answer: str, broken: int, listed: int) -> str:
-    if broken < listed:
-        return "some"
-    if answer == "adjustment" and has_adjustment_set(q):
-        return "new-set"
-    return "none-left"
+class _SetCheck:
+    """What an added arrow does to listed adjustment or front-door sets.
+
+    Adding an arrow never makes an invalid adjustment set valid (module notes, fact 1),
+    and never makes a set a front-door set: each of Pearl's three conditions is a
+    directed-path or d-separation statement that extra arrows can only violate. So the
+    listed minimal sets change exactly when one of them breaks, and then the engine is
+    asked again only when all of them break.
+    """
+
+    def __init__(self, answer: str, listed: list[list[str]]):
+        self.answer, self.listed = answer, listed
+
+    def holds(self, q: Question, item: list[str]) -> bool:
+        return is_adjustment_set(q, item) if self.answer == "adjustment" else is_front_door_set(q, item)
+
+    def change(self, q: Question, u: str, v: str) -> AbsentArrow | None:
+        broken = [i for i in self.listed if not self.holds(q, i)]
+        if not broken:
+            return None
+        if len(broken) < len(self.listed):
+            return AbsentArrow(u, v, broken, "some")
+        if self.answer == "adjustment" and has_adjustment_set(q):
+            return AbsentArrow(u, v, broken, "new-set")
+        after = answer_question(q)
+        if after.get("strategy") == self.answer:
+            return AbsentArrow(u, v, broken, "new-set")
+        return AbsentArrow(u, v, broken, "none-left", after.get("strategy"), _items_of(after)[:3])
+
+
+class _InstrumentCheck:
+    """What an added arrow does to the instruments (the answer is "instrument" or none).
+
+    No adjustment or front-door set can appear (see :class:`_SetCheck`), but instruments
+    can: extra arrows can d-connect a variable to the treatment. Whether z is an
+    instrument, and with which conditioning set, depends only on the subgraph induced
+    by an(Y u {z}) (:func:`~app.graph.identification.instrument_for`), so an arrow
+    u -> v can change it only when v is in an(Y u {z}); and a variable that no allowed
+    set separates from Y never becomes an instrument
+    (:func:`~app.graph.identification.is_separable_from_outcome`).
+    """
+
+    def __init__(self, q: Question, answer: str | None, listed: list[list[str]]):
+        self.answer = answer
+        self.old = {i[0]: i[1:] for i in listed}
+        self.full = not q.cn  # a first causal path changes every candidate
+        self.watch = set(self.old) | {z for z in instrument_candidates(q)
+                                      if z not in self.old and is_separable_from_outcome(q, z)}
+        self.outcome_ancestors = q.dag.ancestors(q.ys)
+
+    def affected(self, dag: Dag, v: str) -> set[str] | None:
+        """Variables whose status an arrow into v may change (None: all of them)."""
+        if self.full:
+            return None
+        return set(self.watch) if v in self.outcome_ancestors else self.watch & dag.descendants([v])
+
+    def change(self, q: Question, u: str, v: str, affected: set[str] | None) -> AbsentArrow | None:
+        if affected is None:
+            new = {i["instrument"]: i["given"] for i in instruments(q)}
+            affected = set(new) | set(self.old)
+        else:
+            new = {z: g for z, g in self.old.items() if z not in affected}
+            for z in affected:
+                entry = instrument_for(q, z)
+                if entry is not None:
+                    new[z] = entry["given"]
+        lost = [[z, *self.old[z]] for z in sorted(affected) if z in self.old and z not in new]
+        regiven = [(z, self.old[z], new[z]) for z in sorted(affected) if z in self.old and z in new
+                   and not is_instrument(q, z, self.old[z])]
+        gained = [[z, *new[z]] for z in sorted(new) if z not in self.old]
+        if not (lost or regiven or gained):
+            return None
+        broken = lost + [[z, *old] for z, old, _ in regiven]
+        if self.answer is None:
+            return AbsentArrow(u, v, [], "identified", "instrument", gained[:3], gained=gained)
+        if not new:
+            return AbsentArrow(u, v, broken, "none-left", None)
+        return AbsentArrow(u, v, broken, "instruments", regiven=regiven, gained=gained)
 
 
 def find_absent_arrows(dag: Dag, xs: Iterable[str], ys: Iterable[str], observed: Iterable[str],
                        result: dict) -> AbsentArrows:
-    """Arrows not drawn whose addition would break what the engine answered.
+    """Arrows not drawn whose addition would change the engine's answer.
 
-    The minimal adjustment sets when adjustment works; the front-door sets or
-    instruments when the effect is identified that way instead. Only arrows into
-    an(X u Y u listed variables) can matter (module notes, fact 2); each candidate is
-    one check per listed answer, stopping after ABSENT_BUDGET_S.
+    Parameters
+    ----------
+    dag : Dag
+        The diagram as drawn.
+    xs, ys, observed : iterable of str
+        Treatment, outcome and measured variables.
+    result : dict
+        The engine's answer for the diagram (:func:`~app.graph.identification.answer_question`).
+
+    Returns
+    -------
+    AbsentArrows
+        Every arrow whose addition keeps the diagram acyclic and changes the answer:
+        the listed minimal adjustment sets or front-door sets (:class:`_SetCheck`), or
+        the instruments, including new ones for an effect not identified
+        (:class:`_InstrumentCheck`). Stops after ABSENT_BUDGET_S and says so.
     """
     xs, ys, observed = set(xs), set(ys), set(observed)
     answer, listed = _listed_answers(result)
     more = answer == "adjustment" and bool(result.get("more_sets_exist"))
-    if answer is None:
-        return AbsentArrows(None, [], 0, False)
-    dag = Dag(dag.nodes, dag.edges())  # a private copy: arrows are added and removed in place
-    relevant = dag.ancestors(xs | ys | set().union(*(set(i) for i in listed)))
+    work = Dag(dag.nodes, dag.edges())  # a private copy: arrows are added and removed in place
+    if answer in ("adjustment", "front-door"):
+        sets = _SetCheck(answer, listed)
+        # Only arrows into an(X u Y u listed variables) can matter (module notes, fact 2).
+        targets = sorted(work.ancestors(xs | ys | set().union(*(set(i) for i in listed))))
+        judge = lambda q, u, v, affected: sets.change(q, u, v)  # noqa: E731
+        scope = lambda v: (True, None)  # noqa: E731
+    else:
+        ivs = _InstrumentCheck(Question.on_dag(work, xs, ys, observed), answer, listed)
+        targets, judge = list(work.nodes), ivs.change
+
+        def scope(v: str) -> tuple[bool, set[str] | None]:
+            affected = ivs.affected(work, v)
+            return affected is None or bool(affected), affected
+    found, checked, stopped = _scan(work, targets, scope, judge, xs, ys, observed)
+    return AbsentArrows(answer, found, checked, stopped, more)
+
+
+def _scan(dag: Dag, targets: list[str], scope, judge, xs: set[str], ys: set[str],
+          observed: set[str]) -> tuple[list[AbsentArrow], int, bool]:
+    """Add each arrow u -> v (v in ``targets``) that is not drawn and closes no cycle, and
+    ask ``judge``; ``scope(v)`` says whether an arrow into v can matter at all, and what
+    it may affect."""
     linked = {frozenset(e) for e in dag.edges()}
     found: list[AbsentArrow] = []
     checked, started = 0, time.perf_counter()
-    for v in sorted(relevant):
+    for v in targets:
+        matters, affected = scope(v)
+        if not matters:
+            continue
         if time.perf_counter() - started > ABSENT_BUDGET_S:
-            return AbsentArrows(answer, found, checked, True, more)
+            return found, checked, True
         descendants_of_v = dag.descendants([v])
         for u in dag.nodes:
             if u == v or frozenset((u, v)) in linked or u in descendants_of_v:
                 continue  # drawn already, or the new arrow would close a cycle
             checked += 1
             if checked % 64 == 0 and time.perf_counter() - started > ABSENT_BUDGET_S:
-                return AbsentArrows(answer, found, checked, True, more)
+                return found, checked, True
             dag.parents[v].add(u)
             dag.children[u].add(v)
             try:
-                q = Question.on_dag(dag, xs, ys, observed)
-                broken = [i for i in listed if not _still_holds(q, answer, i)]
-                if broken:
-                    found.append(AbsentArrow(u, v, broken, _consequence(q, answer, len(broken), len(listed))))
+                change = judge(Question.on_dag(dag, xs, ys, observed), u, v, affected)
+                if change is not None:
+                    found.append(change)
             finally:
                 dag.parents[v].discard(u)
                 dag.children[u].discard(v)
-    return AbsentArrows(answer, found, checked, False, more)
+    return found, checked, False

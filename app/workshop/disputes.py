@@ -15,7 +15,7 @@ from typing import Any
 from ..graph import disputes as engine
 from ..graph.dag import Dag
 from ..graph.disputes import (
-    COMBINATION_BUDGET_S, EXACT_LIMIT, FULLEST_CAP, SAMPLE_SEED, ABSENT_BUDGET_S, AbsentArrows,
+    COMBINATION_BUDGET_S, EXACT_LIMIT, FULLEST_CAP, SAMPLE_SEED, ABSENT_BUDGET_S, AbsentArrow, AbsentArrows,
     Answer, CombinationCheck, CommonSets, Dispute, DisputeEffects, OptionEffect,
 )
 from ..graph.errors import DiagramError
@@ -166,28 +166,61 @@ def dispute_report(diagram, items: list[dict[str, Any]], base_result: dict,
 # Absent arrows
 # ---------------------------------------------------------------------------
 
-def _absent_text(answer: str, consequence: str, broken: list[list[str]]) -> str:
-    if answer == "adjustment":
-        if consequence == "some":
+def _instrument_text(item: list[str]) -> str:
+    return item[0] + (f" given {_braced(item[1:])}" if item[1:] else "")
+
+
+def _after_text(arrow: AbsentArrow) -> str:
+    """What the engine would answer instead, once nothing of the current strategy is left."""
+    if arrow.after == "front-door":
+        return f"the effect would be identified by the front door through {_braced(arrow.after_items[0])} instead"
+    if arrow.after == "instrument":
+        return (f"{_instrument_text(arrow.after_items[0])} would identify it as an instrument instead "
+                "(under extra assumptions)")
+    return "the effect would not be identified"
+
+
+def _instrument_changes(arrow: AbsentArrow) -> str:
+    parts = [f"{_instrument_text(b)} would stop being an instrument" for b in arrow.breaks
+             if b[0] not in {z for z, _, _ in arrow.regiven}]
+    parts += [f"{z} would stay an instrument only given {_braced(new)} instead of {_braced(old)}"
+              for z, old, new in arrow.regiven]
+    parts += [f"{_instrument_text(g)} would become an instrument" for g in arrow.gained]
+    return "; ".join(parts)
+
+
+def _absent_text(answer: str, arrow: AbsentArrow) -> str:
+    broken = arrow.breaks
+    if arrow.consequence == "identified":
+        return (f"{_instrument_text(arrow.gained[0])} would become an instrument, which identifies the "
+                "effect under extra assumptions (for example a linear, homogeneous effect)")
+    if answer == "instrument":
+        tail = "; other instruments remain" if arrow.consequence == "instruments" else (
+            "; no instrument would remain: the effect would not be identified")
+        return _instrument_changes(arrow) + tail
+    kind = "minimal adjustment set" if answer == "adjustment" else "front-door set"
+    if arrow.consequence == "some":
+        if answer == "adjustment":
             return "breaks " + ", ".join(_braced(s) for s in broken) + "; other minimal sets still work"
-        if consequence == "new-set":
-            return "every current minimal set stops working; a different set would be needed"
-        return "no adjustment set would remain: the effect would not be identified by adjustment"
-    if answer == "front-door":
-        if consequence == "some":
-            return ("breaks the front-door set(s) " + ", ".join(_braced(s) for s in broken)
-                    + "; others still work")
-        return "no listed front-door set would remain: the effect would lose its identification"
-    shown = ", ".join(b[0] + (f" given {_braced(b[1:])}" if b[1:] else "") for b in broken)
-    if consequence == "some":
-        return f"{shown} would stop being an instrument; others remain"
-    return f"{shown} would stop being an instrument, and no listed instrument would remain"
+        return "breaks the front-door set(s) " + ", ".join(_braced(s) for s in broken) + "; others still work"
+    if arrow.consequence == "new-set":
+        return f"every current {kind} stops working; a different set would be needed"
+    lead = "no adjustment set would remain" if answer == "adjustment" else "no front-door set would remain"
+    return f"{lead}: {_after_text(arrow)}"
 
 
 def _absent_note(found: AbsentArrows, what: str) -> str:
+    if found.answer is None:
+        note = (f"The effect is not identified. Checked {found.checked} arrow(s) that could be added "
+                f"without a cycle; {len(found.arrows)} would make it identified, each by making a variable "
+                "an instrument (no arrow can create an adjustment or front-door set). Confirm each on "
+                "purpose: leaving an arrow out is an assumption.")
+        if found.stopped_early:
+            note += f" The check stopped after {ABSENT_BUDGET_S:.0f} s; arrows into later variables were not checked."
+        return note
     note = (f"Checked {found.checked} arrow(s) that could be added without a cycle; {len(found.arrows)} "
             f"would change the {what}. Confirm each on purpose: leaving an arrow out is an assumption.")
-    if found.answer != "adjustment":
+    if found.answer in ("front-door", "instrument"):
         note += (" No adjustment set exists, and adding an arrow can never create one, so only the "
                  f"{what} are at stake.")
     if found.more_sets_exist:
@@ -202,17 +235,13 @@ def absent_arrow_report(diagram, base_result: dict) -> dict[str, Any]:
     (:func:`app.graph.disputes.find_absent_arrows`), as the panel shows it."""
     found = engine.find_absent_arrows(Dag.from_diagram(diagram), diagram.treatment, diagram.outcome,
                                       diagram.observed, base_result)
-    if found.answer is None:
-        return {"arrows": [], "checked": 0, "answer": None,
-                "note": "The effect is not identified, and adding arrows can never make it identified, "
-                        "so no left-out arrow is listed."}
-    what = ANSWER_WORDS[found.answer]
+    what = ANSWER_WORDS.get(found.answer, "")
     arrows = sorted(found.arrows, key=lambda a: (-a.severity, a.source, a.target))
-    listed = [{"from": a.source, "to": a.target, "text": _absent_text(found.answer, a.consequence, a.breaks),
+    listed = [{"from": a.source, "to": a.target, "text": _absent_text(found.answer, a),
                "severity": a.severity, "breaks": a.breaks} for a in arrows[:ABSENT_LIST_CAP]]
     return {"arrows": listed, "capped": len(arrows) > ABSENT_LIST_CAP, "total": len(arrows),
-            "answer": what, "checked": found.checked, "stopped_early": found.stopped_early,
-            "note": _absent_note(found, what)}
+            "answer": what if found.answer else None, "checked": found.checked,
+            "stopped_early": found.stopped_early, "note": _absent_note(found, what)}
 
 
 # ---------------------------------------------------------------------------
