@@ -207,7 +207,7 @@ def test_diagram_svg_follows_the_visual_language():
     svg = diagram_svg(diagram, adjusted=["age", "fitness"], disputed=[("fitness", "bike_lease")],
                       proposed=[("commute_km", "fitness")])
     root = ET.fromstring(svg)
-    lines = [el for el in root.iter(SVG_NS + "line") if "am-arrow" in (el.get("class") or "")]
+    lines = [el for el in root.iter(SVG_NS + "path") if "am-arrow" in (el.get("class") or "")]
     assert len(lines) == len(diagram.arrows) + 1
     dashes = {el.get("class").split()[-1]: el.get("stroke-dasharray") for el in lines}
     assert dashes == {"am-arrow-drawn": None, "am-arrow-disputed": "11 6", "am-arrow-proposed": "3 5"}

@@ -18,34 +18,16 @@ from html import escape
 from typing import Iterable
 
 from ..graph.document import Diagram
+from .visual import SPEC, Node, Route, box_size, hexagon, label_lines, place_badge, ring_rectangle, route_arrows, text_width
 
 __all__ = ["diagram_svg", "legend_svg", "label_lines", "text_width"]
 
-BOX_HEIGHT = 46
-MIN_WIDTH = 96
-MAX_WIDTH = 240
-LINE_WIDTH = 190
 PAD = 48
-
-NODE_STROKE = "#2b3140"
-LATENT_STROKE = "#5b6270"
-TREAT_STROKE = "#6e4300"
-TREAT_FILL = "#fbe3b4"
-OUTCOME_STROKE = "#1d3f66"
-OUTCOME_FILL = "#d6e6f5"
-LABEL = "#1d2330"
-TAG = "#5d6472"
-EDGE = "#39404d"
-DISPUTED = "#8f5300"
-PROPOSED = "#7d8594"
-ROLE = "#6b7785"
-FONT = "system-ui, -apple-system, 'Segoe UI', sans-serif"
-
-# Generous average advance of a semibold 15 px sans-serif glyph, by character class
-# (wide fonts such as DejaVu Sans must still fit inside the box).
-_NARROW = set("iljtfrI.,:;'!|()[] ")
-_WIDE = set("mwMW@%")
-
+_V = SPEC["variables"]
+_ARROWS = SPEC["arrows"]["kinds"]
+FONT = SPEC["font"]["family"].replace("'", "&apos;")
+LABEL = SPEC["label"]["fill"]
+MUTED = SPEC["role"]["fill"]
 
 _NOT_XML = re.compile("[\ud800-\udfff\ufffe\uffff]")
 
@@ -55,145 +37,112 @@ def _x(text: object) -> str:
     return escape(_NOT_XML.sub("\ufffd", str(text)), quote=True)
 
 
-def text_width(text: str, size: float = 15.0) -> float:
-    """An estimate of the rendered width of ``text`` (no font metrics on the server)."""
-    units = 0.0
-    for ch in text:
-        if ch in _NARROW:
-            units += 0.36
-        elif ch in _WIDE:
-            units += 0.95
-        elif ch.isupper():
-            units += 0.74
-        elif ch.isdigit():
-            units += 0.66
-        else:
-            units += 0.63
-    return units * size
-
-
-def label_lines(text: str) -> list[str]:
-    """At most two lines of LINE_WIDTH, the second ending in an ellipsis when cut."""
-    if text_width(text) <= LINE_WIDTH:
-        return [text]
-    words = text.split(" ")
-    lines: list[str] = []
-    line = ""
-    for word in words:
-        candidate = f"{line} {word}" if line else word
-        if text_width(candidate) <= LINE_WIDTH or not line:
-            line = candidate
-        else:
-            lines.append(line)
-            line = word
-    lines.append(line)
-    if len(lines) > 2:
-        lines = [lines[0], " ".join(lines[1:])]
-    out = []
-    for i, ln in enumerate(lines):
-        if text_width(ln) > LINE_WIDTH:
-            cut = ln
-            while len(cut) > 3 and text_width(cut + "…") > LINE_WIDTH:
-                cut = cut[:-1]
-            ln = cut + "…"
-        out.append(ln)
-    return out
-
-
 def _size(label: str) -> tuple[float, float, list[str]]:
-    lines = label_lines(label)
-    width = max(MIN_WIDTH, min(MAX_WIDTH, max(text_width(ln) for ln in lines) + 34))
-    height = BOX_HEIGHT + 18 if len(lines) > 1 else BOX_HEIGHT
-    return width, height, lines
+    return box_size(label)
 
 
-def _clip(width: float, height: float, dx: float, dy: float) -> tuple[float, float]:
-    hw, hh = width / 2 + 4, height / 2 + 4
-    if dx == 0 and dy == 0:
-        return 0.0, 0.0
-    t = min(hw / abs(dx) if dx else math.inf, hh / abs(dy) if dy else math.inf)
-    return dx * t, dy * t
+def _attrs(**pairs) -> str:
+    """SVG attributes from keyword pairs (underscores become hyphens; None is left out)."""
+    return "".join(f' {k.replace("_", "-")}="{v}"' for k, v in pairs.items() if v is not None)
+
+
+def _arrow_attrs(kind: str, prefix: str) -> str:
+    k = _ARROWS[kind]
+    return _attrs(fill="none", stroke=k["stroke"], stroke_width=k["stroke_width"], stroke_dasharray=k["dash"],
+                  marker_end=f"url(#{prefix}-head-{kind})")
+
+
+def _shape_attrs(prefix: str, *, latent: bool = False, treatment: bool = False, outcome: bool = False) -> str:
+    fill, stroke, width, dash = (_V["measured"][k] for k in ("fill", "stroke", "stroke_width", "dash"))
+    if latent:
+        fill, stroke, width, dash = f"url(#{prefix}-hatch)", _V["latent"]["stroke"], _V["latent"]["stroke_width"], _V["latent"]["dash"]
+    if treatment:
+        fill = fill if latent else _V["treatment"]["fill"]
+        stroke, width = _V["treatment"]["stroke"], _V["treatment"]["stroke_width"]
+    elif outcome:
+        fill = fill if latent else _V["outcome"]["fill"]
+        stroke, width = _V["outcome"]["stroke"], _V["outcome"]["stroke_width"]
+    return _attrs(fill=fill, stroke=stroke, stroke_width=width, stroke_dasharray=dash)
+
+
+def _ring_attrs(ring: dict) -> str:
+    return _attrs(fill="none", stroke=ring["stroke"], stroke_width=ring["stroke_width"],
+                  stroke_dasharray=ring.get("dash"), stroke_linecap=ring.get("linecap"))
 
 
 def _defs(prefix: str) -> str:
-    def marker(name: str, colour: str) -> str:
-        return (f'<marker id="{prefix}-{name}" viewBox="0 0 12 12" refX="11" refY="6" markerWidth="11" '
-                f'markerHeight="11" markerUnits="userSpaceOnUse" orient="auto-start-reverse">'
-                f'<path d="M0,1 L12,6 L0,11 L3,6 z" fill="{colour}"/></marker>')
-    return ("<defs>" + marker("head", EDGE) + marker("head-disputed", DISPUTED) + marker("head-proposed", PROPOSED)
-            + f'<pattern id="{prefix}-hatch" width="8" height="8" patternUnits="userSpaceOnUse" '
-              'patternTransform="rotate(45)"><rect width="8" height="8" fill="#f1f2f4"/>'
-              '<line x1="0" y1="0" x2="0" y2="8" stroke="#d3d7de" stroke-width="3"/></pattern></defs>')
+    m, h = SPEC["marker"], SPEC["hatch"]
+
+    def marker(kind: str) -> str:
+        return (f'<marker id="{prefix}-head-{kind}" viewBox="{m["view_box"]}" refX="{m["ref_x"]}" refY="{m["ref_y"]}" '
+                f'markerWidth="{m["size"]}" markerHeight="{m["size"]}" markerUnits="userSpaceOnUse" '
+                f'orient="auto-start-reverse"><path d="{m["path"]}" fill="{_ARROWS[kind]["head"]}"/></marker>')
+    return ("<defs>" + "".join(marker(k) for k in _ARROWS)
+            + f'<pattern id="{prefix}-hatch" width="{h["size"]}" height="{h["size"]}" patternUnits="userSpaceOnUse" '
+              f'patternTransform="rotate({h["angle"]})"><rect width="{h["size"]}" height="{h["size"]}" fill="{h["background"]}"/>'
+              f'<line x1="0" y1="0" x2="0" y2="{h["size"]}" stroke="{h["line"]}" stroke-width="{h["line_width"]}"/></pattern></defs>')
 
 
 def _node(prefix: str, name: str, label: str, x: float, y: float, *, latent: bool, treatment: bool,
           outcome: bool, adjusted: bool, roles: list[str]) -> tuple[str, tuple[float, float, float, float]]:
-    width, height, lines = _size(label)
+    width, height, lines = box_size(label)
     hw, hh = width / 2, height / 2
     parts = [f'<g class="am-node" transform="translate({x:.1f},{y:.1f})">', f"<title>{_x(name)}</title>"]
+    ring = SPEC["rings"]["adjusted"]
     if adjusted:
-        parts.append(f'<rect x="{-hw - 8:.1f}" y="{-hh - 8:.1f}" width="{width + 16:.1f}" height="{height + 16:.1f}" '
-                     f'rx="12" fill="none" stroke="{NODE_STROKE}" stroke-width="3.2" stroke-dasharray="0.5 6" '
-                     'stroke-linecap="round"/>')
-    if latent:
-        fill, stroke, dash, sw = f"url(#{prefix}-hatch)", LATENT_STROKE, ' stroke-dasharray="6 4"', 1.6
-    else:
-        fill, stroke, dash, sw = "#fff", NODE_STROKE, "", 1.6
+        rx, ry, rw, rh, rr = ring_rectangle(width, height, treatment, ring)
+        parts.append(f'<rect class="adjust-ring" x="{rx:.1f}" y="{ry:.1f}" width="{rw:.1f}" height="{rh:.1f}" rx="{rr}"'
+                     f'{_ring_attrs(ring)}/>')
+    look = _shape_attrs(prefix, latent=latent, treatment=treatment, outcome=outcome)
     if treatment:
-        fill = TREAT_FILL if not latent else fill
-        stroke, sw = TREAT_STROKE, 2.6
-        tip = 14
-        pts = [(-hw, -hh), (hw, -hh), (hw + tip, 0), (hw, hh), (-hw, hh), (-hw - tip, 0)]
-        parts.append('<polygon points="' + " ".join(f"{a:.1f},{b:.1f}" for a, b in pts)
-                     + f'" fill="{fill}" stroke="{stroke}" stroke-width="{sw}"{dash}/>')
+        pts = hexagon(hw, hh)
+        parts.append('<polygon class="shape" points="' + " ".join(f"{a:.1f},{b:.1f}" for a, b in pts) + f'"{look}/>')
     else:
+        parts.append(f'<rect class="shape" x="{-hw:.1f}" y="{-hh:.1f}" width="{width:.1f}" height="{height:.1f}" '
+                     f'rx="{_V["measured"]["corner"]}"{look}/>')
         if outcome:
-            fill = OUTCOME_FILL if not latent else fill
-            stroke = OUTCOME_STROKE
-        parts.append(f'<rect x="{-hw:.1f}" y="{-hh:.1f}" width="{width:.1f}" height="{height:.1f}" rx="8" '
-                     f'fill="{fill}" stroke="{stroke}" stroke-width="{sw}"{dash}/>')
-        if outcome:
-            parts.append(f'<rect x="{-hw + 4:.1f}" y="{-hh + 4:.1f}" width="{width - 8:.1f}" height="{height - 8:.1f}" '
-                         f'rx="5" fill="none" stroke="{OUTCOME_STROKE}" stroke-width="1.3"/>')
-    style = ' font-style="italic" font-weight="500"' if latent else ' font-weight="600"'
+            o = _V["outcome"]
+            inset = o["inner_inset"]
+            parts.append(f'<rect class="shape-inner" x="{-hw + inset:.1f}" y="{-hh + inset:.1f}" width="{width - 2 * inset:.1f}" '
+                         f'height="{height - 2 * inset:.1f}" rx="{o["inner_corner"]}"'
+                         + _attrs(fill="none", stroke=o["stroke"], stroke_width=o["inner_stroke_width"]) + "/>")
+    lab, box = SPEC["label"], SPEC["box"]
+    style = _attrs(font_style=lab["latent_style"] if latent else None,
+                   font_weight=lab["latent_weight"] if latent else lab["weight"])
     for i, line in enumerate(lines):
-        ly = 5 + (i - (len(lines) - 1) / 2) * 18
-        parts.append(f'<text x="0" y="{ly:.1f}" text-anchor="middle" font-size="15" fill="{LABEL}"{style}>'
-                     f"{_x(line)}</text>")
+        ly = box["baseline"] + (i - (len(lines) - 1) / 2) * box["line_gap"]
+        parts.append(f'<text class="label" x="0" y="{ly:.1f}" text-anchor="middle" font-size="{lab["size"]}" '
+                     f'fill="{lab["fill"]}"{style}>{_x(line)}</text>')
     tags = [t for t, on in (("TREATMENT", treatment), ("OUTCOME", outcome), ("UNMEASURED", latent),
                             ("ADJUSTED", adjusted)) if on]
-    top = -hh - (13 if adjusted else 7)
+    tag, role = SPEC["tag"], SPEC["role"]
+    top = -hh - (tag["gap_adjusted"] if adjusted else tag["gap"])
     if tags:
-        parts.append(f'<text x="0" y="{top:.1f}" text-anchor="middle" font-size="10" font-weight="700" '
-                     f'letter-spacing="1.2" fill="{TAG}">{_x(" · ".join(tags))}</text>')
+        parts.append(f'<text class="tag" x="0" y="{top:.1f}" text-anchor="middle"'
+                     + _attrs(font_size=tag["size"], font_weight=tag["weight"], letter_spacing=tag["letter_spacing"],
+                              fill=tag["fill"]) + f'>{_x(" · ".join(tags))}</text>')
     shown_roles = [r.replace("_", " ") for r in roles if r not in ("treatment", "outcome", "unrelated")]
-    bottom = hh + (24 if adjusted else 16)
+    bottom = hh + (role["gap_adjusted"] if adjusted else role["gap"])
     if shown_roles:
-        parts.append(f'<text x="0" y="{bottom:.1f}" text-anchor="middle" font-size="12" font-style="italic" '
-                     f'fill="{ROLE}">{_x(", ".join(shown_roles))}</text>')
+        parts.append(f'<text class="role" x="0" y="{bottom:.1f}" text-anchor="middle"'
+                     + _attrs(font_size=role["size"], font_style=role["style"], fill=role["fill"])
+                     + f'>{_x(", ".join(shown_roles))}</text>')
     parts.append("</g>")
-    extra_w = 14 if treatment else 0
-    label_w = max([text_width(", ".join(shown_roles), 12) / 2] if shown_roles else [0])
-    bbox = (x - max(hw + extra_w + 8, label_w), y + min(top - 10, -hh - 8),
-            x + max(hw + extra_w + 8, label_w), y + max(bottom + 4, hh + 8))
+    extra_w = _V["treatment"]["tip"] if treatment else 0
+    label_w = max([text_width(", ".join(shown_roles), role["size"]) / 2] if shown_roles else [0])
+    bbox = (x - max(hw + extra_w + ring["offset"], label_w), y + min(top - 10, -hh - ring["offset"]),
+            x + max(hw + extra_w + ring["offset"], label_w), y + max(bottom + 4, hh + ring["offset"]))
     return "".join(parts), bbox
 
 
-def _badge(x1: float, y1: float, x2: float, y2: float, text: str) -> tuple[str, tuple[float, float, float, float]]:
-    w = text_width(text, 11.5) + 14
-    length = math.hypot(x2 - x1, y2 - y1) or 1.0
-    nx, ny = -(y2 - y1) / length, (x2 - x1) / length
-    if ny > 0:
-        nx, ny = -nx, -ny
-    offset = 15 + abs(nx) * (w / 2 - 8)
-    if length < w + 24:
-        # A short arrow between close boxes: lift the label clear of both boxes.
-        offset = max(offset, 40.0)
-    bx, by = (x1 + x2) / 2 + nx * offset, (y1 + y2) / 2 + ny * offset
+def _badge(route: Route, text: str, nodes, placed: list) -> tuple[str, tuple[float, float, float, float]]:
+    b = SPEC["badge"]
+    bx, by, w, h = place_badge(route, text, nodes, placed)
     svg = (f'<g class="am-badge" transform="translate({bx:.1f},{by:.1f})">'
-           f'<rect x="{-w / 2:.1f}" y="-11" width="{w:.1f}" height="22" rx="4" fill="#fff" stroke="#9aa0aa"/>'
-           f'<text x="0" y="5" text-anchor="middle" font-size="11.5" font-weight="600" fill="{LABEL}">{_x(text)}</text></g>')
-    return svg, (bx - w / 2, by - 11, bx + w / 2, by + 11)
+           f'<rect x="{-w / 2:.1f}" y="{-h / 2:.1f}" width="{w:.1f}" height="{h}" rx="{b["corner"]}" fill="{b["fill"]}" '
+           f'stroke="{b["stroke"]}"/><text x="0" y="{b["baseline"]}" text-anchor="middle" font-size="{b["size"]}" '
+           f'font-weight="{b["weight"]}" fill="{b["text_fill"]}">{_x(text)}</text></g>')
+    return svg, (bx - w / 2, by - h / 2, bx + w / 2, by + h / 2)
 
 
 def _spread(pos: dict[str, tuple[float, float]], sizes: dict[str, tuple[float, float]],
@@ -250,27 +199,29 @@ def diagram_svg(diagram: Diagram, *, adjusted: Iterable[str] = (), roles: dict |
         x = v.x if v.x is not None else 160.0 + 220.0 * (i % 4)
         y = v.y if v.y is not None else 100.0 + 130.0 * (i // 4)
         pos[v.name] = (float(x), float(y))
-        w, h, _ = _size(v.label or v.name)
+        w, h, _ = box_size(v.label or v.name)
         sizes[v.name] = (w, h)
     _spread(pos, sizes, treatment)
+    nodes = {name: Node(x, y, *sizes[name], treatment=name in treatment, adjusted=name in adjusted)
+             for name, (x, y) in pos.items()}
+    # Drawn arrows first, then proposed ones, routed together as on the canvas.
+    edges: list[tuple[str, str, str]] = []
+    for arrow in diagram.arrows:
+        key = (arrow.source, arrow.target)
+        edges.append((arrow.source, arrow.target, "disputed" if key in disputed else "drawn"))
+    for a, b in proposed:
+        if a in pos and b in pos and not diagram.has_arrow(a, b):
+            edges.append((a, b, "proposed"))
+    routes = route_arrows(nodes, [(a, b) for a, b, _ in edges])
     boxes: list[tuple[float, float, float, float]] = []
     edge_parts: list[str] = []
     badge_parts: list[str] = []
-
-    def edge(a: str, b: str, kind: str) -> None:
-        (ax, ay), (bx, by) = pos[a], pos[b]
-        dx, dy = bx - ax, by - ay
-        sx, sy = _clip(*sizes[a], dx, dy)
-        ex, ey = _clip(*sizes[b], -dx, -dy)
-        x1, y1, x2, y2 = ax + sx, ay + sy, bx + ex, by + ey
-        if kind == "disputed":
-            attrs = f'stroke="{DISPUTED}" stroke-width="2.2" stroke-dasharray="11 6" marker-end="url(#{prefix}-head-disputed)"'
-        elif kind == "proposed":
-            attrs = f'stroke="{PROPOSED}" stroke-width="2" stroke-dasharray="3 5" marker-end="url(#{prefix}-head-proposed)"'
-        else:
-            attrs = f'stroke="{EDGE}" stroke-width="1.9" marker-end="url(#{prefix}-head)"'
-        edge_parts.append(f'<line class="am-arrow am-arrow-{kind}" x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" '
-                          f'y2="{y2:.1f}" fill="none" {attrs}><title>{_x(a)} → {_x(b)}</title></line>')
+    placed: list = []
+    for (a, b, kind), route in zip(edges, routes):
+        if route is None:
+            continue
+        edge_parts.append(f'<path class="am-arrow am-arrow-{kind}" d="{route.d}"{_arrow_attrs(kind, prefix)}>'
+                          f"<title>{_x(a)} → {_x(b)}</title></path>")
         words = []
         if kind == "disputed":
             words.append("disputed")
@@ -279,16 +230,9 @@ def diagram_svg(diagram: Diagram, *, adjusted: Iterable[str] = (), roles: dict |
         elif kind == "proposed":
             words.append("add?")
         if words:
-            svg, box = _badge(x1, y1, x2, y2, "  ".join(words))
+            svg, box = _badge(route, "  ".join(words), nodes.values(), placed)
             badge_parts.append(svg)
             boxes.append(box)
-
-    for arrow in diagram.arrows:
-        key = (arrow.source, arrow.target)
-        edge(arrow.source, arrow.target, "disputed" if key in disputed else "drawn")
-    for a, b in proposed:
-        if a in pos and b in pos and not diagram.has_arrow(a, b):
-            edge(a, b, "proposed")
     node_parts = []
     for v in diagram.variables:
         x, y = pos[v.name]
@@ -297,6 +241,11 @@ def diagram_svg(diagram: Diagram, *, adjusted: Iterable[str] = (), roles: dict |
                          adjusted=v.name in adjusted, roles=list(roles.get(v.name, [])))
         node_parts.append(svg)
         boxes.append(box)
+    for route in routes:  # a bent arrow can reach beyond the boxes
+        if route is not None and route.control is not None:
+            cx, cy = route.control
+            mx, my = (route.x1 + 2 * cx + route.x2) / 4, (route.y1 + 2 * cy + route.y2) / 4
+            boxes.append((mx, my, mx, my))
     if boxes:
         min_x = min(b[0] for b in boxes) - PAD / 2
         min_y = min(b[1] for b in boxes) - PAD / 2
@@ -312,7 +261,7 @@ def diagram_svg(diagram: Diagram, *, adjusted: Iterable[str] = (), roles: dict |
             f'preserveAspectRatio="xMidYMid meet" font-family="{FONT}">'
             f"<title>{_x(title)}</title><desc>{_x(desc)}</desc>")
     if not diagram.variables:
-        return head + f'<text x="200" y="60" text-anchor="middle" fill="{ROLE}">No variables were drawn.</text></svg>'
+        return head + f'<text x="200" y="60" text-anchor="middle" fill="{MUTED}">No variables were drawn.</text></svg>'
     return head + _defs(prefix) + "".join(edge_parts) + "".join(node_parts) + "".join(badge_parts) + "</svg>"
 
 
@@ -327,27 +276,25 @@ def legend_svg(prefix: str = "aml") -> str:
         ("outcome", "Outcome (double border)"),
         ("adjusted", "In the adjustment set (dotted ring)"),
     ]
+    ring = SPEC["rings"]["adjusted"]
     for kind, text in items:
         hw, hh = 26, 12
         g = [f'<g transform="translate(44,{y})">']
         if kind == "adjusted":
-            g.append(f'<rect x="{-hw - 6}" y="{-hh - 6}" width="{2 * hw + 12}" height="{2 * hh + 12}" rx="10" fill="none" '
-                     f'stroke="{NODE_STROKE}" stroke-width="3" stroke-dasharray="0.5 5.5" stroke-linecap="round"/>')
+            g.append(f'<rect x="{-hw - 6}" y="{-hh - 6}" width="{2 * hw + 12}" height="{2 * hh + 12}" rx="10"'
+                     f"{_ring_attrs(ring)}/>")
         if kind == "treatment":
             pts = [(-hw, -hh), (hw, -hh), (hw + 9, 0), (hw, hh), (-hw, hh), (-hw - 9, 0)]
-            g.append('<polygon points="' + " ".join(f"{a},{b}" for a, b in pts)
-                     + f'" fill="{TREAT_FILL}" stroke="{TREAT_STROKE}" stroke-width="2.2"/>')
+            g.append('<polygon points="' + " ".join(f"{a},{b}" for a, b in pts) + '"'
+                     + _shape_attrs(prefix, treatment=True) + "/>")
         elif kind == "outcome":
-            g.append(f'<rect x="{-hw}" y="{-hh}" width="{2 * hw}" height="{2 * hh}" rx="6" fill="{OUTCOME_FILL}" '
-                     f'stroke="{OUTCOME_STROKE}" stroke-width="1.6"/>'
-                     f'<rect x="{-hw + 3}" y="{-hh + 3}" width="{2 * hw - 6}" height="{2 * hh - 6}" rx="4" fill="none" '
-                     f'stroke="{OUTCOME_STROKE}" stroke-width="1.2"/>')
-        elif kind == "latent":
-            g.append(f'<rect x="{-hw}" y="{-hh}" width="{2 * hw}" height="{2 * hh}" rx="6" fill="url(#{prefix}-hatch)" '
-                     f'stroke="{LATENT_STROKE}" stroke-width="1.6" stroke-dasharray="6 4"/>')
+            o = _V["outcome"]
+            g.append(f'<rect x="{-hw}" y="{-hh}" width="{2 * hw}" height="{2 * hh}" rx="6"{_shape_attrs(prefix, outcome=True)}/>'
+                     f'<rect x="{-hw + 3}" y="{-hh + 3}" width="{2 * hw - 6}" height="{2 * hh - 6}" rx="4"'
+                     + _attrs(fill="none", stroke=o["stroke"], stroke_width=o["inner_stroke_width"]) + "/>")
         else:
-            g.append(f'<rect x="{-hw}" y="{-hh}" width="{2 * hw}" height="{2 * hh}" rx="6" fill="#fff" '
-                     f'stroke="{NODE_STROKE}" stroke-width="1.6"/>')
+            g.append(f'<rect x="{-hw}" y="{-hh}" width="{2 * hw}" height="{2 * hh}" rx="6"'
+                     f"{_shape_attrs(prefix, latent=kind == 'latent')}/>")
         g.append("</g>")
         rows.append("".join(g))
         rows.append(f'<text x="92" y="{y + 5}" font-size="13" fill="{LABEL}">{_x(text)}</text>')
@@ -355,16 +302,10 @@ def legend_svg(prefix: str = "aml") -> str:
     for kind, text in (("drawn", "Arrow: a direct effect the room agreed on"),
                        ("disputed", "Disputed arrow (long dashes)"),
                        ("proposed", "Proposed arrow, not drawn (short dashes)")):
-        if kind == "disputed":
-            attrs = f'stroke="{DISPUTED}" stroke-width="2.2" stroke-dasharray="11 6" marker-end="url(#{prefix}-head-disputed)"'
-        elif kind == "proposed":
-            attrs = f'stroke="{PROPOSED}" stroke-width="2" stroke-dasharray="3 5" marker-end="url(#{prefix}-head-proposed)"'
-        else:
-            attrs = f'stroke="{EDGE}" stroke-width="1.9" marker-end="url(#{prefix}-head)"'
-        rows.append(f'<line x1="14" y1="{y}" x2="76" y2="{y}" {attrs}/>')
+        rows.append(f'<line x1="14" y1="{y}" x2="76" y2="{y}"{_arrow_attrs(kind, prefix)}/>')
         rows.append(f'<text x="92" y="{y + 5}" font-size="13" fill="{LABEL}">{_x(text)}</text>')
         y += 30
-    rows.append(f'<text x="14" y="{y + 4}" font-size="12" font-style="italic" fill="{ROLE}">'
+    rows.append(f'<text x="14" y="{y + 4}" font-size="12" font-style="italic" fill="{MUTED}">'
                 "Grey italic words under a box: its role for this question.</text>")
     height = y + 16
     return (f'<svg xmlns="http://www.w3.org/2000/svg" class="am-legend" role="img" viewBox="0 0 420 {height}" '

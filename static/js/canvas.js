@@ -3,42 +3,12 @@
 // Visual language: see static/visual-language.md.
 
 import { svg, clear, ROLE_WORDS } from './dom.js';
+import {
+  SPEC, boxSize, routeArrows, placeBadge, ringRectangle, hexagon, arrowAttributes, shapeAttributes,
+} from './visual.js';
 
-const BOX_HEIGHT = 46;
-const MIN_WIDTH = 96;
-const MAX_WIDTH = 240;
-const FONT = '600 15px system-ui, -apple-system, "Segoe UI", sans-serif';
-
-let measureContext = null;
-function textWidth(text) {
-  if (!measureContext) measureContext = document.createElement('canvas').getContext('2d');
-  measureContext.font = FONT;
-  return measureContext.measureText(text).width;
-}
-
-const LINE_WIDTH = 190;
-
-/** Break a label into at most two lines of LINE_WIDTH pixels, ending in an ellipsis if cut. */
-function wrapLabel(text) {
-  if (textWidth(text) <= LINE_WIDTH) return [text];
-  const words = text.split(/\s+/);
-  const lines = [];
-  let line = '';
-  for (const word of words) {
-    const next = line ? `${line} ${word}` : word;
-    if (textWidth(next) <= LINE_WIDTH || !line) line = next;
-    else { lines.push(line); line = word; }
-  }
-  lines.push(line);
-  const out = lines.slice(0, 2);
-  if (lines.length > 2) out[1] = `${out[1]} ${lines.slice(2).join(' ')}`;
-  return out.map((l, i) => {
-    if (textWidth(l) <= LINE_WIDTH && (i === 0 || lines.length <= 2)) return l;
-    let cut = l;
-    while (cut.length > 3 && textWidth(`${cut}…`) > LINE_WIDTH) cut = cut.slice(0, -1);
-    return `${cut}…`;
-  });
-}
+const HATCH = 'url(#hatch-latent)';
+const MARKERS = { drawn: 'head', pending: 'head-pending', disputed: 'head-disputed', proposed: 'head-ghost', selected: 'head-selected' };
 
 /**
  * @typedef {{name: string, label?: string, latent?: boolean, x: number, y: number}} VariableData
@@ -59,7 +29,7 @@ export class Canvas {
     this.model = null;
     this.drag = null;
     this.localPositions = new Map();
-    this.root = svg('svg', { class: 'canvas', role: 'img', 'aria-label': 'Causal diagram', tabindex: '0' });
+    this.root = svg('svg', { class: 'canvas', role: 'img', 'aria-label': 'Causal diagram', tabindex: '0', 'font-family': SPEC.font.family });
     this.root.append(this.buildDefs());
     this.viewport = svg('g', { class: 'viewport' });
     this.layerHalo = svg('g', { class: 'layer-halo' });
@@ -75,15 +45,16 @@ export class Canvas {
   }
 
   buildDefs() {
-    const marker = (id, cls) => svg('marker', {
-      id, viewBox: '0 0 12 12', refX: '11', refY: '6', markerWidth: '11', markerHeight: '11',
+    const m = SPEC.marker;
+    const marker = (id, kind) => svg('marker', {
+      id, viewBox: m.view_box, refX: m.ref_x, refY: m.ref_y, markerWidth: m.size, markerHeight: m.size,
       markerUnits: 'userSpaceOnUse', orient: 'auto-start-reverse',
-    }, svg('path', { d: 'M0,1 L12,6 L0,11 L3,6 z', class: cls }));
-    const hatch = svg('pattern', { id: 'hatch-latent', width: '8', height: '8', patternUnits: 'userSpaceOnUse', patternTransform: 'rotate(45)' },
-      svg('rect', { width: '8', height: '8', class: 'hatch-bg' }),
-      svg('line', { x1: '0', y1: '0', x2: '0', y2: '8', class: 'hatch-line' }));
-    return svg('defs', {}, marker('head', 'head'), marker('head-ghost', 'head-ghost'),
-      marker('head-selected', 'head-selected'), hatch);
+    }, svg('path', { d: m.path, class: id, fill: SPEC.arrows.kinds[kind].head }));
+    const h = SPEC.hatch;
+    const hatch = svg('pattern', { id: 'hatch-latent', width: h.size, height: h.size, patternUnits: 'userSpaceOnUse', patternTransform: `rotate(${h.angle})` },
+      svg('rect', { width: h.size, height: h.size, fill: h.background }),
+      svg('line', { x1: '0', y1: '0', x2: '0', y2: h.size, stroke: h.line, 'stroke-width': h.line_width }));
+    return svg('defs', {}, ...Object.entries(MARKERS).map(([kind, id]) => marker(id, kind)), hatch);
   }
 
   // -- geometry -------------------------------------------------------------------------
@@ -93,12 +64,8 @@ export class Canvas {
 
   /** Box size and label lines for a variable. */
   size(variable) {
-    const lines = wrapLabel(variable.label || variable.name);
-    const width = Math.max(MIN_WIDTH, Math.min(MAX_WIDTH, Math.max(...lines.map(textWidth)) + 34));
-    return { width, height: lines.length > 1 ? BOX_HEIGHT + 18 : BOX_HEIGHT, lines };
+    return boxSize(variable.label || variable.name);
   }
-
-  boxWidth(variable) { return this.size(variable).width; }
 
   toWorld(clientX, clientY) {
     const rect = this.root.getBoundingClientRect();
@@ -128,9 +95,10 @@ export class Canvas {
     let minX = Infinity, minY = Infinity, maxX = -Infinity, maxY = -Infinity;
     for (const v of variables) {
       const p = this.position(v);
-      const half = this.boxWidth(v) / 2 + 40;  // room for the role caption under the box
+      const { width, height } = this.size(v);
+      const half = width / 2 + 40;  // room for the role caption under the box
       minX = Math.min(minX, p.x - half); maxX = Math.max(maxX, p.x + half);
-      minY = Math.min(minY, p.y - BOX_HEIGHT); maxY = Math.max(maxY, p.y + BOX_HEIGHT);
+      minY = Math.min(minY, p.y - height / 2 - 24); maxY = Math.max(maxY, p.y + height / 2 + 30);
     }
     const pad = 30;
     const top = 56 + pad;
@@ -141,22 +109,6 @@ export class Canvas {
     const k = Math.max(0.3, Math.min(1.15, Math.min(usableW / (maxX - minX), usableH / (maxY - minY))));
     this.view = { k, x: pad + (usableW - (maxX - minX) * k) / 2 - minX * k, y: top + (usableH - (maxY - minY) * k) / 2 - minY * k };
     this.applyView();
-  }
-
-  /** Where a line from the centre of a box towards (dx, dy) leaves it. */
-  static clip(box, dx, dy) {
-    const hw = box.width / 2 + 4, hh = box.height / 2 + 4;
-    if (dx === 0 && dy === 0) return { x: 0, y: 0 };
-    const t = Math.min(dx !== 0 ? hw / Math.abs(dx) : Infinity, dy !== 0 ? hh / Math.abs(dy) : Infinity);
-    return { x: dx * t, y: dy * t };
-  }
-
-  endpoints(source, target) {
-    const a = this.position(source), b = this.position(target);
-    const dx = b.x - a.x, dy = b.y - a.y;
-    const start = Canvas.clip(this.size(source), dx, dy);
-    const end = Canvas.clip(this.size(target), -dx, -dy);
-    return { x1: a.x + start.x, y1: a.y + start.y, x2: b.x + end.x, y2: b.y + end.y };
   }
 
   // -- drawing --------------------------------------------------------------------------
@@ -171,38 +123,55 @@ export class Canvas {
     const selection = model.selection;
     clear(this.layerHalo); clear(this.layerEdges); clear(this.layerNodes); clear(this.layerBadges);
 
+    /** @type {Map<string, any>} */
+    const nodes = new Map();
+    for (const v of doc.variables) {
+      const p = this.position(v);
+      const { width, height } = this.size(v);
+      nodes.set(v.name, { x: p.x, y: p.y, width, height, treatment: treatment.has(v.name), adjusted: adjusted.has(v.name) });
+    }
+    this.nodes = nodes;
+
     if (highlight?.nodes) {
-      const nodes = highlight.nodes;
-      for (let i = 0; i + 1 < nodes.length; i++) {
-        const u = byName.get(nodes[i]), w = byName.get(nodes[i + 1]);
-        if (!u || !w) continue;
-        const p = this.position(u), q = this.position(w);
+      const halo = SPEC.halo;
+      const path = highlight.nodes;
+      for (let i = 0; i + 1 < path.length; i++) {
+        const p = nodes.get(path[i]), q = nodes.get(path[i + 1]);
+        if (!p || !q) continue;
         this.layerHalo.append(svg('line', {
-          x1: p.x, y1: p.y, x2: q.x, y2: q.y,
-          class: `halo ${highlight.causal ? 'halo-causal' : 'halo-noncausal'}`,
+          x1: p.x, y1: p.y, x2: q.x, y2: q.y, class: `halo ${highlight.causal ? 'halo-causal' : 'halo-noncausal'}`,
+          stroke: halo.stroke, 'stroke-opacity': halo.opacity, 'stroke-width': halo.width, fill: 'none',
+          'stroke-linecap': highlight.causal ? 'round' : 'butt', 'stroke-dasharray': highlight.causal ? undefined : halo.noncausal_dash,
         }));
       }
     }
 
+    // Drawn arrows first, then proposed ones: routed together, so their ends spread round each box.
+    const edges = [];
     for (const arrow of model.arrows) {
-      const source = byName.get(arrow.from), target = byName.get(arrow.to);
-      if (!source || !target) continue;
+      if (!byName.has(arrow.from) || !byName.has(arrow.to)) continue;
       const key = JSON.stringify([arrow.from, arrow.to]);
       const selected = selection?.kind === 'arrow' && selection.key === key;
       const pending = model.pendingByArrow.get(key) || [];
       const classes = ['edge'];
-      if (arrow.flag === 'disputed' || arrow.contested) classes.push('edge-disputed');
+      const disputed = arrow.flag === 'disputed' || arrow.contested;
+      if (disputed) classes.push('edge-disputed');
       if (selected) classes.push('edge-selected');
       if (pending.length) classes.push('edge-pending');
-      this.layerEdges.append(this.drawEdge(source, target, classes, { key, arrow, pending, selected }));
+      const kind = selected ? 'selected' : disputed ? 'disputed' : pending.length ? 'pending' : 'drawn';
+      edges.push({ from: arrow.from, to: arrow.to, classes, kind, info: { key, arrow, pending, selected } });
     }
     for (const proposal of model.proposals) {
       if (proposal.kind !== 'add' || !['open', 'disputed'].includes(proposal.status)) continue;
-      const source = byName.get(proposal.from), target = byName.get(proposal.to);
-      if (!source || !target) continue;
+      if (!byName.has(proposal.from) || !byName.has(proposal.to)) continue;
       const key = JSON.stringify([proposal.from, proposal.to]);
-      this.layerEdges.append(this.drawEdge(source, target, ['edge', 'edge-proposed'], { key, proposal }));
+      edges.push({ from: proposal.from, to: proposal.to, classes: ['edge', 'edge-proposed'], kind: 'proposed', info: { key, proposal } });
     }
+    const routes = routeArrows(nodes, edges);
+    const placed = [];
+    edges.forEach((edge, i) => {
+      if (routes[i]) this.layerEdges.append(this.drawEdge(routes[i], edge, placed));
+    });
 
     for (const v of doc.variables) {
       const isSelected = selection?.kind === 'variable' && selection.name === v.name;
@@ -215,15 +184,9 @@ export class Canvas {
     else this.applyView();
   }
 
-  drawEdge(source, target, classes, info) {
-    const { x1, y1, x2, y2 } = this.endpoints(source, target);
-    const group = svg('g', { class: classes.join(' '), dataset: { key: info.key, kind: info.proposal ? 'proposal' : 'arrow' } });
-    if (info.proposal) group.dataset.proposal = info.proposal.id;
-    group.append(svg('line', { x1, y1, x2, y2, class: 'edge-hit' }));
-    const head = info.proposal ? 'head-ghost' : info.selected ? 'head-selected' : 'head';
-    group.append(svg('line', { x1, y1, x2, y2, class: 'edge-line', 'marker-end': `url(#${head})` }));
-    const along = info.proposal ? 0.35 : 0.5;  // proposals label nearer their source, so two labels rarely meet
-    const mx = x1 + (x2 - x1) * along, my = y1 + (y2 - y1) * along;
+  /** The words in an arrow's badge: its proposal, dispute, pending changes and tally. */
+  badgeText(edge) {
+    const { info, classes } = edge;
     const badges = [];
     if (info.proposal) {
       const pair = JSON.stringify([info.proposal.from, info.proposal.to].sort());
@@ -236,45 +199,25 @@ export class Canvas {
     for (const p of info.pending || []) badges.push(`#${p.id} ${p.kind === 'remove' ? 'drop?' : 'flip?'}`);
     const tally = info.arrow?.tally || info.proposal?.tally;
     if (tally && tally.total) badges.push(`+${tally.agree} −${tally.disagree} ?${tally.unsure}`);
-    if (badges.length) {
-      const text = badges.join('  ');
-      const w = textWidth(text) * 0.8 + 14;
-      // Sit beside the line (on its upper normal), not on top of it, and off every box:
-      // try a few places along the line and both sides before settling for the first.
-      const length = Math.hypot(x2 - x1, y2 - y1) || 1;
-      let nx = -(y2 - y1) / length, ny = (x2 - x1) / length;
-      if (ny > 0) { nx = -nx; ny = -ny; }
-      const offset = 15 + Math.abs(nx) * (w / 2 - 8);
-      const spots = [];
-      for (const t of [along, along - 0.15, along + 0.15, along - 0.28, along + 0.28]) {
-        for (const side of [1, -1]) {
-          spots.push({ x: x1 + (x2 - x1) * t + side * nx * offset, y: y1 + (y2 - y1) * t + side * ny * offset });
-        }
-      }
-      const covered = spots.map((s) => this.boxOverlap(s.x, s.y, w / 2, 11));
-      const best = covered.indexOf(Math.min(...covered));  // the first spot clear of boxes, or the least covered
-      const bx = spots[best].x, by = spots[best].y;
-      const badge = svg('g', { class: 'edge-badge', transform: `translate(${bx},${by})`,
-        dataset: { ...group.dataset } },
-        svg('rect', { x: -w / 2, y: -11, width: w, height: 22, rx: 4 }),
-        svg('text', { x: 0, y: 5, 'text-anchor': 'middle', text }));
+    return badges.join('  ');
+  }
+
+  drawEdge(route, edge, placed) {
+    const { info } = edge;
+    const group = svg('g', { class: edge.classes.join(' '), dataset: { key: info.key, kind: info.proposal ? 'proposal' : 'arrow' } });
+    if (info.proposal) group.dataset.proposal = info.proposal.id;
+    group.append(svg('path', { d: route.d, class: 'edge-hit', fill: 'none' }));
+    group.append(svg('path', { d: route.d, class: 'edge-line', ...arrowAttributes(edge.kind), 'marker-end': `url(#${MARKERS[edge.kind]})` }));
+    const text = this.badgeText(edge);
+    if (text) {
+      const b = SPEC.badge;
+      const spot = placeBadge(route, text, this.nodes.values(), placed);
+      const badge = svg('g', { class: 'edge-badge', transform: `translate(${spot.x},${spot.y})`, dataset: { ...group.dataset } },
+        svg('rect', { x: -spot.width / 2, y: -spot.height / 2, width: spot.width, height: spot.height, rx: b.corner, fill: b.fill, stroke: b.stroke }),
+        svg('text', { x: 0, y: b.baseline, 'text-anchor': 'middle', 'font-size': b.size, 'font-weight': b.weight, fill: b.text_fill, text }));
       this.layerBadges.append(badge);  // same data as its arrow, so a click on it selects the arrow
     }
     return group;
-  }
-
-  /** How much of a rectangle centred at (x, y), with these half sizes, the variables' boxes
-   *  (and their captions) cover, in square pixels. */
-  boxOverlap(x, y, halfWidth, halfHeight) {
-    let area = 0;
-    for (const v of this.model.document.variables) {
-      const p = this.position(v);
-      const { width, height } = this.size(v);
-      const ox = Math.min(x + halfWidth, p.x + width / 2 + 4) - Math.max(x - halfWidth, p.x - width / 2 - 4);
-      const oy = Math.min(y + halfHeight, p.y + height / 2 + 20) - Math.max(y - halfHeight, p.y - height / 2 - 14);
-      if (ox > 0 && oy > 0) area += ox * oy;
-    }
-    return area;
   }
 
   drawNode(v, flags) {
@@ -289,24 +232,32 @@ export class Canvas {
     if (flags.selected) classes.push('node-selected');
     if (flags.onPath) classes.push('node-on-path');
     const group = svg('g', { class: classes.join(' '), transform: `translate(${p.x},${p.y})`, dataset: { name: v.name } });
+    const ringAttributes = (ring) => ({ fill: 'none', stroke: ring.stroke, 'stroke-width': ring.stroke_width,
+      'stroke-dasharray': ring.dash ?? undefined, 'stroke-linecap': ring.linecap ?? undefined });
     if (flags.adjusted) {
-      group.append(svg('rect', { x: -hw - 8, y: -hh - 8, width: width + 16, height: height + 16, rx: 12, class: 'adjust-ring' }));
+      const ring = SPEC.rings.adjusted;
+      group.append(svg('rect', { ...ringRectangle(width, height, flags.treatment, ring), class: 'adjust-ring', ...ringAttributes(ring) }));
     }
     if (flags.selected) {
-      group.append(svg('rect', { x: -hw - 5, y: -hh - 5, width: width + 10, height: height + 10, rx: 10, class: 'select-ring' }));
+      const ring = SPEC.rings.selected;
+      group.append(svg('rect', { ...ringRectangle(width, height, flags.treatment, ring), class: 'select-ring', ...ringAttributes(ring) }));
     }
+    const look = shapeAttributes({ ...flags, latent: v.latent }, HATCH);
     if (flags.treatment) {
-      const tip = 14;
-      const points = [[-hw, -hh], [hw, -hh], [hw + tip, 0], [hw, hh], [-hw, hh], [-hw - tip, 0]];
-      group.append(svg('polygon', { points: points.map((q) => q.join(',')).join(' '), class: 'shape' }));
+      group.append(svg('polygon', { points: hexagon(hw, hh).map((q) => q.join(',')).join(' '), class: 'shape', ...look }));
     } else {
-      group.append(svg('rect', { x: -hw, y: -hh, width, height, rx: 8, class: 'shape' }));
+      group.append(svg('rect', { x: -hw, y: -hh, width, height, rx: SPEC.variables.measured.corner, class: 'shape', ...look }));
       if (flags.outcome) {
-        group.append(svg('rect', { x: -hw + 4, y: -hh + 4, width: width - 8, height: height - 8, rx: 5, class: 'shape-inner' }));
+        const o = SPEC.variables.outcome;
+        group.append(svg('rect', { x: -hw + o.inner_inset, y: -hh + o.inner_inset, width: width - 2 * o.inner_inset, height: height - 2 * o.inner_inset,
+          rx: o.inner_corner, class: 'shape-inner', fill: 'none', stroke: o.stroke, 'stroke-width': o.inner_stroke_width }));
       }
     }
+    const label = SPEC.label, box = SPEC.box;
     lines.forEach((line, i) => {
-      group.append(svg('text', { class: 'label', x: 0, y: 5 + (i - (lines.length - 1) / 2) * 18, 'text-anchor': 'middle', text: line }));
+      group.append(svg('text', { class: 'label', x: 0, y: box.baseline + (i - (lines.length - 1) / 2) * box.line_gap, 'text-anchor': 'middle',
+        'font-size': label.size, 'font-weight': v.latent ? label.latent_weight : label.weight, 'font-style': v.latent ? label.latent_style : undefined,
+        fill: label.fill, text: line }));
     });
     const tags = [];
     if (flags.treatment) tags.push('TREATMENT');
@@ -314,13 +265,17 @@ export class Canvas {
     if (v.latent) tags.push('UNMEASURED');
     if (flags.adjusted) tags.push('ADJUSTED');
     if (tags.length) {
-      group.append(svg('text', { class: 'tag', x: 0, y: -hh - (flags.adjusted ? 13 : 7), 'text-anchor': 'middle', text: tags.join(' · ') }));
+      const tag = SPEC.tag;
+      group.append(svg('text', { class: 'tag', x: 0, y: -hh - (flags.adjusted ? tag.gap_adjusted : tag.gap), 'text-anchor': 'middle',
+        'font-size': tag.size, 'font-weight': tag.weight, 'letter-spacing': tag.letter_spacing, fill: tag.fill, text: tags.join(' · ') }));
     }
     const roles = (this.model.roles?.[v.name] || []).filter((r) => !['treatment', 'outcome', 'unrelated'].includes(r));
     if (roles.length) {
-      group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? 24 : 16), 'text-anchor': 'middle', text: roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ') }));
+      const role = SPEC.role;
+      group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? role.gap_adjusted : role.gap), 'text-anchor': 'middle',
+        'font-size': role.size, 'font-style': role.style, fill: role.fill, text: roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ') }));
     }
-    group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? 14 : 0), cy: 0, r: 7 }));
+    group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? SPEC.variables.treatment.tip : 0), cy: 0, r: 7 }));
     const title = svg('title', { text: v.description ? `${v.name}: ${v.description}` : v.name });
     group.append(title);
     return group;

@@ -2,6 +2,7 @@
 // the tab row, the legend and the model the canvas draws. Nothing here changes state.
 
 import { el, svg, clear } from './dom.js';
+import { SPEC, shapeAttributes, arrowAttributes } from './visual.js';
 
 export const STAGE_NAMES = { drafting: 'Drafting', debating: 'Debating', agreed: 'Agreed', estimation: 'Estimation' };
 const LOCKED = new Set(['agreed', 'estimation']);
@@ -94,34 +95,46 @@ export function canvasModel(app, previousRoles) {
   };
 }
 
+/** The key to the canvas's glyphs, drawn from the same specification as the canvas. */
 export function buildLegend() {
-  const shapes = {
-    rect: () => [svg('rect', { class: 'shape', x: 2, y: 3, width: 42, height: 18, rx: 4 })],
-    hex: () => [svg('polygon', { class: 'shape', points: '8,3 38,3 44,12 38,21 8,21 2,12' })],
-    double: () => [svg('rect', { class: 'shape', x: 2, y: 3, width: 42, height: 18, rx: 4 }),
-      svg('rect', { class: 'shape-inner', x: 5, y: 6, width: 36, height: 12, rx: 2 })],
-    ring: () => [svg('rect', { class: 'adjust-ring', x: 1, y: 1, width: 44, height: 22, rx: 7 }),
-      svg('rect', { class: 'shape', x: 6, y: 5, width: 34, height: 14, rx: 3 })],
-    line: () => [svg('line', { class: 'edge-line', x1: 2, y1: 12, x2: 38, y2: 12 }),
-      svg('path', { class: 'head', d: 'M35,7 L44,12 L35,17 L37,12 z' })],
-    halo: (cls) => [svg('line', { class: `halo ${cls}`, x1: 2, y1: 12, x2: 44, y2: 12 })],
+  const v = SPEC.variables;
+  const box = (flags) => svg('rect', { class: 'shape', x: 2, y: 3, width: 42, height: 18, rx: 4, ...shapeAttributes(flags, 'url(#hatch-latent)') });
+  const line = (kind) => {
+    const k = SPEC.arrows.kinds[kind];
+    return [svg('line', { class: 'edge-line', x1: 2, y1: 12, x2: 38, y2: 12, ...arrowAttributes(kind) }),
+      svg('path', { class: 'head', d: 'M35,7 L44,12 L35,17 L37,12 z', fill: k.head })];
   };
-  const sample = (cls, text, shape = 'rect') => el('li', {},
-    svg('svg', { width: 46, height: 24, 'aria-hidden': 'true', class: `legend-sample ${cls}` }, shapes[shape](cls)),
+  const halo = (causal) => [svg('line', { class: 'halo', x1: 2, y1: 12, x2: 44, y2: 12, stroke: SPEC.halo.stroke, 'stroke-opacity': SPEC.halo.opacity,
+    'stroke-width': 9, 'stroke-linecap': causal ? 'round' : 'butt', 'stroke-dasharray': causal ? undefined : SPEC.halo.noncausal_dash })];
+  const ring = SPEC.rings.adjusted;
+  const samples = {
+    measured: () => [box({})],
+    latent: () => [box({ latent: true })],
+    treatment: () => [svg('polygon', { class: 'shape', points: '8,3 38,3 44,12 38,21 8,21 2,12', ...shapeAttributes({ treatment: true }) })],
+    outcome: () => [box({ outcome: true }), svg('rect', { class: 'shape-inner', x: 5, y: 6, width: 36, height: 12, rx: 2, fill: 'none',
+      stroke: v.outcome.stroke, 'stroke-width': v.outcome.inner_stroke_width })],
+    adjusted: () => [svg('rect', { class: 'adjust-ring', x: 1, y: 1, width: 44, height: 22, rx: 7, fill: 'none', stroke: ring.stroke,
+      'stroke-width': ring.stroke_width, 'stroke-dasharray': ring.dash, 'stroke-linecap': ring.linecap }),
+    svg('rect', { class: 'shape', x: 6, y: 5, width: 34, height: 14, rx: 3, ...shapeAttributes({}) })],
+    drawn: () => line('drawn'), disputed: () => line('disputed'), proposed: () => line('proposed'),
+    causal: () => halo(true), noncausal: () => halo(false),
+  };
+  const sample = (kind, text) => el('li', {},
+    svg('svg', { width: 46, height: 24, 'aria-hidden': 'true', class: `legend-sample legend-${kind}` }, samples[kind]()),
     el('span', { text }));
   return el('aside', { class: 'legend', 'aria-label': 'Legend' },
     el('h2', { text: 'Legend' }),
     el('ul', {},
-      sample('node', 'measured variable'),
-      sample('node node-latent', 'unmeasured (dashed, hatched)'),
-      sample('node node-treatment', 'treatment (pointed ends)', 'hex'),
-      sample('node node-outcome', 'outcome (double border)', 'double'),
-      sample('node node-adjusted', 'in the set shown (dotted ring)', 'ring'),
-      sample('edge', 'arrow', 'line'),
-      sample('edge edge-disputed', 'disputed arrow (long dashes, ?)', 'line'),
-      sample('edge edge-proposed', 'proposed arrow (short dashes)', 'line'),
-      sample('halo-causal', 'causal path shown (solid band)', 'halo'),
-      sample('halo-noncausal', 'non-causal path shown (broken band)', 'halo')));
+      sample('measured', 'measured variable'),
+      sample('latent', 'unmeasured (dashed, hatched)'),
+      sample('treatment', 'treatment (pointed ends)'),
+      sample('outcome', 'outcome (double border)'),
+      sample('adjusted', 'in the set shown (dotted ring)'),
+      sample('drawn', 'arrow'),
+      sample('disputed', 'disputed arrow (long dashes, ?)'),
+      sample('proposed', 'proposed arrow (short dashes)'),
+      sample('causal', 'causal path shown (solid band)'),
+      sample('noncausal', 'non-causal path shown (broken band)')));
 }
 
 export function showJoinScreen(code) {

@@ -18,6 +18,7 @@ import { STAGE_NAMES, renderBar, renderStatus, renderBanner, renderTabs, canvasM
 import * as commands from './commands.js';
 import { attachKeyboard, showShortcuts } from './keyboard.js';
 import { readPanel, restorePanel, orphanNotes } from './drafts.js';
+import { applyColourVariables } from './visual.js';
 
 const pageData = JSON.parse(document.getElementById('page-data').textContent);
 
@@ -366,6 +367,7 @@ function showBlocked(message) {
 }
 
 function start() {
+  applyColourVariables();
   if (localStorage.getItem('arrowmoot:projector')) document.body.classList.add('projector');
   const sessionId = pageData.session_id;
   const match = location.hash.match(/key=([^&]+)/);
