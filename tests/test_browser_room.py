@@ -182,28 +182,28 @@ def test_vote_reason_survives_other_votes(room):
 def test_paths_heading_follows_the_set_shown(room):
     """Showing a set and clicking it again lists the paths given nothing once more."""
     ann, _ = room.member("Ann")
-    heading = ann.locator(".panel h3", has_text="Open non-causal paths")
+    heading = ann.locator(".panel h3", has_text="Non-causal paths left open")
     chip = ann.locator(".panel .chip", has_text="{ age }").first
-    assert heading.text_content() == "Open non-causal paths (adjusting for nothing)"
+    assert heading.text_content() == "Non-causal paths left open (adjusting for nothing)"
     open_paths = ann.evaluate(
-        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
     assert "scheme ← age → sick_days" in open_paths
 
     chip.click()
     wait(ann, "[...document.querySelectorAll('.panel h3')].some((h) => h.textContent === "
-              "'Open non-causal paths given { age }')", "the heading given age")
+              "'Non-causal paths left open given { age }')", "the heading given age")
     wait(ann, "!!document.querySelector('.panel .set-check.set-valid')", "the check of { age }")
     given = ann.evaluate(
-        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
     assert given.startswith("No open non-causal path")
 
     ann.locator(".panel .chip", has_text="{ age }").first.click()
     wait(ann, "[...document.querySelectorAll('.panel h3')].some((h) => h.textContent === "
-              "'Open non-causal paths (adjusting for nothing)')", "the heading given nothing")
+              "'Non-causal paths left open (adjusting for nothing)')", "the heading given nothing")
     again = ann.evaluate(
-        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
     assert again == open_paths
     assert ann.locator(".panel .set-check").count() == 0
@@ -217,5 +217,5 @@ def test_paths_heading_follows_the_set_shown(room):
     at_revision(ann, revision + 1)
     wait(ann, "!!document.querySelector('.panel .set-check.set-invalid')", "{ age } found invalid after the edit")
     assert "scheme ← commute → sick_days" in ann.evaluate(
-        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Open non-causal'))"
+        "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")

@@ -157,14 +157,16 @@ def test_sets_of_treatments_and_outcomes():
 
 
 def test_implications_are_local_markov_statements():
-    """Pearl 2009, Theorem 1.2.7 (local Markov): a chain a -> b -> c implies a ⊥ c | b."""
+    """Pearl 2009, Theorem 1.2.7 (local Markov): a chain a -> b -> c implies a and c
+    are independent given b."""
     result = run(document([("a", "b"), ("b", "c")], "a", "c"))
-    assert result["implications"] == [{"x": "a", "y": "c", "given": ["b"]}]
+    assert result["implications"] == [
+        {"x": "a", "y": "c", "given": ["b"], "text": "a and c independent given {b}"}]
 
 
 def test_implications_with_unmeasured_parent_use_measured_separator():
     doc = document([("u", "a"), ("u", "b"), ("a", "c"), ("b", "d"), ("c", "d")], "a", "d", latent=["u"])
     listed = run(doc)["implications"]
-    assert {"x": "b", "y": "c", "given": ["a"]} in listed
+    assert ("b", "c", ["a"]) in [(i["x"], i["y"], i["given"]) for i in listed]
     assert all("u" not in i["given"] for i in listed)
     assert not any({i["x"], i["y"]} == {"a", "b"} for i in listed)  # dependent through u

@@ -214,8 +214,12 @@ def _is_binary(values: np.ndarray) -> bool:
 HUGE_VALUE = 1e100  # beyond this, sums of squares overflow double precision on large tables
 
 
-def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.ndarray, str, str | None]:
-    """A column that must be a number (or 0/1). Returns (values with NaN, kind, level coded 1)."""
+def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.ndarray, str, tuple[str, str] | None]:
+    """A column that must be a number (or 0/1).
+
+    Returns (values with NaN, kind, levels): for a two-valued column, levels is
+    (the value coded 0, the value coded 1) as written in the data; else None.
+    """
     if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
         values = _numbers(series.astype(float) if pd.api.types.is_bool_dtype(series) else series)
         if np.isinf(values).any():
@@ -229,13 +233,13 @@ def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.nda
                 item=col,
             )
         kind = "binary" if _is_binary(values) else "number"
-        return values, kind, ("1" if kind == "binary" else None)
+        return values, kind, (("0", "1") if kind == "binary" else None)
     text, levels = _text_levels(series)
     if len(levels) == 2:
         low, high = levels
         if low.lower() in TRUE_WORDS and high.lower() not in TRUE_WORDS:
             low, high = high, low
-        return _numbers(text.map({low: 0.0, high: 1.0}, na_action="ignore").astype(float)), "binary", high
+        return _numbers(text.map({low: 0.0, high: 1.0}, na_action="ignore").astype(float)), "binary", (low, high)
     parsed = pd.to_numeric(pd.Series(levels, dtype=object), errors="coerce")
     bad = [lv for lv, num in zip(levels, parsed) if pd.isna(num)]
     shown = ", ".join(repr(v) for v in bad[:3])
@@ -300,8 +304,9 @@ def build_design(
 
     def number(var: str, role: str) -> np.ndarray:
         col = mapping[var]
-        values, kind, level = _as_number(frame[col], var, col, role)
-        columns[var] = Column(var, col, kind, (f"{role}:{var}",), treated_level=level if kind == "binary" else None)
+        values, kind, levels = _as_number(frame[col], var, col, role)
+        low, high = levels if levels is not None else (None, None)
+        columns[var] = Column(var, col, kind, (f"{role}:{var}",), treated_level=high, reference_level=low)
         return values
 
     # Text covariates become indicator blocks first (their width is needed); numeric

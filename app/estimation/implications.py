@@ -116,7 +116,7 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
     results = []
     for imp in implications:
         names = [imp["x"], imp["y"], *imp["given"]]
-        entry = {"x": imp["x"], "y": imp["y"], "given": list(imp["given"]),
+        entry = {"x": imp["x"], "y": imp["y"], "given": list(imp["given"]), "text": imp.get("text"),
                  "columns": [mapping.get(v) for v in names], "n": 0,
                  "test": None, "statistic": None, "df": None, "p_value": None,
                  "p_adjusted": None, "verdict": "not tested", "reason": None}

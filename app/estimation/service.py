@@ -77,9 +77,18 @@ def _fit(design, method: str) -> dict:
     return result
 
 
+def _contrast(column, t_col: str) -> str:
+    """The two values of a two-valued treatment compared, in the data's own words."""
+    high = column.treated_level if column is not None and column.treated_level is not None else "1"
+    low = column.reference_level if column is not None and column.reference_level is not None else "0"
+    if (low, high) == ("0", "1"):
+        return f"{t_col} = 1 compared with {t_col} = 0"
+    return f"{t_col} = {high!r} (coded 1) compared with {t_col} = {low!r} (coded 0)"
+
+
 def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[str]]:
     t_col, y_col = plan.mapping[plan.treatment], plan.mapping[plan.outcome]
-    unit = ("joining (1) versus not (0)" if design.t_binary else f"one unit more of {t_col}")
+    unit = _contrast(design.columns.get(plan.treatment), t_col) if design.t_binary else f"one unit more of {t_col}"
     scale = "risk difference" if method == "standardization" else ("difference in the mean of " + y_col)
     if plan.strategy == "adjustment":
         how = ("adjusting for " + ", ".join(plan.adjustment_set)) if plan.adjustment_set else "with no adjustment (none is needed)"

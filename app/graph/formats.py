@@ -3,8 +3,15 @@
 GraphML goes through networkx's reader and writer; DOT through pydot, the
 maintained Python DOT parser that networkx also uses. Both carry the
 diagram's label, description, latent flag and position on each node, and the
-question as graph attributes ``treatment`` and ``outcome`` (names joined by
-commas), so an export read back gives the same diagram.
+question (names joined by commas), so an export read back gives the same
+diagram.
+
+In DOT, Graphviz's own attributes keep their names (``label``, ``pos``); ours
+carry the prefix ``arrowmoot_``: ``arrowmoot_latent`` and
+``arrowmoot_description`` on nodes, ``arrowmoot_treatment`` and
+``arrowmoot_outcome`` on the graph (see ``DOT_ATTRIBUTES``).
+Files written before the prefix (bare ``latent``, ``description``,
+``treatment``, ``outcome``) are still read.
 
 A file made elsewhere needs only nodes and directed edges; everything else
 is optional. Problems (not XML, undirected graph, a multi-edge) are reported
@@ -30,6 +37,13 @@ __all__ = [
 ]
 
 MAX_IMPORT_BYTES = 20 * 1024 * 1024
+
+# Our DOT attributes: diagram field -> attribute written. Reading accepts the
+# bare field name as well.
+DOT_ATTRIBUTES = {
+    "latent": "arrowmoot_latent", "description": "arrowmoot_description",
+    "treatment": "arrowmoot_treatment", "outcome": "arrowmoot_outcome",
+}
 
 
 def _to_networkx(diagram: Diagram) -> nx.DiGraph:
@@ -68,15 +82,16 @@ def from_graphml(text: str | bytes) -> Diagram:
 
 
 def to_dot(diagram: Diagram) -> str:
+    names = DOT_ATTRIBUTES
     lines = ["digraph arrowmoot {"]
-    lines.append(f"  treatment={_quote(','.join(diagram.treatment))};")
-    lines.append(f"  outcome={_quote(','.join(diagram.outcome))};")
+    lines.append(f"  {names['treatment']}={_quote(','.join(diagram.treatment))};")
+    lines.append(f"  {names['outcome']}={_quote(','.join(diagram.outcome))};")
     for v in diagram.variables:
-        attrs = [f"latent={_quote('true' if v.latent else 'false')}"]
+        attrs = [f"{names['latent']}={_quote('true' if v.latent else 'false')}"]
         if v.label is not None:
             attrs.append(f"label={_quote(v.label)}")
         if v.description is not None:
-            attrs.append(f"description={_quote(v.description)}")
+            attrs.append(f"{names['description']}={_quote(v.description)}")
         if v.x is not None and v.y is not None:
             # Graphviz "pos" is in points with y pointing up; we keep screen units.
             attrs.append(f"pos={_quote(f'{_num(v.x)},{_num(v.y)}')}")
@@ -105,13 +120,12 @@ def from_dot(text: str | bytes) -> Diagram:
     if dot.get_type() != "digraph":
         raise MalformedDocument("the DOT graph is undirected; a causal diagram needs a digraph")
     graph = nx.DiGraph()
-    for key, value in dot.get_attributes().items():
-        graph.graph[key] = _unquote(value)
+    graph.graph.update(_dot_fields({k: _unquote(v) for k, v in dot.get_attributes().items()}))
     for node in _all_nodes(dot):
         name = _unquote(node.get_name())
         if name in ("node", "edge", "graph", ""):
             continue
-        attrs = {k: _unquote(v) for k, v in node.get_attributes().items()}
+        attrs = _dot_fields({k: _unquote(v) for k, v in node.get_attributes().items()})
         graph.add_node(name, **{**graph.nodes.get(name, {}), **attrs})
     for edge in _all_edges(dot):
         source, target = _unquote(edge.get_source()), _unquote(edge.get_destination())
@@ -119,6 +133,15 @@ def from_dot(text: str | bytes) -> Diagram:
             raise MalformedDocument(f"arrow {source} -> {target} is listed twice")
         graph.add_edge(source, target)
     return diagram_from_networkx(graph, "DOT")
+
+
+def _dot_fields(attrs: dict) -> dict:
+    """DOT attributes under the diagram's field names; a prefixed one wins over a bare one."""
+    out = dict(attrs)
+    for field, written in DOT_ATTRIBUTES.items():
+        if written in out:
+            out[field] = out.pop(written)
+    return out
 
 
 def diagram_from_networkx(graph: nx.Graph, source: str) -> Diagram:

@@ -61,7 +61,6 @@ from .separators import iter_minimal_separators, moral_graph, reduce_graph
 __all__ = [
     "Question",
     "analyze",
-    "identify_effect",
     "answer_question",
     "check_adjustment",
     "has_adjustment_set",
@@ -477,7 +476,7 @@ def _component(adj: dict[str, set[str]], start: set[str], blocked: set[str]) -> 
 
 
 # ---------------------------------------------------------------------------
-# Testable implications
+# Implied independencies
 # ---------------------------------------------------------------------------
 
 def implications(diagram: Diagram, cap: int = IMPLICATION_CAP) -> tuple[list[dict], int, bool]:
@@ -575,12 +574,6 @@ def _colliders_on_paths(q: Question, known: set[str]) -> set[str]:
 # ---------------------------------------------------------------------------
 # Everything at once
 # ---------------------------------------------------------------------------
-
-def identify_effect(diagram: Diagram, *, set_cap: int = SET_CAP) -> dict:
-    """The cheap part of the analysis: is the effect identified, and how."""
-    q = Question.of(diagram)
-    return _identify(q, set_cap)
-
 
 def _identify(q: Question, set_cap: int) -> dict:
     sets, more = minimal_adjustment_sets(q, cap=set_cap)

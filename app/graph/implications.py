@@ -1,4 +1,4 @@
-"""Testable implications: conditional independencies among measured variables.
+"""Implied independencies: what a diagram says measured data could contradict.
 
 Unmeasured variables are first projected out (the latent projection of
 Verma 1993): measured a -> b when a reaches b through unmeasured variables
@@ -31,7 +31,7 @@ from __future__ import annotations
 
 from .dag import Dag
 
-__all__ = ["implied_independencies", "latent_projection"]
+__all__ = ["implied_independencies", "latent_projection", "independence_text"]
 
 
 def latent_projection(dag: Dag, observed: frozenset[str] | set[str]):
@@ -87,8 +87,20 @@ def _blanket(u: str, area: set[str], parents, siblings) -> set[str]:
     return blanket
 
 
+def independence_text(x: str, y: str, given) -> str:
+    """How an independence is written for people: ``a and b independent given {c, d}``.
+
+    >>> independence_text("a", "b", ["c", "d"])
+    'a and b independent given {c, d}'
+    >>> independence_text("a", "b", [])
+    'a and b independent'
+    """
+    tail = f" given {{{', '.join(given)}}}" if given else ""
+    return f"{x} and {y} independent{tail}"
+
+
 def implied_independencies(dag: Dag, observed: frozenset[str], cap: int):
-    """Return (listed, total): up to ``cap`` statements {x, y, given}, sorted."""
+    """Return (listed, total): up to ``cap`` statements {x, y, given, text}, sorted."""
     parents, siblings = latent_projection(dag, observed)
     order = [v for v in dag.topological_order() if v in observed]
     projected_children: dict[str, set[str]] = {v: set() for v in observed}
@@ -119,7 +131,8 @@ def implied_independencies(dag: Dag, observed: frozenset[str], cap: int):
             total += 1
             if len(listed) < cap:
                 x, y = sorted((u, v))
-                listed.append({"x": x, "y": y, "given": statement_given})
+                listed.append({"x": x, "y": y, "given": statement_given,
+                               "text": independence_text(x, y, statement_given)})
     listed.sort(key=lambda s: (s["x"], s["y"]))
     return listed, total
 

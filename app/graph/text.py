@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from .implications import independence_text
+
 __all__ = ["format_analysis"]
 
 
@@ -17,22 +19,22 @@ def format_analysis(result: dict) -> str:
     lines.append(f"Identified: {'yes' if result['identifiable'] else 'no'}    strategy: {strategy}")
     lines.append("")
     sets = result["minimal_adjustment_sets"]
-    lines.append("Minimal adjustment sets" + (" (more exist)" if result["more_sets_exist"] else "") + ":")
+    lines.append("Smallest sets to adjust for" + (" (more exist)" if result["more_sets_exist"] else "") + ":")
     if sets:
         lines.extend(f"  {_set(s)}" for s in sets)
     else:
         lines.append("  none over measured variables")
     optimal = result["optimal_adjustment_set"]
-    lines.append("Optimal adjustment set: " + (_set(optimal) if optimal is not None else "none"))
+    lines.append("The most precise set to adjust for: " + (_set(optimal) if optimal is not None else "none"))
     lines.append(f"  {result['optimal_note']}")
     if result.get("front_door_sets"):
-        lines.append("Front-door sets: " + ", ".join(_set(s) for s in result["front_door_sets"]))
+        lines.append("Through mediators (front-door criterion): " + ", ".join(_set(s) for s in result["front_door_sets"]))
     if result.get("instruments"):
         parts = [
             i["instrument"] + (f" given {_set(i['given'])}" if i["given"] else "")
             for i in result["instruments"]
         ]
-        lines.append("Instruments: " + "; ".join(parts))
+        lines.append("Possible instruments: " + "; ".join(parts))
     check = result.get("adjustment_check")
     if check is not None:
         lines.append("")
@@ -49,15 +51,13 @@ def format_analysis(result: dict) -> str:
         lines.append(f"  [{state}] {kind}  {path['text']}")
         lines.append(f"             {path['why']}")
     lines.append("")
-    lines.append("Roles:")
+    lines.append("What each variable is for this question:")
     width = max((len(n) for n in result["roles"]), default=0)
     for name, roles in result["roles"].items():
         lines.append(f"  {name.ljust(width)}  {', '.join(r.replace('_', ' ') for r in roles)}")
     lines.append("")
     implied = result["implications"]
     total_imp = result.get("implications_total", len(implied))
-    lines.append(f"Testable implications ({total_imp} in all, {len(implied)} listed):")
-    for imp in implied:
-        given = f" | {', '.join(imp['given'])}" if imp["given"] else ""
-        lines.append(f"  {imp['x']} ⊥ {imp['y']}{given}")
+    lines.append(f"What the data could contradict ({total_imp} in all, {len(implied)} listed):")
+    lines.extend(f"  {independence_text(imp['x'], imp['y'], imp['given'])}" for imp in implied)
     return "\n".join(lines)

@@ -106,3 +106,13 @@ export const ROLE_WORDS = {
   outcome_descendant: 'descendant of outcome', treatment_cause: 'cause of treatment only',
   outcome_cause: 'cause of outcome only', unrelated: 'not on any path',
 };
+
+/**
+ * How an independence the diagram implies is written: `a and b independent given {c, d}`.
+ * The server sends it ready-made as `text`; results saved before it did are written here the same way.
+ * @param {{x: string, y: string, given: string[], text?: string}} item
+ */
+export function independenceText(item) {
+  if (item.text) return item.text;
+  return `${item.x} and ${item.y} independent${item.given?.length ? ` given {${item.given.join(', ')}}` : ''}`;
+}

@@ -2,7 +2,7 @@
 // against the data, stability and sensitivity, and the disputed-arrow forest plot.
 // Mounted by the session page through mountEstimation(element, context).
 
-import { el, clear } from './dom.js';
+import { el, clear, independenceText } from './dom.js';
 import { fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation } from './api.js';
 
 const METHODS = [
@@ -303,7 +303,7 @@ class EstimationPanel {
       el('h4', { text: '4. Does the data contradict the diagram?' }),
       el('p', { class: `summary ${checks.failing ? 'am-bad' : ''}`, text: checks.summary }));
     const rows = checks.tests.map((t) => {
-      const claim = `${t.x} ⊥ ${t.y}${t.given.length ? ` | ${t.given.join(', ')}` : ''}`;
+      const claim = independenceText(t);
       const active = this.flagged && this.flagged.x === t.x && this.flagged.y === t.y;
       const verdict = t.verdict === 'fails'
         ? el('button', { type: 'button', class: `am-flag${active ? ' chip-active' : ''}`, text: active ? 'shown' : 'fails: show', title: 'Show these variables on the diagram', on: { click: () => this.flag(t) } })

@@ -1,7 +1,7 @@
 // Side panels: what the diagram implies, the debate, the selection, history, people.
 // Each function takes the app object and returns DOM built with textContent only.
 
-import { el, clock, ROLE_WORDS } from './dom.js';
+import { el, clock, ROLE_WORDS, independenceText } from './dom.js';
 import { draftField } from './drafts.js';
 
 const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
@@ -49,7 +49,7 @@ export function renderAnalysis(app) {
     el('strong', { text: verdict })));
   box.append(el('p', { class: 'summary', text: a.summary }));
 
-  box.append(el('h3', { text: 'Minimal adjustment sets' }));
+  box.append(el('h3', { text: 'Smallest sets to adjust for' }));
   box.append(setChips(app, a.minimal_adjustment_sets, 'this adjustment set'));
   if (a.more_sets_exist) box.append(el('p', { class: 'muted', text: 'More sets exist; the first ones are listed.' }));
   // The paths and the check for the set shown, worked out for this very revision and set.
@@ -60,16 +60,16 @@ export function renderAnalysis(app) {
       el('strong', { text: `{ ${check.set.join(', ')} } ${check.valid ? 'is a valid adjustment set' : 'is not a valid adjustment set'}` }),
       check.reasons?.length ? el('ul', {}, check.reasons.map((r) => el('li', { text: r }))) : null));
   }
-  box.append(el('h3', { text: 'Optimal adjustment set' }));
+  box.append(el('h3', { text: 'The most precise set to adjust for' }));
   if (a.optimal_adjustment_set) box.append(setChips(app, [a.optimal_adjustment_set], 'the optimal set'));
   else box.append(el('p', { class: 'muted', text: 'none' }));
   if (a.optimal_note) box.append(el('p', { class: 'note', text: a.optimal_note }));
   if (a.front_door_sets?.length) {
-    box.append(el('h3', { text: 'Front-door sets' }));
+    box.append(el('h3', { text: 'Through mediators (front-door criterion)' }));
     box.append(el('ul', {}, a.front_door_sets.map((s) => el('li', { text: `{ ${s.join(', ')} }` }))));
   }
   if (a.instruments?.length) {
-    box.append(el('h3', { text: 'Instruments' }));
+    box.append(el('h3', { text: 'Possible instruments' }));
     box.append(el('ul', {}, a.instruments.map((i) => el('li', { text: i.given.length ? `${i.instrument} (given ${i.given.join(', ')})` : i.instrument }))));
   }
 
@@ -77,30 +77,30 @@ export function renderAnalysis(app) {
   const pending = app.view.adjusted !== null && !given;
   const shown = given || a;
   const paths = shown.paths || [];
-  const biasing = paths.filter((p) => !p.causal && p.open);
+  const openNonCausal = paths.filter((p) => !p.causal && p.open);
   const blocked = paths.filter((p) => !p.causal && !p.open);
   const causal = paths.filter((p) => p.causal);
   const adjustedText = app.view.adjusted?.length ? ` given { ${app.view.adjusted.join(', ')} }` : ' (adjusting for nothing)';
-  box.append(el('h3', { text: `Open non-causal paths${adjustedText}` }));
+  box.append(el('h3', { text: `Non-causal paths left open${adjustedText}` }));
   if (pending) box.append(el('p', { class: 'muted', text: 'Working out which paths this set blocks…' }));
-  else box.append(pathList(app, biasing, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
-  box.append(el('h3', { text: 'Causal paths' }));
+  else box.append(pathList(app, openNonCausal, arrowsSet, 'No open non-causal path: nothing biases the comparison.'));
+  box.append(el('h3', { text: 'Paths that carry the effect' }));
   box.append(pathList(app, causal, arrowsSet, 'No causal path: the diagram says the treatment does not affect the outcome.'));
   if (blocked.length) {
-    box.append(el('details', {}, el('summary', { text: `Blocked non-causal paths (${blocked.length})` }), pathList(app, blocked, arrowsSet, '')));
+    box.append(el('details', {}, el('summary', { text: `Non-causal paths already blocked (${blocked.length})` }), pathList(app, blocked, arrowsSet, '')));
   }
   if (shown.paths_capped) box.append(el('p', { class: 'muted', text: `Showing ${paths.length} of ${shown.paths_total} paths.` }));
 
-  box.append(el('h3', { text: 'Roles' }));
+  box.append(el('h3', { text: 'What each variable is for this question' }));
   const roles = Object.entries(a.roles || {}).sort(([x], [y]) => x.localeCompare(y));
   box.append(el('table', { class: 'roles' }, el('tbody', {}, roles.map(([name, words]) => el('tr', {},
     el('th', { text: name }), el('td', { text: words.map((w) => ROLE_WORDS[w] || w.replaceAll('_', ' ')).join(', ') }))))));
 
-  box.append(el('h3', { text: `Testable implications (${a.implications_total ?? (a.implications || []).length})` }));
+  box.append(el('h3', { text: `What the data could contradict (${a.implications_total ?? (a.implications || []).length})` }));
   const imps = a.implications || [];
   if (!imps.length) box.append(el('p', { class: 'muted', text: 'The diagram implies no independence among measured variables.' }));
   else box.append(el('ul', { class: 'implications' }, imps.slice(0, 40).map((i) => el('li', {
-    text: `${i.x} ⊥ ${i.y}${i.given.length ? ` | ${i.given.join(', ')}` : ''}`,
+    text: independenceText(i),
   }))));
   if (imps.length > 40) box.append(el('p', { class: 'muted', text: `…and ${imps.length - 40} more.` }));
   box.append(caution());
