@@ -149,7 +149,8 @@ def test_cli_question_override_and_text(tmp_path):
     path.write_text("digraph { c -> x; c -> y; x -> y; }")
     done = _cli("identify", str(path), "--treatment", "x", "--outcome", "y", "--format", "text")
     assert done.returncode == 0, done.stderr
-    assert "{c}" in done.stdout and "Minimal adjustment sets" in done.stdout
+    assert "{c}" in done.stdout and "Smallest sets to adjust for" in done.stdout
+    assert "x and y independent" not in done.stdout  # adjacent: no implication between them
 
 
 @pytest.mark.parametrize(
@@ -178,3 +179,25 @@ def test_cli_unknown_adjust_variable(tmp_path):
 def test_cli_version():
     done = _cli("--version")
     assert done.returncode == 0 and done.stdout.startswith("arrowmoot ")
+
+
+def test_dot_export_prefixes_our_attributes():
+    """Graphviz's own attributes (label, pos) keep their names; ours carry arrowmoot_."""
+    import pydot
+
+    text = to_dot(_rich())
+    (graph,) = pydot.graph_from_dot_data(text)
+    assert set(graph.get_attributes()) == {"arrowmoot_treatment", "arrowmoot_outcome"}
+    node_keys = set().union(*(n.get_attributes() for n in graph.get_nodes()))
+    assert node_keys <= {"arrowmoot_latent", "arrowmoot_description", "label", "pos"}
+    assert "arrowmoot_latent" in node_keys and "latent" not in text.replace("arrowmoot_latent", "")
+
+
+def test_dot_with_bare_attributes_is_still_read():
+    """Files exported before the prefix used bare latent/description/treatment/outcome."""
+    text = ('digraph { treatment="a"; outcome="b"; "a" [description="first"]; '
+            '"u" [latent="true"]; a -> b; u -> a; u -> b; }')
+    diagram = from_dot(text)
+    assert diagram.treatment == ("a",) and diagram.outcome == ("b",)
+    assert {v.name: v.latent for v in diagram.variables} == {"a": False, "u": True, "b": False}
+    assert next(v for v in diagram.variables if v.name == "a").description == "first"
