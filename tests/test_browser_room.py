@@ -219,3 +219,113 @@ def test_paths_heading_follows_the_set_shown(room):
     assert "scheme ← commute → sick_days" in ann.evaluate(
         "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
+
+
+def _fac_page(room, viewport=(1440, 900)):
+    context = room.browser.new_context(viewport={"width": viewport[0], "height": viewport[1]})
+    page = context.new_page()
+    page.on("pageerror", lambda e: room.errors.append(f"Fay page error: {e}"))
+    page.goto(f"{room.base}/s/{room.sid}#key={room.fac}")
+    wait(page, "!!(window.arrowmoot?.state && document.querySelector('.live-status.live-live'))", "live")
+    return page
+
+
+def _stage(page):
+    return page.evaluate("window.arrowmoot.state.session.stage")
+
+
+def test_locking_lists_what_is_still_open_and_locked_tools_say_why(room):
+    fay = _fac_page(room)
+    ann_token = room.http.post("/api/join", json={"code": room.code, "name": "Ann"}).json()["token"]
+    fay.locator(".stages button", has_text="2. Debating").click()
+    wait(fay, "window.arrowmoot.state.session.stage === 'debating'", "debating")
+    revision = room.send(ann_token, {"type": "vote", "from": "age", "to": "sick_days", "choice": "disagree",
+                                     "reason": "age hardly matters"})
+    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "scheme"})
+    at_revision(fay, revision)
+
+    # An open proposal: the dialog says so and the diagram cannot be locked yet.
+    fay.locator(".stages button", has_text="3. Agreed").click()
+    dialog = fay.locator("dialog.confirm-step")
+    assert dialog.locator("h2").inner_text() == "1 proposal is still open"
+    assert "#1 add the arrow commute → scheme" in dialog.inner_text() or "#1" in dialog.inner_text()
+    assert dialog.locator("button", has_text="Lock it").count() == 0
+    fay.screenshot(path=str(ARTIFACTS / "room-lock-open.png"))
+    dialog.locator("button", has_text="Close").click()
+    assert _stage(fay) == "debating"
+
+    # Left disputed: the move is confirmed with the disputes listed, arrows in their direction.
+    revision = room.send(room.fac, {"type": "settle", "proposal": 1, "decision": "dispute"})
+    at_revision(fay, revision)
+    fay.locator(".stages button", has_text="3. Agreed").click()
+    text = dialog.inner_text()
+    assert "2 arrows are still in dispute" in text
+    assert "age → sick_days (as drawn) or no arrow — arrow age → sick_days voted against" in text
+    assert "commute → scheme or no arrow (as drawn)" in text
+    fay.screenshot(path=str(ARTIFACTS / "room-lock-disputes.png"))
+    dialog.locator("button", has_text="Not yet").click()
+    assert _stage(fay) == "debating"
+    fay.locator(".stages button", has_text="3. Agreed").click()
+    dialog.locator("button", has_text="Lock it (Agreed)").click()
+    wait(fay, "window.arrowmoot.state.session.stage === 'agreed'", "agreed")
+
+    # Locked: the drawing tools are off and say why; no arrow handle is drawn.
+    add = fay.locator(".toolbar button", has_text="+ Variable")
+    assert add.is_disabled()
+    assert "locked in the Agreed stage; you can reopen it" in add.get_attribute("title")
+    assert fay.locator(".toolbar button", has_text="Draw arrow").is_disabled()
+    assert fay.locator(".node .port").count() == 0
+    fay.screenshot(path=str(ARTIFACTS / "room-locked-tools.png"))
+
+
+def test_a_jump_says_which_stages_it_skips(room):
+    fay = _fac_page(room, (1280, 720))
+    fay.locator(".stages button", has_text="4. Estimation").click()
+    text = fay.locator("dialog.confirm-step").inner_text()
+    assert "Debating is skipped" in text and "Agreed is skipped" in text
+    fay.locator("dialog.confirm-step button", has_text="Not yet").click()
+    assert _stage(fay) == "drafting"
+
+
+def test_debate_writes_arrows_in_their_direction_and_spells_out_decisive(room):
+    room.send(room.fac, {"type": "set_stage", "stage": "debating"})
+    ann, ann_token = room.member("Ann")
+    room.send(ann_token, {"type": "vote", "from": "age", "to": "sick_days", "choice": "disagree"})
+    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "scheme"})
+    at_revision(ann, revision)
+    ann.locator('.tabs [data-tab="debate"]').click()
+    wait(ann, "document.querySelectorAll('.panel .dispute').length === 2", "both disputes")
+    headers = ann.locator(".panel .dispute header").all_inner_texts()
+    assert any("age → sick_days (as drawn) or no arrow: decisive" in h for h in headers), headers
+    assert any("commute → scheme or no arrow (as drawn): does not change the answer" in h for h in headers), headers
+    decisive = ann.locator(".panel .dispute-decisive").inner_text()
+    # Without age -> sick_days, { } becomes minimal and { age } is no longer minimal but
+    # stays valid: age still blocks nothing it should not (back-door criterion, Pearl 2009, 3.3.1).
+    assert ("With no arrow: the list of minimal adjustment sets changes ({ } (nothing) joins; { age } leaves). "
+            "Every set listed now stays valid") in decisive
+    ann.screenshot(path=str(ARTIFACTS / "room-debate-direction.png"))
+
+
+def test_drawing_a_proposal_asks_for_an_optional_reason(room):
+    room.send(room.fac, {"type": "set_stage", "stage": "debating"})
+    bob, _ = room.member("Bob", (1280, 720))
+
+    def centre(name):
+        box = bob.locator(f'.node[data-name="{name}"] .shape').first.bounding_box()
+        return box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+
+    (x1, y1), (x2, y2) = centre("commute"), centre("sick_days")
+    bob.keyboard.down("Shift")
+    bob.mouse.move(x1, y1)
+    bob.mouse.down()
+    bob.mouse.move(x2, y2, steps=8)
+    bob.mouse.up()
+    bob.keyboard.up("Shift")
+    dialog = bob.locator("dialog.ask")
+    assert dialog.locator("h2").inner_text() == "Propose to add commute → sick_days"
+    dialog.locator("input").fill("long rides tire people out")
+    dialog.locator("button[type=submit]").click()
+    wait(bob, "window.arrowmoot.state.proposals.length === 1", "the proposal")
+    proposal = bob.evaluate("window.arrowmoot.state.proposals[0]")
+    assert (proposal["kind"], proposal["reason"]) == ("add", "long rides tire people out")
+    assert "“long rides tire people out”" in bob.locator('.panel [data-proposal="1"] .byline').inner_text()

@@ -133,6 +133,8 @@ class OptionEffect:
     change: str
     answer: Answer | None = None
     cycle: list[str] | None = None
+    # the sets of the current answer that remain valid adjustment sets with this option
+    still_valid: tuple[tuple[str, ...], ...] | None = None
 
     @property
     def decisive(self) -> bool:
@@ -557,6 +559,12 @@ class _Engine:
         return self.answers[key]
 
 
+    def still_valid(self, edges: list[Edge], sets) -> tuple[tuple[str, ...], ...]:
+        """Which of ``sets`` are valid adjustment sets with ``edges`` (an acyclic set of arrows)."""
+        q = Question.on_dag(Dag(self.names, edges), self.xs, self.ys, self.observed)
+        return tuple(s for s in sets if is_adjustment_set(q, s))
+
+
 def _one_at_a_time(engine: _Engine, fixed: list[Edge], disputes: list[Dispute],
                    base: Answer) -> list[DisputeEffects]:
     """Each dispute's other options, with every other dispute as drawn."""
@@ -570,11 +578,13 @@ def _one_at_a_time(engine: _Engine, fixed: list[Edge], disputes: list[Dispute],
                 continue
             choice = list(current)
             choice[index] = option
-            answer, cycle = engine.answer(fixed + [o for o in choice if o is not None])
+            edges = fixed + [o for o in choice if o is not None]
+            answer, cycle = engine.answer(edges)
             if cycle:
                 effects.append(OptionEffect(option, "cycle", None, cycle))
             else:
-                effects.append(OptionEffect(option, base.change_to(answer), answer))
+                effects.append(OptionEffect(option, base.change_to(answer), answer,
+                                            still_valid=engine.still_valid(edges, base.sets)))
         out.append(DisputeEffects(d, effects))
     return out
 

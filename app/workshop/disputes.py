@@ -64,7 +64,9 @@ def _effect_json(effect: OptionEffect, base: Answer) -> dict[str, Any]:
                 "text": "impossible: it makes a cycle " + " → ".join(cycle + cycle[:1])}
     return {"option": option, "current": False, "identifiable": effect.answer.identifiable,
             "cycle": None, "text": _change_text(effect, base),
-            "minimal_adjustment_sets": [list(s) for s in effect.answer.sets]}
+            "minimal_adjustment_sets": [list(s) for s in effect.answer.sets],
+            "strategy": effect.answer.strategy,
+            "sets_still_valid": [list(s) for s in effect.still_valid or ()]}
 
 
 def _item_json(entry: DisputeEffects, item: dict[str, Any], base: Answer) -> dict[str, Any]:

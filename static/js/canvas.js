@@ -275,7 +275,7 @@ export class Canvas {
       group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? role.gap_adjusted : role.gap), 'text-anchor': 'middle',
         'font-size': role.size, 'font-style': role.style, fill: role.fill, text: roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ') }));
     }
-    group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? SPEC.variables.treatment.tip : 0), cy: 0, r: 7 }));
+    if (!this.model.locked) group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? SPEC.variables.treatment.tip : 0), cy: 0, r: 7 }));
     const title = svg('title', { text: v.description ? `${v.name}: ${v.description}` : v.name });
     group.append(title);
     return group;
@@ -308,7 +308,7 @@ export class Canvas {
     if (nodeEl) {
       const name = nodeEl.dataset.name;
       const variable = this.model.document.variables.find((v) => v.name === name);
-      const connect = this.mode === 'connect' || event.shiftKey || event.target.classList.contains('port');
+      const connect = !this.model.locked && (this.mode === 'connect' || event.shiftKey || event.target.classList.contains('port'));
       if (connect) this.drag = { kind: 'arrow', from: name, start };
       else {
         const p = this.position(variable);

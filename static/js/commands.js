@@ -3,6 +3,8 @@
 // through the app, and says what went wrong in a toast when it is refused.
 
 import { toast, askText } from './dom.js';
+import { confirmStep } from './dialogs.js';
+import { disputeTitle } from './panels.js';
 
 const LOCKED = new Set(['agreed', 'estimation']);
 const arrowKey = (from, to) => JSON.stringify([from, to]);
@@ -37,7 +39,7 @@ export async function proposeWithReason(app, kind, from, to) {
 }
 
 export async function addVariableAt(app, x, y) {
-  if (LOCKED.has(app.state.session.stage)) { toast('The diagram is locked; the facilitator can reopen it.', 'error'); return; }
+  if (LOCKED.has(app.state.session.stage)) { toast(app.lockedReason(), 'error'); return; }
   const name = await askText('New variable', { label: 'Name', required: true, confirm: 'Add' });
   if (!name) return;
   const p = x === undefined ? app.canvas.visibleCentre() : { x, y };
@@ -99,6 +101,11 @@ export function renameSelection(app) {
 
 export async function moveStage(app, stage, stageNames) {
   if (!app.isFacilitator || stage === app.state.session.stage) return;
+  const plan = stageMovePlan(app.state, stage, stageNames);
+  if (plan) {
+    const go = await confirmStep(plan.title, plan);
+    if (!go) return;
+  }
   let reason = '';
   const reopening = LOCKED.has(app.state.session.stage) && !LOCKED.has(stage);
   if (reopening) {
@@ -106,6 +113,49 @@ export async function moveStage(app, stage, stageNames) {
     if (reason === null) return;
   }
   app.send({ type: 'set_stage', stage, reason }).catch(() => {});
+}
+
+/**
+ * What moving to `target` leaves behind, for the facilitator to confirm: stages a jump
+ * skips, and, when the move locks the diagram, the proposals and disputes still open.
+ * Null when there is nothing to say. Without `confirm` the move cannot go ahead yet.
+ */
+export function stageMovePlan(state, target, stageNames) {
+  const current = state.session.stage;
+  const order = state.session.stages;
+  const from = order.indexOf(current), to = order.indexOf(target);
+  const text = [];
+  const skipped = to > from + 1 ? order.slice(from + 1, to) : [];
+  const skipWords = {
+    debating: 'Debating is skipped: nobody will have proposed or voted on the arrows, so the record shows the diagram as drawn, without the room’s votes.',
+    agreed: 'Agreed is skipped: the diagram is locked for estimation without a moment where the room sees it as final.',
+  };
+  for (const stage of skipped) text.push(skipWords[stage] || `${stageNames[stage]} is skipped.`);
+  const locking = LOCKED.has(target) && !LOCKED.has(current);
+  if (locking) {
+    const open = state.proposals.filter((p) => p.status === 'open');
+    if (open.length) {
+      return {
+        title: `${open.length} proposal${open.length > 1 ? 's are' : ' is'} still open`,
+        text: [...text, 'The diagram cannot be locked while proposals wait for a decision. Accept, reject or leave each one disputed first:'],
+        items: open.map((p) => `#${p.id} ${p.summary} (${p.tally.agree} agree, ${p.tally.disagree} disagree, ${p.tally.unsure} unsure)`),
+      };
+    }
+    const disputed = state.disputed || [];
+    if (disputed.length) {
+      text.push(`${disputed.length === 1 ? 'One arrow is' : `${disputed.length} arrows are`} still in dispute. Locking keeps each as drawn now and records it as unsettled:`);
+    }
+    if (!text.length) return null;
+    return {
+      title: `Move to ${stageNames[target]} and lock the diagram?`,
+      text,
+      items: disputed.map((item) => `${disputeTitle(item.options, item.current ?? 0)} — ${item.why.join('; ')}`),
+      confirm: `Lock it (${stageNames[target]})`,
+      cancel: 'Not yet',
+    };
+  }
+  if (!text.length) return null;
+  return { title: `Jump to ${stageNames[target]}?`, text, confirm: `Go to ${stageNames[target]}`, cancel: 'Stay' };
 }
 
 export async function renameSession(app) {

@@ -211,6 +211,44 @@ function optionText(option) {
   return option ? `${option[0]} → ${option[1]}` : 'no arrow';
 }
 
+const STRATEGY_WORDS = { adjustment: 'adjustment', 'front-door': 'the front-door criterion', instrument: 'an instrument' };
+const braced = (set) => (set.length ? `{ ${set.join(', ')} }` : '{ } (nothing)');
+
+/** A dispute's alternatives, arrows written in their direction, the drawn one marked. */
+export function disputeTitle(options, currentIndex = 0) {
+  const order = options.map((o, i) => [o, i]).sort(([a], [b]) => Number(!a) - Number(!b));
+  return order.map(([o, i]) => `${optionText(o)}${i === currentIndex ? ' (as drawn)' : ''}`).join(' or ');
+}
+
+/** What settling a dispute the other way would change, spelled out against the answer now. */
+export function explainEffect(base, effect) {
+  if (effect.current) return 'the answer shown now';
+  if (effect.cycle || effect.identifiable === null || effect.identifiable === undefined || !base) return effect.text;
+  if (Boolean(base.identifiable) !== Boolean(effect.identifiable)) {
+    return effect.identifiable ? 'the effect becomes identified' : 'the effect is no longer identified: no way of estimating it from this diagram remains';
+  }
+  if (effect.strategy && base.strategy && effect.strategy !== base.strategy) {
+    return `identified by ${STRATEGY_WORDS[effect.strategy] || effect.strategy} instead of ${STRATEGY_WORDS[base.strategy] || base.strategy}`;
+  }
+  const now = (base.minimal_adjustment_sets || []).map((x) => JSON.stringify(x));
+  const then = (effect.minimal_adjustment_sets || []).map((x) => JSON.stringify(x));
+  const joins = then.filter((x) => !now.includes(x)).map((x) => braced(JSON.parse(x)));
+  const leaves = now.filter((x) => !then.includes(x)).map((x) => braced(JSON.parse(x)));
+  if (!joins.length && !leaves.length) return 'the same answer';
+  const change = [joins.length ? `${joins.join(', ')} ${joins.length > 1 ? 'join' : 'joins'}` : null,
+    leaves.length ? `${leaves.join(', ')} ${leaves.length > 1 ? 'leave' : 'leaves'}` : null].filter(Boolean).join('; ');
+  let text = `the list of minimal adjustment sets changes (${change})`;
+  const valid = effect.sets_still_valid;
+  if (Array.isArray(valid) && now.length) {
+    const kept = valid.map((x) => JSON.stringify(x));
+    const broken = now.filter((x) => !kept.includes(x)).map((x) => braced(JSON.parse(x)));
+    text += broken.length
+      ? `. ${broken.join(', ')} would no longer be valid, so the adjustment shown now would be wrong`
+      : '. Every set listed now stays valid, so adjusting as shown now would still be right: the dispute decides only which sets are the smallest choices';
+  }
+  return text;
+}
+
 function renderDisputes(app) {
   const box = el('section', { class: 'disputes' }, el('h3', { text: 'Which disputes matter' }));
   const d = app.analysis?.disputes;
@@ -219,12 +257,15 @@ function renderDisputes(app) {
   if (!d) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking the disputes…' })); return box; }
   box.append(el('p', { class: 'note', text: d.note }));
   const ordered = [...d.items].sort((x, y) => Number(y.decisive) - Number(x.decisive));  // the ones that matter first
+  const base = app.analysis?.analysis;
   for (const item of ordered) {
+    const current = Math.max(0, item.effects.findIndex((e) => e.current));
     box.append(el('article', { class: `dispute ${item.decisive ? 'dispute-decisive' : 'dispute-idle'}` },
       el('header', {},
         el('span', { class: 'dispute-mark', 'aria-hidden': 'true', text: item.decisive ? '!' : '–' }),
-        el('strong', { text: ` ${item.pair.join(' / ')}: ${item.decisive ? 'decisive' : 'does not change the answer'}` })),
-      el('ul', {}, item.effects.map((e) => el('li', { text: `${optionText(e.option)}${e.current ? ' (as drawn)' : ''}: ${e.text}` }))),
+        el('strong', { text: ` ${disputeTitle(item.effects.map((e) => e.option), current)}: ${item.decisive ? 'decisive' : 'does not change the answer'}` })),
+      el('ul', {}, item.effects.map((e) => el('li', { text: e.current ? `${optionText(e.option)} (as drawn): the answer shown now`
+        : `With ${e.option ? `${optionText(e.option)} instead` : 'no arrow'}: ${explainEffect(base, e)}` }))),
       el('p', { class: 'muted', text: item.why.join('; ') })));
   }
   box.append(el('h4', { text: 'Adjustment sets valid whatever the disputes decide' }));

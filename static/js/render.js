@@ -92,6 +92,7 @@ export function canvasModel(app, previousRoles) {
     document: s.document, arrows, proposals: s.proposals, pendingByArrow, decisive,
     selection: app.view.selection, highlight: app.view.highlight, adjusted: app.view.adjusted || [],
     roles: app.analysis?.revision === s.revision ? app.analysis?.analysis?.roles : previousRoles,
+    locked: LOCKED.has(s.session.stage),
   };
 }
 

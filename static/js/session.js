@@ -174,6 +174,8 @@ class SessionApp {
 
   addVariableAt(x, y) { return commands.addVariableAt(this, x, y); }
 
+  lockedReason() { return lockedReason(this, this.state.session.stage); }
+
   moveStage(stage) { return commands.moveStage(this, stage, STAGE_NAMES); }
 
   renameSession() { return commands.renameSession(this); }
@@ -244,10 +246,8 @@ class SessionApp {
     const side = el('aside', { class: 'side' }, this.tabs, this.panel, this.estimationPanel);
     app.append(this.bar, el('div', { class: 'workspace' }, canvasWrap, side));
     this.canvas = new Canvas(this.canvasHost, {
-      onCommand: (c) => this.send(c).then((ack) => {
-        if (c.type === 'propose') toast(`Your proposal to add ${c.from} → ${c.to} is up for a vote (Debate tab).`);
-        return ack;
-      }),
+      // A drawn arrow while debating becomes a proposal: ask for its (optional) reason first.
+      onCommand: (c) => (c.type === 'propose' ? this.proposeWithReason(c.kind, c.from, c.to) : this.send(c)),
       onSelect: (s) => this.select(s),
       onAddVariable: (x, y) => this.addVariableAt(x, y),
       arrowCommand: (from, to) => this.arrowCommand(from, to),
@@ -260,8 +260,10 @@ class SessionApp {
   buildToolbar() {
     const button = (text, title, onClick, extra = {}) => el('button', { type: 'button', text, title, on: { click: onClick }, ...extra });
     this.connectButton = button('Draw arrow', 'Arrow mode: drag from one variable to another (C). Shift-drag works in any mode.', () => this.toggleConnect(), { 'aria-pressed': 'false' });
+    const addButton = button('+ Variable', 'Add a variable (N); or double-click empty space', () => this.addVariableAt());
+    this.drawingButtons = [[addButton, addButton.title], [this.connectButton, this.connectButton.title]];
     clear(this.toolbar).append(
-      button('+ Variable', 'Add a variable (N); or double-click empty space', () => this.addVariableAt()),
+      addButton,
       this.connectButton,
       button('Tidy', 'Arrange in layers, causes on the left (T)', () => commands.tidyLayout(this)),
       button('Fit', 'Fit the diagram to the screen (F)', () => this.canvas.fit()),
@@ -272,7 +274,23 @@ class SessionApp {
       button('Big text', 'Larger text for a projector (P)', () => this.toggleProjector()));
   }
 
+  /** Drawing tools are off while the diagram is locked, and say why. */
+  renderToolbarState() {
+    const stage = this.state.session.stage;
+    const locked = commands.isLocked(stage);
+    const why = locked ? lockedReason(this, stage) : null;
+    for (const [button, title] of this.drawingButtons || []) {
+      button.disabled = locked;
+      button.title = locked ? why : title;
+    }
+    if (locked && this.canvas.mode === 'connect') this.toggleConnect();
+  }
+
   toggleConnect() {
+    if (this.canvas.mode !== 'connect' && commands.isLocked(this.state.session.stage)) {
+      toast(lockedReason(this, this.state.session.stage), 'error');
+      return;
+    }
     this.canvas.mode = this.canvas.mode === 'connect' ? 'select' : 'connect';
     this.connectButton.setAttribute('aria-pressed', this.canvas.mode === 'connect' ? 'true' : 'false');
     this.canvasHost.classList.toggle('connect-mode', this.canvas.mode === 'connect');
@@ -299,6 +317,7 @@ class SessionApp {
 
   renderCanvas() {
     renderBanner(this);
+    this.renderToolbarState();
     this.canvas.render(canvasModel(this, this.canvas.model?.roles));
   }
 
@@ -350,6 +369,13 @@ class SessionApp {
       console.warn('estimation panel not loaded', err);
     }
   }
+}
+
+/** Why the diagram cannot be changed now, in words for a tooltip or a message. */
+export function lockedReason(app, stage) {
+  if (app.readOnly) return 'This is a read-only copy of a workshop record: nothing in it can be changed.';
+  const who = app.isFacilitator ? 'you can reopen it by moving back to Debating or Drafting' : 'only the facilitator can reopen it';
+  return `The diagram is locked in the ${stage === 'agreed' ? 'Agreed' : 'Estimation'} stage; ${who}.`;
 }
 
 function saveBlob(blob, name) {
