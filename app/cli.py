@@ -170,7 +170,8 @@ def build_parser() -> argparse.ArgumentParser:
                        help="address to bind (default 127.0.0.1, this machine only)")
     serve.add_argument("--port", type=int, default=8000, help="port (default 8000)")
     serve.add_argument("--db", default=None,
-                       help="SQLite database file (default ./data/arrowmoot.sqlite3)")
+                       help="SQLite database file; attached data go in its folder "
+                       "(default arrowmoot.sqlite3 in the per-user data folder)")
     serve.set_defaults(run=run_serve)
 
     sessions = commands.add_parser("sessions", help="list the sessions in the database and their members")

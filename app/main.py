@@ -15,6 +15,7 @@ from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 
 from .errors import install_error_handlers
+from .resources import resource_dir
 from .settings import Settings
 from .store import Store
 from .web import pages, ws
@@ -26,9 +27,8 @@ __all__ = ["create_app"]
 
 log = logging.getLogger("arrowmoot")
 
-ROOT = Path(__file__).resolve().parent.parent
-STATIC_DIR = ROOT / "static"
-TEMPLATES_DIR = ROOT / "templates"
+STATIC_DIR = resource_dir("static")
+TEMPLATES_DIR = resource_dir("templates")
 
 CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
        "connect-src 'self' ws: wss:; frame-ancestors 'none'; base-uri 'none'; form-action 'self'")

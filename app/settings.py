@@ -7,14 +7,19 @@ variables named ``ARROWMOOT_<NAME>`` (for example ``ARROWMOOT_DB_PATH``).
 from __future__ import annotations
 
 import os
+import sys
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 
-__all__ = ["Settings", "SETTING_HELP"]
+from .resources import resource_dir
+
+__all__ = ["Settings", "SETTING_HELP", "user_data_dir"]
 
 SETTING_HELP = {
-    "db_path": "SQLite database file holding every session (created if missing).",
-    "data_dir": "Directory for per-session files such as attached data sets.",
+    "db_path": "SQLite database file holding every session (created if missing; default "
+    "arrowmoot.sqlite3 in the per-user data folder).",
+    "data_dir": "Directory for per-session files such as attached data sets (default: the "
+    "database's folder).",
     "upload_limit_bytes": "Largest data upload accepted, in bytes (default 500 MB).",
     "allowed_origins": "Origins allowed to open the WebSocket and call the API from a browser; "
     "empty means same origin only.",
@@ -31,14 +36,32 @@ SETTING_HELP = {
 }
 
 
+def user_data_dir() -> Path:
+    """The per-user folder for the database and attached files, by the platform's custom:
+    ``$XDG_DATA_HOME/arrowmoot`` (else ``~/.local/share/arrowmoot``) on Linux and other
+    Unix systems, ``~/Library/Application Support/arrowmoot`` on macOS, and
+    ``%LOCALAPPDATA%\\arrowmoot`` on Windows."""
+    if sys.platform == "win32":
+        base = Path(os.environ.get("LOCALAPPDATA") or Path.home() / "AppData" / "Local")
+    elif sys.platform == "darwin":
+        base = Path.home() / "Library" / "Application Support"
+    else:
+        base = Path(os.environ.get("XDG_DATA_HOME") or Path.home() / ".local" / "share")
+    return base / "arrowmoot"
+
+
+def _optional_path(value: str) -> Path | None:
+    return Path(value) if value else None
+
+
 def _env(name: str, default: str) -> str:
     return os.environ.get(f"ARROWMOOT_{name.upper()}", default)
 
 
 @dataclass
 class Settings:
-    db_path: Path = field(default_factory=lambda: Path(_env("db_path", "./data/arrowmoot.sqlite3")))
-    data_dir: Path = field(default_factory=lambda: Path(_env("data_dir", "./data")))
+    db_path: Path = field(default_factory=lambda: Path(_env("db_path", str(user_data_dir() / "arrowmoot.sqlite3"))))
+    data_dir: Path | None = field(default_factory=lambda: _optional_path(_env("data_dir", "")))
     upload_limit_bytes: int = field(
         default_factory=lambda: int(_env("upload_limit_bytes", str(500 * 1024 * 1024)))
     )
@@ -61,7 +84,7 @@ class Settings:
     )
     demo_document: Path = field(
         default_factory=lambda: Path(
-            _env("demo_document", str(Path(__file__).resolve().parent.parent / "sample_data" / "cycle_to_work.json"))
+            _env("demo_document", str(resource_dir("sample_data") / "cycle_to_work.json"))
         )
     )
 
@@ -71,7 +94,7 @@ class Settings:
 
     def __post_init__(self) -> None:
         self.db_path = Path(self.db_path)
-        self.data_dir = Path(self.data_dir)
+        self.data_dir = Path(self.data_dir) if self.data_dir is not None else None
         self.demo_document = Path(self.demo_document)
         if self.upload_limit_bytes <= 0:
             raise ValueError("upload_limit_bytes must be positive")

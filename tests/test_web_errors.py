@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import sys
+
 import pytest
 
 from conftest import TOKEN_HEADER, open_room
-from app.settings import SETTING_HELP, Settings
+from app.settings import SETTING_HELP, Settings, user_data_dir
 
 KEYS = {"ok", "error", "status", "code"}
 
@@ -82,4 +84,8 @@ def test_settings_read_the_environment(monkeypatch, tmp_path):
     s = Settings()
     assert s.db_path == tmp_path / "x.sqlite3" and s.upload_limit_bytes == 1234
     monkeypatch.delenv("ARROWMOOT_DB_PATH")
-    assert str(Settings().db_path) == "data/arrowmoot.sqlite3"
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "user"))
+    if sys.platform not in ("win32", "darwin"):
+        assert Settings().db_path == tmp_path / "user" / "arrowmoot" / "arrowmoot.sqlite3"
+    assert Settings().db_path == user_data_dir() / "arrowmoot.sqlite3"
+    assert Settings().data_dir is None  # attached files follow the database's folder

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import math
 from datetime import datetime, timezone
-from pathlib import Path
 from typing import Any
 
 import jinja2
@@ -19,6 +18,7 @@ import jinja2
 from .. import __version__
 from ..graph.document import Diagram, parse_document
 from ..graph.errors import DiagramError
+from ..resources import resource_dir
 from ..workshop.voting import disputed_items
 from . import charts
 from .bundle import restore_workshop, validate_bundle
@@ -26,7 +26,7 @@ from .diagram_svg import diagram_svg, legend_svg
 
 __all__ = ["report_context", "render_report", "plain_estimate", "SECTIONS"]
 
-TEMPLATES_DIR = Path(__file__).resolve().parent.parent.parent / "templates"
+TEMPLATES_DIR = resource_dir("templates")
 SECTIONS = [
     ("question", "The question"),
     ("diagram", "The agreed diagram"),

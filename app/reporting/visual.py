@@ -11,12 +11,13 @@ from __future__ import annotations
 import json
 import math
 from dataclasses import dataclass
-from pathlib import Path
+
+from ..resources import resource_dir
 
 __all__ = ["SPEC", "text_width", "label_lines", "box_size", "outline", "exit_distance",
            "route_arrows", "place_badge", "Node", "Route"]
 
-SPEC_PATH = Path(__file__).resolve().parents[2] / "static" / "visual-spec.json"
+SPEC_PATH = resource_dir("static") / "visual-spec.json"
 SPEC: dict = json.loads(SPEC_PATH.read_text(encoding="utf-8"))
 
 _ADVANCE = SPEC["font"]["advance"]
