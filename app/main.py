@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import importlib
-import json
 import logging
 import os
 import sys
@@ -14,6 +13,7 @@ from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 
+from .demo import open_demo_session
 from .errors import install_error_handlers
 from .resources import resource_dir
 from .settings import Settings
@@ -50,7 +50,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     @asynccontextmanager
     async def lifespan(app: FastAPI):
         if settings.demo_session:
-            _create_demo_session(hub, settings)
+            await _create_demo_session(hub, settings)
         yield
         await hub.close()
 
@@ -95,35 +95,24 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     return app
 
 
-def _create_demo_session(hub: Hub, settings: Settings) -> None:
-    """With an empty database, open the bike-lease demo and print its links once."""
+async def _create_demo_session(hub: Hub, settings: Settings) -> None:
+    """With an empty database, open the bike-lease demo (in debate, data attached) and print its links once."""
     if hub.store.count_sessions() > 0:
         return
     path = settings.demo_document
     if not path.is_file():
         return
     try:
-        document = json.loads(path.read_text(encoding="utf-8"))
-        w, token = hub.create_session(title="Bike leases and sick days (demo, invented data)",
-                                      facilitator_name="Facilitator", document=document)
+        w, token = await open_demo_session(hub, path)
     except Exception as exc:  # a broken demo file must not stop the server
         log.warning("demo session not created: %s", exc)
         return
-    # The demo ships its (invented) data too; the room only sees it at the estimation stage.
-    demo_data = path.with_suffix(".csv")
-    if demo_data.is_file():
-        try:
-            from .web.routes.estimation import attach_file
-
-            attach_file(hub.store, w.id, demo_data)
-        except Exception as exc:  # the diagram alone is still a usable demo
-            log.warning("demo data not attached: %s", exc)
     # The only place a key is ever printed: the console of whoever started the server.
     # ``arrowmoot serve`` sets ARROWMOOT_PUBLIC_URL to the address it binds.
     base = os.environ.get("ARROWMOOT_PUBLIC_URL", "").rstrip("/")
     hint = "" if base else "  Prefix the links with this server's address, e.g. http://127.0.0.1:8000\n"
     print(
-        "\nArrowmoot demo session ready.\n"
+        f"\nArrowmoot demo session ready ({w.stage} stage; invented people, votes and data).\n"
         f"  Facilitator link (keep it private): {base}/s/{w.id}#key={token}\n"
         f"  Join code for participants: {w.join_code}   (join link: {base}/join/{w.join_code})\n"
         + hint,

@@ -2,7 +2,7 @@
 
 The server runs ``create_app()`` under uvicorn in its own process group (so the
 analysis worker it starts stops with it), on a fresh SQLite file in a test's
-temporary folder, without the demo session.
+temporary folder, without the demo session unless asked for (``demo=True``).
 """
 
 from __future__ import annotations
@@ -35,15 +35,16 @@ def free_port() -> int:
 class LiveServer:
     """One server process on a fixed port; it can be killed and started again on the same file."""
 
-    def __init__(self, folder: Path):
+    def __init__(self, folder: Path, *, demo: bool = False):
         self.folder = Path(folder)
+        self.demo = demo
         self.port = free_port()
         self.base = f"http://127.0.0.1:{self.port}"
         self.proc: subprocess.Popen | None = None
 
     def start(self) -> None:
         env = dict(os.environ, ARROWMOOT_DB_PATH=str(self.folder / "live.sqlite3"),
-                   ARROWMOOT_DATA_DIR=str(self.folder), ARROWMOOT_DEMO_SESSION="0")
+                   ARROWMOOT_DATA_DIR=str(self.folder), ARROWMOOT_DEMO_SESSION="1" if self.demo else "0")
         code = ("import uvicorn; from app.main import create_app; "
                 f"uvicorn.run(create_app(), host='127.0.0.1', port={self.port}, log_level='warning')")
         self.log = self.folder / "server.log"
@@ -80,9 +81,9 @@ class LiveServer:
 
 
 @contextmanager
-def running_server(folder: Path):
+def running_server(folder: Path, *, demo: bool = False):
     """Start a server for the duration of the block; yields its base URL."""
-    server = LiveServer(folder)
+    server = LiveServer(folder, demo=demo)
     server.start()
     try:
         yield server.base

@@ -66,6 +66,19 @@ class EstimationPanel {
 
   get stage() { return this.context.state?.()?.session?.stage; }
 
+  /** Data is attached, mapped and estimated only once the diagram is agreed (locked). */
+  get isOpenForData() { return ['agreed', 'estimation'].includes(this.stage); }
+
+  /** What the stage means for the data, said from what is attached now. */
+  stageNote() {
+    if (this.isOpenForData) return null;
+    const next = 'The facilitator moves the session to “Agreed” or “Estimation” first.';
+    if (!this.data) return `Data is attached once the room has agreed the diagram. ${next}`;
+    const mapped = Object.keys(this.data.mapping || {}).length;
+    const what = mapped ? `attached, with ${mapped} variable${mapped === 1 ? '' : 's'} mapped to its columns` : 'attached but not yet mapped';
+    return `${this.data.name} is ${what}; it is used once the room has agreed the diagram. ${next}`;
+  }
+
   /** Fetch the shared state; with quiet, render only if something changed. */
   async load({ quiet = false } = {}) {
     const version = this.version;
@@ -169,9 +182,8 @@ class EstimationPanel {
   // -- rendering --------------------------------------------------------------------
   render() {
     const parts = [el('h3', { text: 'Estimation' })];
-    if (!['agreed', 'estimation'].includes(this.stage)) {
-      parts.push(el('p', { class: 'note', text: 'Data is attached once the room has agreed the diagram. The facilitator moves the session to “Agreed” or “Estimation” first.' }));
-    }
+    const stageNote = this.stageNote();
+    if (stageNote) parts.push(el('p', { class: 'note', dataset: { note: 'stage' }, text: stageNote }));
     if (!this.canEdit) parts.push(el('p', { class: 'note', text: 'You can read the results here; the facilitator or an analyst attaches data and runs the estimates.' }));
     if (this.message) parts.push(el('p', { class: `am-message am-${this.message.kind}`, role: this.message.kind === 'error' ? 'alert' : 'status', text: this.message.text }));
     parts.push(this.renderData(), this.renderMapping(), this.renderEstimate(), this.renderChecks(),
@@ -182,7 +194,8 @@ class EstimationPanel {
   button(text, name, onClick, primary = false) {
     return el('button', {
       type: 'button', class: primary ? 'primary' : '', text: this.busy === name ? 'Working…' : text,
-      disabled: !this.canEdit || !!this.busy, dataset: { action: name }, on: { click: onClick },
+      disabled: !this.canEdit || !this.isOpenForData || !!this.busy, dataset: { action: name }, on: { click: onClick },
+      title: this.isOpenForData ? null : 'Opens once the room has agreed the diagram',
     });
   }
 
@@ -191,6 +204,7 @@ class EstimationPanel {
     if (this.canEdit) {
       const input = el('input', {
         type: 'file', accept: '.csv,.parquet,text/csv', name: 'data-file', 'aria-label': 'Data file (CSV or Parquet)',
+        disabled: !this.isOpenForData,
         on: { change: (e) => { this.pendingFile = e.target.files?.[0] || null; this.render(); } },
       });
       const attach = this.button('Attach', 'upload', () => { if (this.pendingFile) this.upload(this.pendingFile); }, true);
@@ -217,7 +231,7 @@ class EstimationPanel {
     const mapping = this.data.mapping || {};
     const box = el('section', { class: 'am-section', 'aria-label': 'Measures' }, el('h4', { text: '2. Which column measures which variable' }));
     const rows = this.variables.map((v) => {
-      const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit, 'aria-label': `Column for ${v.name}` },
+      const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit || !this.isOpenForData, 'aria-label': `Column for ${v.name}` },
         el('option', { value: '', text: '— not measured —' }),
         ...this.data.columns.map((c) => el('option', { value: c, text: c, selected: mapping[v.name] === c })));
       const tag = v.role ? ` (${v.role})` : v.latent ? ' (unmeasured in the diagram)' : '';

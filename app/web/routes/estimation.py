@@ -106,12 +106,15 @@ def _variables(access) -> list[dict]:
             for v in d.variables]
 
 
-def attach_file(store, session_id: str, path: str | os.PathLike, *, name: str | None = None) -> dict:
+def attach_file(store, session_id: str, path: str | os.PathLike, *, name: str | None = None,
+                variables: list[str] | None = None) -> dict:
     """Attach a data file to a session outside a request (e.g. the demo session at start-up).
 
     ``store`` is the app's Store (``put_attachment`` and ``session_data_dir``).
     The file is copied into the session's data directory, checked and profiled
-    exactly as an upload is. Raises DataError if the file is unusable.
+    exactly as an upload is. With ``variables`` (the diagram's names) the mapping
+    of same-named columns is saved, as after an upload. Raises DataError if the
+    file is unusable.
     """
     import shutil
 
@@ -123,7 +126,9 @@ def attach_file(store, session_id: str, path: str | os.PathLike, *, name: str | 
     shutil.copyfile(source, folder / stored)
     info = {"name": name or source.name, "stored": stored, "bytes": source.stat().st_size,
             "rows": int(len(frame)), "columns": list(map(str, frame.columns)),
-            "profile": service.json_ready(profile_table(frame)), "mapping": None, "uploaded_at": time.time()}
+            "profile": service.json_ready(profile_table(frame)),
+            "mapping": None if variables is None else propose_mapping(variables, frame.columns),
+            "uploaded_at": time.time()}
     store.put_attachment(session_id, DATA_KEY, info)
     return info
 
