@@ -22,15 +22,15 @@ pytestmark = [
 ]
 
 TOKEN_HEADER = "X-Arrowmoot-Token"
-# age confounds scheme -> sick_days: one back-door path, blocked by { age }.
+# age confounds bike_lease -> sick_days: one back-door path, blocked by { age }.
 DOCUMENT = {
     "format": "arrowmoot-graph", "version": 1,
     "variables": [{"name": n, "x": x, "y": y} for n, x, y in (
-        ("age", 120, 80), ("scheme", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
+        ("age", 120, 80), ("bike_lease", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
         ("commute", 420, 460))],
     "arrows": [{"from": a, "to": b} for a, b in (
-        ("age", "scheme"), ("age", "sick_days"), ("scheme", "fitness"), ("fitness", "sick_days"))],
-    "treatment": ["scheme"], "outcome": ["sick_days"],
+        ("age", "bike_lease"), ("age", "sick_days"), ("bike_lease", "fitness"), ("fitness", "sick_days"))],
+    "treatment": ["bike_lease"], "outcome": ["sick_days"],
 }
 
 
@@ -188,7 +188,7 @@ def test_paths_heading_follows_the_set_shown(room):
     open_paths = ann.evaluate(
         "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
-    assert "scheme ← age → sick_days" in open_paths
+    assert "bike_lease ← age → sick_days" in open_paths
 
     chip.click()
     wait(ann, "[...document.querySelectorAll('.panel h3')].some((h) => h.textContent === "
@@ -212,11 +212,11 @@ def test_paths_heading_follows_the_set_shown(room):
     chip = ann.locator(".panel .chip", has_text="{ age }").first
     chip.click()
     wait(ann, "!!document.querySelector('.panel .set-check.set-valid')", "the check of { age }")
-    revision = room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "scheme"})
+    revision = room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "bike_lease"})
     room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "sick_days"})
     at_revision(ann, revision + 1)
     wait(ann, "!!document.querySelector('.panel .set-check.set-invalid')", "{ age } found invalid after the edit")
-    assert "scheme ← commute → sick_days" in ann.evaluate(
+    assert "bike_lease ← commute → sick_days" in ann.evaluate(
         "[...document.querySelectorAll('.panel h3')].find((h) => h.textContent.startsWith('Non-causal paths left open'))"
         ".nextElementSibling.textContent")
 
@@ -241,14 +241,14 @@ def test_locking_lists_what_is_still_open_and_locked_tools_say_why(room):
     wait(fay, "window.arrowmoot.state.session.stage === 'debating'", "debating")
     revision = room.send(ann_token, {"type": "vote", "from": "age", "to": "sick_days", "choice": "disagree",
                                      "reason": "age hardly matters"})
-    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "scheme"})
+    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "bike_lease"})
     at_revision(fay, revision)
 
     # An open proposal: the dialog says so and the diagram cannot be locked yet.
     fay.locator(".stages button", has_text="3. Agreed").click()
     dialog = fay.locator("dialog.confirm-step")
     assert dialog.locator("h2").inner_text() == "1 proposal is still open"
-    assert "#1 add the arrow commute → scheme" in dialog.inner_text() or "#1" in dialog.inner_text()
+    assert "#1 add the arrow commute → bike_lease" in dialog.inner_text() or "#1" in dialog.inner_text()
     assert dialog.locator("button", has_text="Lock it").count() == 0
     fay.screenshot(path=str(ARTIFACTS / "room-lock-open.png"))
     dialog.locator("button", has_text="Close").click()
@@ -261,7 +261,7 @@ def test_locking_lists_what_is_still_open_and_locked_tools_say_why(room):
     text = dialog.inner_text()
     assert "2 arrows are still in dispute" in text
     assert "age → sick_days (as drawn) or no arrow — arrow age → sick_days voted against" in text
-    assert "commute → scheme or no arrow (as drawn)" in text
+    assert "commute → bike_lease or no arrow (as drawn)" in text
     fay.screenshot(path=str(ARTIFACTS / "room-lock-disputes.png"))
     dialog.locator("button", has_text="Not yet").click()
     assert _stage(fay) == "debating"
@@ -291,13 +291,13 @@ def test_debate_writes_arrows_in_their_direction_and_spells_out_decisive(room):
     room.send(room.fac, {"type": "set_stage", "stage": "debating"})
     ann, ann_token = room.member("Ann")
     room.send(ann_token, {"type": "vote", "from": "age", "to": "sick_days", "choice": "disagree"})
-    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "scheme"})
+    revision = room.send(ann_token, {"type": "propose", "kind": "add", "from": "commute", "to": "bike_lease"})
     at_revision(ann, revision)
     ann.locator('.tabs [data-tab="debate"]').click()
     wait(ann, "document.querySelectorAll('.panel .dispute').length === 2", "both disputes")
     headers = ann.locator(".panel .dispute header").all_inner_texts()
     assert any("age → sick_days (as drawn) or no arrow: decisive" in h for h in headers), headers
-    assert any("commute → scheme or no arrow (as drawn): does not change the answer" in h for h in headers), headers
+    assert any("commute → bike_lease or no arrow (as drawn): does not change the answer" in h for h in headers), headers
     decisive = ann.locator(".panel .dispute-decisive").inner_text()
     # Without age -> sick_days, { } becomes minimal and { age } is no longer minimal but
     # stays valid: age still blocks nothing it should not (back-door criterion, Pearl 2009, 3.3.1).

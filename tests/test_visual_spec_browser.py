@@ -34,8 +34,8 @@ SVG = "{http://www.w3.org/2000/svg}"
 DOCUMENT = {
     "format": "arrowmoot-graph", "version": 1,
     "variables": [
-        {"name": "promo_email", "label": "Promotion email", "x": 60, "y": 300},
-        {"name": "scheme", "label": "Joined the cycle-to-work scheme", "x": 330, "y": 300},
+        {"name": "voucher_draw", "label": "Won a voucher in the staff lottery", "x": 60, "y": 300},
+        {"name": "bike_lease", "label": "Leased a bike in 2025", "x": 330, "y": 300},
         {"name": "sick_days", "label": "Sick days", "x": 800, "y": 300},
         {"name": "fitness", "label": "Baseline fitness", "x": 560, "y": 210},
         {"name": "commute_km", "label": "Commute distance", "x": 330, "y": 140},
@@ -43,12 +43,12 @@ DOCUMENT = {
         {"name": "health", "label": "Health consciousness", "latent": True, "x": 800, "y": 60},
     ],
     "arrows": [
-        {"from": "promo_email", "to": "scheme"}, {"from": "scheme", "to": "sick_days"},
+        {"from": "voucher_draw", "to": "bike_lease"}, {"from": "bike_lease", "to": "sick_days"},
         {"from": "fitness", "to": "sick_days"}, {"from": "age", "to": "sick_days"},
-        {"from": "commute_km", "to": "scheme"}, {"from": "commute_km", "to": "fitness"},
-        {"from": "age", "to": "scheme"}, {"from": "health", "to": "fitness"}, {"from": "health", "to": "sick_days"},
+        {"from": "commute_km", "to": "bike_lease"}, {"from": "commute_km", "to": "fitness"},
+        {"from": "age", "to": "bike_lease"}, {"from": "health", "to": "fitness"}, {"from": "health", "to": "sick_days"},
     ],
-    "treatment": ["scheme"], "outcome": ["sick_days"],
+    "treatment": ["bike_lease"], "outcome": ["sick_days"],
 }
 ADJUSTED = ["fitness", "age"]
 DISPUTED = ("fitness", "sick_days")

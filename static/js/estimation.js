@@ -56,6 +56,7 @@ class EstimationPanel {
     this.choice = { method: 'auto', correction: 'holm', adjust: null };
     this.pendingFile = null;
     this.version = 0;
+    this.loaded = false;
   }
 
   get canEdit() {
@@ -71,7 +72,7 @@ class EstimationPanel {
 
   /** What the stage means for the data, said from what is attached now. */
   stageNote() {
-    if (this.isOpenForData) return null;
+    if (this.isOpenForData || !this.loaded) return null;
     const next = 'The facilitator moves the session to “Agreed” or “Estimation” first.';
     if (!this.data) return `Data is attached once the room has agreed the diagram. ${next}`;
     const mapped = Object.keys(this.data.mapping || {}).length;
@@ -94,6 +95,7 @@ class EstimationPanel {
       this.data = data.data;
       this.variables = data.variables;
       this.results = results;
+      this.loaded = true;
       if (quiet && !changed) return;
     } catch (err) {
       if (quiet) return;
