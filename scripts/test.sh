@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Install what the tests need (Python packages; Debian chromium for the browser
-# tests, when running as root and it is missing) and run the whole suite.
+# tests, when running as root and it is missing; axe-core from npm) and run the whole suite.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 if ! command -v chromium >/dev/null 2>&1 && [ "$(id -u)" = "0" ] && command -v apt-get >/dev/null 2>&1; then
@@ -9,4 +9,13 @@ if ! command -v chromium >/dev/null 2>&1 && [ "$(id -u)" = "0" ] && command -v a
     apt-get install -y -qq chromium >/dev/null
 fi
 python3 -m pip install --quiet --disable-pip-version-check -e '.[test]'
+# axe-core (npm) for the browser tests' accessibility audit, into a folder they read.
+if ! command -v npm >/dev/null 2>&1 && [ "$(id -u)" = "0" ] && command -v apt-get >/dev/null 2>&1; then
+    apt-get update -qq >/dev/null
+    DEBIAN_FRONTEND=noninteractive apt-get install -y -qq npm >/dev/null
+fi
+if [ ! -f tests/.axe/node_modules/axe-core/axe.min.js ]; then
+    mkdir -p tests/.axe
+    npm install --no-save --no-audit --no-fund --silent --prefix tests/.axe axe-core@4 >/dev/null
+fi
 python3 -m pytest "$@"

@@ -329,3 +329,84 @@ def test_drawing_a_proposal_asks_for_an_optional_reason(room):
     proposal = bob.evaluate("window.arrowmoot.state.proposals[0]")
     assert (proposal["kind"], proposal["reason"]) == ("add", "long rides tire people out")
     assert "“long rides tire people out”" in bob.locator('.panel [data-proposal="1"] .byline').inner_text()
+
+
+def _tab_to(page, predicate, what, limit=120):
+    """Press Tab until the focused element satisfies ``predicate`` (a JS expression on `f`)."""
+    for _ in range(limit):
+        page.keyboard.press("Tab")
+        if page.evaluate(f"(() => {{ const f = document.activeElement; return !!f && ({predicate}); }})()"):
+            return
+    raise AssertionError(f"Tab never reached {what}")
+
+
+def _button(text):
+    return f"f.tagName === 'BUTTON' && f.textContent.trim() === {text!r}"
+
+
+def test_the_whole_workshop_works_from_the_keyboard(room):
+    """Add, select, connect, move, vote and settle with keys alone; others hear votes,
+    proposals and stage moves through a polite live region."""
+    fay = _fac_page(room)
+    ann, _ = room.member("Ann", (1280, 720))
+    fay.locator(".canvas").focus()
+
+    # add: N opens the dialog, Enter adds and selects
+    fay.keyboard.press("n")
+    fay.keyboard.type("weather")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.view.selection?.name === 'weather'", "weather selected")
+    # connect: the select beside "Arrow from weather to", then its button
+    _tab_to(fay, "f.tagName === 'SELECT'", "the arrow target")
+    fay.keyboard.type("sick")
+    _tab_to(fay, _button("Draw this arrow"), "the draw button")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.state.document.arrows.some((a) => a.from === 'weather' && a.to === 'sick_days')",
+         "the arrow weather → sick_days")
+    # move: arrow keys with focus outside a field
+    x = fay.evaluate("window.arrowmoot.state.document.variables.find((v) => v.name === 'weather').x")
+    fay.keyboard.press("ArrowRight")
+    wait(fay, f"window.arrowmoot.state.document.variables.find((v) => v.name === 'weather').x === {x + 20}",
+         "weather moved")
+    # select: Escape clears, the list offers every variable; ] steps through them
+    fay.keyboard.press("Escape")
+    _tab_to(fay, _button("commute"), "commute in the list")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.view.selection?.name === 'commute'", "commute selected")
+    assert fay.evaluate("document.activeElement.textContent") == "Variable commute"
+    fay.keyboard.press("]")
+    wait(fay, "window.arrowmoot.view.selection?.name === 'weather'", "the next variable")
+
+    # stage move by keyboard; Ann's page announces it
+    _tab_to(fay, _button("2. Debating"), "the Debating stage")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.state.session.stage === 'debating'", "debating")
+    wait(ann, "document.querySelector('[aria-live=polite][role=log]')?.textContent.includes('Fay moved')",
+         "the stage change announced")
+
+    # propose with a reason, from the keyboard
+    fay.keyboard.press("[")
+    wait(fay, "window.arrowmoot.view.selection?.name === 'commute'", "commute again")
+    _tab_to(fay, "f.tagName === 'SELECT'", "the arrow target")
+    fay.keyboard.type("fit")
+    _tab_to(fay, _button("Propose this arrow"), "the propose button")
+    fay.keyboard.press("Enter")
+    fay.keyboard.type("hills make riders fitter")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.state.proposals.length === 1", "the proposal")
+    wait(ann, "document.querySelector('[aria-live=polite][role=log]')?.textContent.includes('Fay proposed #1')",
+         "the proposal announced")
+
+    # vote and settle on the Debate tab
+    _tab_to(fay, "f.dataset.tab === 'debate'", "the Debate tab")
+    fay.keyboard.press("Enter")
+    _tab_to(fay, "f.dataset.choice === 'agree'", "Agree")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.state.proposals[0].tally.agree === 1", "the vote")
+    wait(ann, "document.querySelector('[aria-live=polite][role=log]')?.textContent.includes('Fay voted agree')",
+         "the vote announced")
+    _tab_to(fay, _button("Accept"), "Accept")
+    fay.keyboard.press("Enter")
+    wait(fay, "window.arrowmoot.state.proposals[0].status === 'accepted'", "accepted")
+    assert fay.evaluate("window.arrowmoot.state.document.arrows.some((a) => a.from === 'commute' && a.to === 'fitness')")
+    fay.screenshot(path=str(ARTIFACTS / "room-keyboard.png"))

@@ -84,6 +84,17 @@ export function nudgeSelection(app, dx, dy) {
   return true;
 }
 
+/** Select the next (step 1) or previous (step -1) variable in the document's order. */
+export function selectNextVariable(app, step) {
+  const names = app.state.document.variables.map((v) => v.name);
+  if (!names.length) return;
+  const sel = app.view.selection;
+  const at = sel?.kind === 'variable' ? names.indexOf(sel.name) : -1;
+  const next = at < 0 ? (step > 0 ? 0 : names.length - 1) : (at + step + names.length) % names.length;
+  app.focusSelection = true;
+  app.select({ kind: 'variable', name: names[next] });
+}
+
 export function toggleLatent(app) {
   const v = selectedVariable(app);
   if (v) app.send({ type: 'update_variable', name: v.name, latent: !v.latent }).catch(() => {});

@@ -7,7 +7,7 @@ const SHORTCUTS = [
   ['N', 'new variable (or double-click empty space)'], ['C', 'arrow mode on/off (or Shift-drag)'],
   ['Delete', 'delete the selection (proposes while debating)'], ['R', 'reverse the selected arrow'],
   ['E / F2', 'rename the selected variable'], ['L', 'mark the selected variable unmeasured / measured'],
-  ['Arrow keys', 'nudge the selected variable (Shift: finer)'],
+  ['Arrow keys', 'nudge the selected variable (Shift: finer)'], ['[ / ]', 'select the previous / next variable'],
   ['T', 'tidy the layout'], ['F', 'fit to screen'], ['+ / −', 'zoom'], ['G', 'legend'],
   ['P', 'larger text for a projector'], ['Ctrl+Z', 'undo (facilitator)'], ['Esc', 'clear the selection'],
 ];
@@ -38,6 +38,7 @@ export function handleKey(app, event) {
     case '?': showShortcuts(); break;
     case 'p': case 'P': app.toggleProjector(); break;
     case 'Escape': app.view.highlight = null; app.select(null); break;
+    case '[': case ']': commands.selectNextVariable(app, key === ']' ? 1 : -1); break;
     case 'Delete': case 'Backspace':
       if (!app.view.selection) break;
       event.preventDefault();

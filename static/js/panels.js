@@ -296,6 +296,38 @@ function renderAbsent(app) {
   return box;
 }
 
+/** Every variable and arrow as a button: choosing what to work on without a pointer. */
+function pickList(app) {
+  const s = app.state;
+  const pick = (text, selection) => el('li', {}, el('button', { type: 'button', class: 'quiet pick', text,
+    on: { click: () => { app.focusSelection = true; app.select(selection); } } }));
+  return el('div', { class: 'pick' },
+    el('h3', { text: `Variables (${s.document.variables.length})` }),
+    el('ul', { class: 'pick-list' }, s.document.variables.map((v) => pick(v.name, { kind: 'variable', name: v.name }))),
+    el('h3', { text: `Arrows (${s.document.arrows.length})` }),
+    s.document.arrows.length
+      ? el('ul', { class: 'pick-list' }, s.document.arrows.map((a) => pick(`${a.from} → ${a.to}`, { kind: 'arrow', key: JSON.stringify([a.from, a.to]) })))
+      : el('p', { class: 'muted', text: 'No arrow yet.' }));
+}
+
+/** Draw (or, while debating, propose) an arrow from the selected variable, by keyboard too. */
+function arrowFrom(app, v) {
+  const s = app.state;
+  const linked = new Set(s.document.arrows.filter((a) => a.from === v.name || a.to === v.name).map((a) => (a.from === v.name ? a.to : a.from)));
+  const targets = s.document.variables.map((x) => x.name).filter((n) => n !== v.name && !linked.has(n));
+  if (!targets.length) return el('p', { class: 'muted', text: `${v.name} is linked to every other variable already.` });
+  const debating = s.session.stage === 'debating';
+  const target = el('select', { 'aria-label': `Draw an arrow from ${v.name} to` }, targets.map((n) => el('option', { value: n, text: n })));
+  const go = () => {
+    const command = app.arrowCommand(v.name, target.value);
+    if (command.type === 'propose') app.proposeWithReason('add', v.name, target.value);
+    else app.send(command).catch(() => {});
+  };
+  return el('div', { class: 'row arrow-from' },
+    el('label', {}, `Arrow from ${v.name} to `, target),
+    el('button', { type: 'button', text: debating ? 'Propose this arrow' : 'Draw this arrow', on: { click: go } }));
+}
+
 /** Details of the selected variable, arrow or proposal. */
 export function renderSelection(app) {
   const box = el('div', { class: 'panel-body' });
@@ -304,6 +336,7 @@ export function renderSelection(app) {
   const locked = ['agreed', 'estimation'].includes(s.session.stage);
   if (!sel) {
     box.append(el('p', { class: 'muted', text: 'Select a variable or an arrow on the diagram to see and change it. Double-click empty space to add a variable; drag from the round handle (or Shift-drag) to draw an arrow.' }));
+    box.append(pickList(app));
     return box;
   }
   if (sel.kind === 'variable') {
@@ -326,7 +359,7 @@ export function renderSelection(app) {
       if (name.value.trim() && name.value.trim() !== v.name) cmd.new_name = name.value.trim();
       if (Object.keys(cmd).length > 2) app.send(cmd).then(() => { if (cmd.new_name) app.select({ kind: 'variable', name: cmd.new_name }); }).catch(() => {});
     };
-    box.append(el('h3', { text: `Variable ${v.name}` }),
+    box.append(el('h3', { class: 'selection-heading', tabindex: '-1', text: `Variable ${v.name}` }),
       el('form', { class: 'stack', on: { submit: (e) => { e.preventDefault(); save(); } } },
         el('label', {}, 'Name (used in the analysis)', name),
         el('label', {}, 'Label (shown on the diagram)', label),
@@ -334,6 +367,8 @@ export function renderSelection(app) {
         el('label', { class: 'check' }, latent, ' Unmeasured (no data will exist for it)'),
         locked ? null : el('div', { class: 'row' }, el('button', { type: 'submit', class: 'primary', text: 'Save' }),
           el('button', { type: 'button', class: 'danger', text: 'Delete variable', on: { click: () => app.send({ type: 'delete_variable', name: v.name }).then(() => app.select(null)) } }))));
+    if (!locked) box.append(arrowFrom(app, v));
+    box.append(el('p', { class: 'muted', text: 'With the variable selected and the focus outside a field, the arrow keys move it (Shift: finer steps).' }));
     const current = app.analysis?.revision === s.revision;
     const roles = current ? app.analysis?.analysis?.roles?.[v.name] : null;
     if (!current) box.append(el('p', { class: 'updating', text: 'Working out its role after the latest edit…' }));
@@ -354,7 +389,7 @@ export function renderSelection(app) {
   const arrow = s.arrows.find((x) => JSON.stringify([x.from, x.to]) === sel.key);
   if (!arrow) return box;
   const debating = s.session.stage === 'debating';
-  box.append(el('h3', { text: `Arrow ${arrow.from} → ${arrow.to}` }));
+  box.append(el('h3', { class: 'selection-heading', tabindex: '-1', text: `Arrow ${arrow.from} → ${arrow.to}` }));
   if (arrow.flag) box.append(el('p', { class: 'note', text: arrow.flag === 'disputed' ? 'Marked disputed by the facilitator.' : 'Marked settled by the facilitator.' }));
   box.append(el('p', { class: 'tally', text: tallyLine(arrow.tally) }));
   box.append(voteBox(app, { from: arrow.from, to: arrow.to }, arrow.votes, locked));

@@ -20,6 +20,9 @@ import { attachKeyboard, showShortcuts } from './keyboard.js';
 import { readPanel, restorePanel, orphanNotes } from './drafts.js';
 import { applyColourVariables } from './visual.js';
 
+// What the room hears about as it happens: votes, proposals and their fate, stage moves.
+const ANNOUNCED = new Set(['vote', 'withdraw_vote', 'propose', 'withdraw_proposal', 'settle', 'set_stage']);
+
 const pageData = JSON.parse(document.getElementById('page-data').textContent);
 
 class SessionApp {
@@ -120,7 +123,7 @@ class SessionApp {
   }
 
   noteEvent(event) {
-    if (event) this.lastEvent = event;
+    if (event) { this.lastEvent = event; this.announce(event); }
     if (!reduceEvent(this.page, event)) { this.loadHistory(); return; }
     if (event && this.history && this.tab === 'history') this.refreshPanel();
   }
@@ -244,7 +247,9 @@ class SessionApp {
     this.panel = el('div', { class: 'panel', role: 'tabpanel' });
     this.estimationPanel = el('div', { id: 'estimation-panel', class: 'panel', hidden: true });
     const side = el('aside', { class: 'side' }, this.tabs, this.panel, this.estimationPanel);
-    app.append(this.bar, el('div', { class: 'workspace' }, canvasWrap, side));
+    // Live changes by others, read out politely (the region itself is not shown).
+    this.announcer = el('div', { class: 'visually-hidden', 'aria-live': 'polite', 'aria-atomic': 'false', role: 'log', 'aria-label': 'Changes in the room' });
+    app.append(this.bar, el('div', { class: 'workspace' }, canvasWrap, side), this.announcer);
     this.canvas = new Canvas(this.canvasHost, {
       // A drawn arrow while debating becomes a proposal: ask for its (optional) reason first.
       onCommand: (c) => (c.type === 'propose' ? this.proposeWithReason(c.kind, c.from, c.to) : this.send(c)),
@@ -335,8 +340,22 @@ class SessionApp {
     const missing = restorePanel(this.panel, this.drafts, before)
       .filter((key) => this.drafts.get(key).tab === this.tab && this.isDraftOrphaned(key));
     if (missing.length) this.panel.prepend(...orphanNotes(this.drafts, missing, this.orphanReason(), () => this.refreshPanel()));
+    if (this.focusSelection) {
+      // chosen from the list: the reader lands on what was chosen
+      this.focusSelection = false;
+      this.panel.querySelector('.selection-heading')?.focus();
+    }
     this.panel.scrollTop = scroll;
     this.renderTabs();
+  }
+
+  /** Tell screen readers, politely, about votes, proposals and stage changes as they happen. */
+  announce(event) {
+    if (!this.announcer || !ANNOUNCED.has(event.kind)) return;
+    if (event.actor === this.me.id && event.kind !== 'set_stage') return;  // one's own change is on screen
+    const line = el('p', { text: `${event.actor === this.me.id ? 'You' : event.actor_name} ${event.summary}.` });
+    this.announcer.append(line);
+    while (this.announcer.childElementCount > 5) this.announcer.firstChild.remove();
   }
 
   /** Whether the variable, arrow or proposal a draft's key names is gone from the state. */
