@@ -86,7 +86,9 @@ def run_serve(args: argparse.Namespace) -> int:
     return 0
 
 
-def _open_store(db: str | None):
+def _open_sessions(db: str | None):
+    """The sessions of an existing database (None, with a message, when there is none)."""
+    from .sessions import Sessions
     from .settings import Settings
     from .store import Store
 
@@ -94,24 +96,20 @@ def _open_store(db: str | None):
     if not os.path.exists(path):  # never create a database by a typo
         print(f"error: no database at {path}; pass --db with the file the server uses", file=sys.stderr)
         return None
-    return Store(path)
+    return Sessions(Store(path), use_processes=False)
 
 
 def run_sessions(args: argparse.Namespace) -> int:
     import time
 
-    from .workshop.models import Workshop
-
-    store = _open_store(args.db)
-    if store is None:
+    sessions = _open_sessions(args.db)
+    if sessions is None:
         return EXIT_BAD_INPUT
-    rows = store.list_sessions()
-    if not rows:
+    listed = sessions.list_sessions()
+    if not listed:
         print("no sessions in this database")
         return 0
-    for row in rows:
-        loaded = store.load_session(row["id"])
-        members = Workshop.from_state(loaded[0]).members.values() if loaded else []
+    for row, members in listed:
         people = sorted((m.name, m.role) for m in members)
         shown = ", ".join(f"{n} ({r})" if r == "facilitator" else n for n, r in people)
         when = time.strftime("%Y-%m-%d %H:%M", time.localtime(row["updated"] or row["created"]))
@@ -122,35 +120,16 @@ def run_sessions(args: argparse.Namespace) -> int:
 
 def run_key(args: argparse.Namespace) -> int:
     """Issue a new key to the session's facilitator (or a named member); the old one stops working."""
-    import secrets
+    from .errors import AppError
 
-    from .web.live import hash_token
-    from .workshop.models import Workshop
-
-    store = _open_store(args.db)
-    if store is None:
+    sessions = _open_sessions(args.db)
+    if sessions is None:
         return EXIT_BAD_INPUT
-    loaded = store.load_session(args.session)
-    if loaded is None:
-        print(f"error: no session {args.session!r} in this database; `arrowmoot sessions` lists them",
-              file=sys.stderr)
+    try:
+        member, token = sessions.reissue_key(args.session, args.member)
+    except AppError as err:
+        print(f"error: {err.message}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    members = list(Workshop.from_state(loaded[0]).members.values())
-    if args.member:
-        wanted = args.member.strip().casefold()
-        chosen = [m for m in members if m.name.strip().casefold() == wanted]
-        who = f"no member named {args.member!r}"
-    else:
-        chosen = [m for m in members if m.is_facilitator]
-        who = "no facilitator"
-    if len(chosen) != 1:
-        names = ", ".join(sorted(m.name for m in members)) or "none"
-        problem = who if not chosen else f"{len(chosen)} members match {args.member or 'facilitator'!r}"
-        print(f"error: {problem} in session {args.session!r} (members: {names})", file=sys.stderr)
-        return EXIT_BAD_INPUT
-    member = chosen[0]
-    token = f"{member.id}.{secrets.token_urlsafe(24)}"
-    store.replace_member_token(session_id=args.session, member_id=member.id, token_hash=hash_token(token))
     base = os.environ.get("ARROWMOOT_PUBLIC_URL", "http://127.0.0.1:8000").rstrip("/")
     print(f"New key for {member.name} ({member.role}); the old key no longer works.")
     print(f"  Link (keep it private): {base}/s/{args.session}#key={token}")

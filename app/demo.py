@@ -2,7 +2,7 @@
 members, their votes and reasons, open and settled disputes, and the invented
 data attached and mapped for the estimation stage.
 
-Everything is done through the hub's own commands (create, join, submit, note),
+Everything is done through the application layer's own calls (create, join, submit, note),
 as a room would do it, from two files in ``sample_data/``: the diagram
 (``cycle_to_work.json``) and the debate (``cycle_to_work.session.json``). A
 debate file has a ``facilitator`` and ``members`` (each with a short ``key``
@@ -19,8 +19,7 @@ import logging
 from pathlib import Path
 from typing import Any
 
-from .web.live import Hub
-from .web.routes.estimation import attach_file
+from .sessions import Sessions
 from .workshop.models import Member, Workshop
 
 __all__ = ["DEBATE_FORMAT", "debate_path", "open_demo_session"]
@@ -51,7 +50,7 @@ def _resolved(command: dict[str, Any], labels: dict[str, int]) -> dict[str, Any]
     return command
 
 
-async def open_demo_session(hub: Hub, document_path: Path) -> tuple[Workshop, str]:
+async def open_demo_session(sessions: Sessions, document_path: Path) -> tuple[Workshop, str]:
     """Create the demo session and return it with the facilitator's key (shown once).
 
     Without a debate file beside the diagram, the session stays in drafting with
@@ -62,37 +61,37 @@ async def open_demo_session(hub: Hub, document_path: Path) -> tuple[Workshop, st
     path = debate_path(document_path)
     debate = _read_debate(path) if path.is_file() else {}
     facilitator = debate.get("facilitator", {"key": "facilitator", "name": "Facilitator"})
-    w, token = hub.create_session(title=debate.get("title", "Demo session (invented data)"),
-                                  facilitator_name=facilitator["name"], document=document)
+    w, token = sessions.create(title=debate.get("title", "Demo session (invented data)"),
+                               facilitator_name=facilitator["name"], document=document)
     members = {facilitator["key"]: next(m for m in w.members.values() if m.is_facilitator)}
     try:
-        await _replay(hub, w, debate, members, path)
+        await _replay(sessions, w, debate, members, path)
     except Exception as exc:  # the diagram alone is still a usable demo
         log.warning("demo session only partly built: %s", exc)
-    return hub.workshop(w.id), token
+    return sessions.workshop(w.id), token
 
 
-async def _replay(hub: Hub, w: Workshop, debate: dict[str, Any], members: dict[str, Member],
+async def _replay(sessions: Sessions, w: Workshop, debate: dict[str, Any], members: dict[str, Member],
                   path: Path) -> None:
     chair = next(iter(members.values()))
     for entry in debate.get("members", []):
-        _, member, _ = await hub.join(w.join_code, entry["name"])
+        _, member, _ = await sessions.join(w.join_code, entry["name"])
         members[entry["key"]] = member
         if entry.get("analyst"):
-            await hub.submit(w.id, chair, {"type": "grant_role", "member": member.id, "role": "analyst"})
+            await sessions.submit(w.id, chair, {"type": "grant_role", "member": member.id, "role": "analyst"})
     labels: dict[str, int] = {}
     for number, step in enumerate(debate.get("steps", []), start=1):
         try:
-            event = await hub.submit(w.id, members[step["by"]], _resolved(step["command"], labels))
+            event = await sessions.submit(w.id, members[step["by"]], _resolved(step["command"], labels))
         except Exception as exc:
             raise ValueError(f"step {number} of {path.name} was refused: {exc}") from exc
         if "label" in step:
             labels[step["label"]] = event["proposal"]
     data = debate.get("data")
     if data:
-        variables = [v["name"] for v in hub.workshop(w.id).variables]
-        info = attach_file(hub.store, w.id, path.parent / data["file"], variables=variables)
-        await hub.note(w.id, members.get(data.get("by"), chair),
+        variables = [v["name"] for v in sessions.workshop(w.id).variables]
+        info = sessions.attach_data(w.id, path.parent / data["file"], variables=variables)
+        await sessions.note(w.id, members.get(data.get("by"), chair),
                        f"attached the demo's invented data {info['name']} ({info['rows']:,} rows); "
                        f"{len(info['mapping'])} variables mapped to the columns of the same name; "
                        "estimates wait until the diagram is agreed", kind="estimation")

@@ -20,8 +20,10 @@ from .settings import Settings
 from .store import Store
 from .web import pages, ws
 from .web.guards import BodyLimit, JoinLimiter, OriginGuard
+from .sessions import Sessions
 from .web.live import Hub
-from .web.routes import identify, sessions
+from .web.routes import identify
+from .web.routes import sessions as session_routes
 
 __all__ = ["create_app"]
 
@@ -44,19 +46,22 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
         settings.data_dir = Path(data_dir)
 
     store = Store(settings.db_path, data_dir=settings.data_dir)
-    hub = Hub(store, use_processes=settings.analysis_in_process,
-              key_lifetime=settings.key_lifetime_days * 86400.0)
+    sessions = Sessions(store, use_processes=settings.analysis_in_process,
+                        key_lifetime=settings.key_lifetime_days * 86400.0)
+    hub = Hub(sessions)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
         if settings.demo_session:
-            await _create_demo_session(hub, settings)
+            await _create_demo_session(sessions, settings)
         yield
         await hub.close()
+        await sessions.close()
 
     app = FastAPI(title="Arrowmoot", version="0.1.0", lifespan=lifespan)
     app.state.settings = settings
     app.state.store = store
+    app.state.sessions = sessions
     app.state.hub = hub
     app.state.join_limiter = JoinLimiter(limit=settings.join_attempts_per_minute, window=60.0)
     app.state.static_dir = STATIC_DIR
@@ -77,7 +82,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     app.add_middleware(OriginGuard, allowed=settings.allowed_origins)
 
     app.include_router(identify.router)
-    app.include_router(sessions.router)
+    app.include_router(session_routes.router)
     app.include_router(ws.router)
     app.include_router(pages.router)
     try:
@@ -95,15 +100,15 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     return app
 
 
-async def _create_demo_session(hub: Hub, settings: Settings) -> None:
+async def _create_demo_session(sessions: Sessions, settings: Settings) -> None:
     """With an empty database, open the bike-lease demo (in debate, data attached) and print its links once."""
-    if hub.store.count_sessions() > 0:
+    if sessions.store.count_sessions() > 0:
         return
     path = settings.demo_document
     if not path.is_file():
         return
     try:
-        w, token = await open_demo_session(hub, path)
+        w, token = await open_demo_session(sessions, path)
     except Exception as exc:  # a broken demo file must not stop the server
         log.warning("demo session not created: %s", exc)
         return

@@ -69,10 +69,10 @@ def demo_case():
     app = make_app(Path(tempfile.mkdtemp()))
     with TestClient(app) as client:
         made = build_workshop(client)
-        hub = app.state.hub
-        store = hub.store
+        sessions = app.state.sessions
+        store = sessions.store
         attachments = {k: store.get_attachment(made.session_id, k) for k in store.list_attachment_keys(made.session_id)}
-        return hub.workshop(made.session_id), hub.analysis_now(made.session_id), attachments
+        return sessions.workshop(made.session_id), sessions.analysis.now(made.session_id), attachments
 
 
 def time_case(label: str, workshop: Workshop, analysis: dict, attachments: dict, repeats: int) -> dict:

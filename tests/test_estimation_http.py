@@ -111,11 +111,8 @@ def test_participant_cannot_estimate(room):
 
 def test_attach_file_outside_a_request_then_estimate(room):
     """The helper for seeding a session (e.g. the demo) attaches data as an upload would."""
-    from app.web.routes.estimation import attach_file
-
     client, base, headers, made = room
-    store = client.app.state.store
-    info = attach_file(store, made["session_id"], SAMPLE / "cycle_to_work.csv")
+    info = client.app.state.sessions.attach_data(made["session_id"], SAMPLE / "cycle_to_work.csv")
     assert info["rows"] == 4000
     state = client.get(base, headers=headers).json()
     assert state["data"]["mapping"]["fitness"] == "fitness"

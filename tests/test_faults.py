@@ -261,7 +261,7 @@ def _answer(ws):
 
 
 def test_failure_inside_the_analysis_is_a_clear_message(room, monkeypatch):
-    import app.web.live as live
+    import app.sessions.analysis as analysis
 
     room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
     before = room.state()
@@ -269,9 +269,8 @@ def test_failure_inside_the_analysis_is_a_clear_message(room, monkeypatch):
     def broken(_workshop):
         raise FloatingPointError("overflow in a matrix product")
 
-    monkeypatch.setattr(live, "analyse_workshop", broken)
-    room.client.app.state.hub._analysis.clear()
-    room.client.app.state.hub._analysis_by_key.clear()
+    monkeypatch.setattr(analysis, "analyse_workshop", broken)
+    room.client.app.state.sessions.analysis.forget(room.id)
     r = room.client.get(f"/api/sessions/{room.id}/analysis", headers={TOKEN_HEADER: room.facilitator})
     assert r.status_code == 422
     assert r.json()["code"] == "analysis_failed" and "FloatingPointError" in r.json()["error"]

@@ -239,7 +239,7 @@ def test_no_patch_for_an_event_the_workshop_has_moved_past(debate):
 
     room = debate
     room.ok(room.bob, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "agree"})
-    w = room.client.app.state.hub.workshop(room.id)
+    w = room.client.app.state.sessions.workshop(room.id)
     vote = w.log[-1]
     assert change_patch(w, vote)["arrow_notes"][0]["tally"]["agree"] == 1
     room.ok(room.ann, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "agree"})

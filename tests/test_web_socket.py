@@ -111,7 +111,7 @@ def test_analysis_endpoint_answers_for_the_current_revision(room):
 
 
 def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_document):
-    """With analysis_in_process on, the analysis comes from `python -m app.web.worker`;
+    """With analysis_in_process on, the analysis comes from `python -m app.sessions.worker`;
     it must equal calling the engine's analyze() directly."""
     from fastapi.testclient import TestClient
 
@@ -127,7 +127,7 @@ def test_analysis_from_the_worker_process_matches_the_engine(tmp_path, demo_docu
         with client.websocket_connect(f"/ws/sessions/{room.id}") as ws:
             hello(ws, room.facilitator)
             message = receive_until(ws, "analysis")
-        worker = client.app.state.hub.worker
+        worker = client.app.state.sessions.analysis.worker
         assert worker is not None and worker.process is not None  # it really ran out of process
     expected = analyze(parse_document(demo_document))
     assert message["analysis"]["minimal_adjustment_sets"] == expected["minimal_adjustment_sets"]

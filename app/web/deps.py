@@ -22,9 +22,10 @@ Everything below is stable; import from ``app.web.deps``.
   ``.data_dir()`` (a per-session directory under the data dir, created on use),
   ``await .log(summary, kind="estimation", **extra)`` (adds an event to the
   session history and pushes the new state to every participant).
-* ``StoreDep`` / ``HubDep`` / ``SettingsDep`` for the raw objects
-  (``request.app.state.store`` etc.). ``hub.analysis_now(session_id)`` (sync) and
-  ``await hub.analysis_soon(session_id)`` give the panel's analysis of the current
+* ``SessionsDep`` (the application layer, :class:`app.sessions.Sessions`),
+  ``HubDep`` (the live connections), ``StoreDep`` and ``SettingsDep``
+  (``request.app.state.sessions`` etc.). ``access.analysis_now()`` (sync) and
+  ``await access.analysis_soon()`` give the panel's analysis of the current
   revision: ``{"revision", "analysis", "problem", "disputes", "absent"}``.
 * Errors: raise ``app.errors.NotFound`` / ``BadRequest`` / ``Conflict`` /
   ``Forbidden`` / ``PayloadTooLarge`` (or any ``AppError``); one handler turns them
@@ -46,15 +47,17 @@ from fastapi import Depends, Request
 
 from ..errors import Forbidden
 from ..graph.document import Diagram
+from ..sessions import Sessions
+from ..sessions.keys import TOKEN_HEADER
 from ..settings import Settings
 from ..store import Store
 from ..workshop.models import Member, Workshop
-from .live import TOKEN_HEADER, Hub
+from .live import Hub
 
 __all__ = [
     "SessionAccess", "get_session", "get_member", "require_role",
     "SessionDep", "MemberDep", "FacilitatorDep", "AnalystDep",
-    "StoreDep", "HubDep", "SettingsDep", "TOKEN_HEADER",
+    "StoreDep", "HubDep", "SessionsDep", "SettingsDep", "TOKEN_HEADER",
 ]
 
 
@@ -66,24 +69,29 @@ def get_hub(request: Request) -> Hub:
     return request.app.state.hub
 
 
+def get_sessions(request: Request) -> Sessions:
+    return request.app.state.sessions
+
+
 def get_settings(request: Request) -> Settings:
     return request.app.state.settings
 
 
 StoreDep = Annotated[Store, Depends(get_store)]
 HubDep = Annotated[Hub, Depends(get_hub)]
+SessionsDep = Annotated[Sessions, Depends(get_sessions)]
 SettingsDep = Annotated[Settings, Depends(get_settings)]
 
 
 @dataclass
 class SessionAccess:
     session_id: str
-    hub: Hub
+    sessions: Sessions
     member: Member | None = None
 
     @property
     def workshop(self) -> Workshop:
-        return self.hub.workshop(self.session_id)
+        return self.sessions.workshop(self.session_id)
 
     @property
     def stage(self) -> str:
@@ -104,34 +112,43 @@ class SessionAccess:
         return self.workshop.document()
 
     def require_stage(self, *stages: str) -> None:
-        self.hub.require_stage(self.session_id, *stages)
+        self.sessions.require_stage(self.session_id, *stages)
 
     def put_attachment(self, key: str, value: Any) -> None:
-        self.hub.store.put_attachment(self.session_id, key, value)
+        self.sessions.store.put_attachment(self.session_id, key, value)
 
     def get_attachment(self, key: str, default: Any = None) -> Any:
-        return self.hub.store.get_attachment(self.session_id, key, default)
+        return self.sessions.store.get_attachment(self.session_id, key, default)
 
     def delete_attachment(self, key: str) -> bool:
-        return self.hub.store.delete_attachment(self.session_id, key)
+        return self.sessions.store.delete_attachment(self.session_id, key)
+
+    def list_attachment_keys(self) -> list[str]:
+        return self.sessions.store.list_attachment_keys(self.session_id)
 
     def data_dir(self) -> Path:
-        return self.hub.store.session_data_dir(self.session_id)
+        return self.sessions.store.session_data_dir(self.session_id)
+
+    def analysis_now(self) -> dict[str, Any]:
+        return self.sessions.analysis.now(self.session_id)
+
+    async def analysis_soon(self) -> dict[str, Any]:
+        return await self.sessions.analysis.soon(self.session_id)
 
     async def log(self, summary: str, kind: str = "estimation", **extra: Any) -> dict:
-        return await self.hub.note(self.session_id, self.member, summary, kind=kind, **extra)
+        return await self.sessions.note(self.session_id, self.member, summary, kind=kind, **extra)
 
 
 # The dependencies are async so they run on the event loop, like every change.
-async def get_session(session_id: str, hub: HubDep) -> SessionAccess:
-    hub.workshop(session_id)  # 404 when missing
-    return SessionAccess(session_id=session_id, hub=hub)
+async def get_session(session_id: str, sessions: SessionsDep) -> SessionAccess:
+    sessions.workshop(session_id)  # 404 when missing
+    return SessionAccess(session_id=session_id, sessions=sessions)
 
 
-async def get_member(session_id: str, request: Request, hub: HubDep) -> SessionAccess:
-    hub.workshop(session_id)
-    member = hub.authenticate(session_id, request.headers.get(TOKEN_HEADER))
-    return SessionAccess(session_id=session_id, hub=hub, member=member)
+async def get_member(session_id: str, request: Request, sessions: SessionsDep) -> SessionAccess:
+    sessions.workshop(session_id)
+    member = sessions.authenticate(session_id, request.headers.get(TOKEN_HEADER))
+    return SessionAccess(session_id=session_id, sessions=sessions, member=member)
 
 
 def require_role(role: str):

@@ -173,13 +173,13 @@ class JoinLimiter:
             self._recent(address, self.clock()).append(self.clock())
 
 
-def guarded_join_lookup(request, hub, code):
+def guarded_join_lookup(request, sessions, code):
     """Find the session of a join code; wrong codes count against the caller's address."""
     limiter = request.app.state.join_limiter
     address = request.client.host if request.client else "unknown"
     limiter.check(address)
     try:
-        return hub.find_by_join_code(code)
+        return sessions.find_by_join_code(code)
     except NotFound:
         limiter.failed(address)
         raise

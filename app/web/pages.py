@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter, Request
 
-from .deps import HubDep
+from .deps import SessionsDep
 from .guards import guarded_join_lookup
 
 router = APIRouter(include_in_schema=False)
@@ -26,17 +26,17 @@ def join_form_page(request: Request):
 
 
 @router.get("/join/{code}")
-def join_page(code: str, request: Request, hub: HubDep):
+def join_page(code: str, request: Request, sessions: SessionsDep):
     """The join form for one session (the code is checked again on submit)."""
-    w = guarded_join_lookup(request, hub, code)
+    w = guarded_join_lookup(request, sessions, code)
     return _render(request, "join.html", title=w.title,
                    page_data={"page": "join", "code": w.join_code, "title": w.title})
 
 
 @router.get("/s/{session_id}")
-def session_page(session_id: str, request: Request, hub: HubDep):
+def session_page(session_id: str, request: Request, sessions: SessionsDep):
     """The live workshop page; the key comes from the URL fragment or this browser's storage."""
-    w = hub.workshop(session_id)
+    w = sessions.workshop(session_id)
     static_dir = request.app.state.static_dir
     has_estimation = (static_dir / "js" / "estimation.js").is_file()
     return _render(request, "session.html", title=w.title,

@@ -26,7 +26,8 @@ from fastapi import APIRouter, WebSocket, WebSocketDisconnect
 
 from ..errors import AppError, from_exception
 from ..graph.errors import DiagramError
-from ..workshop.commands import public_event
+from ..sessions import Sessions
+from ..workshop.events import public_event
 from .live import Connection, Hub
 
 router = APIRouter()
@@ -54,6 +55,7 @@ def _error(exc: AppError, msg_id=None) -> str:
 @router.websocket("/ws/sessions/{session_id}")
 async def session_socket(websocket: WebSocket, session_id: str) -> None:
     hub: Hub = websocket.app.state.hub
+    sessions: Sessions = websocket.app.state.sessions
     if not _origin_allowed(websocket):
         await websocket.close(code=4403)
         return
@@ -63,8 +65,8 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
         if not isinstance(hello, dict) or hello.get("type") != "hello":
             raise AppError("the first message must be {\"type\": \"hello\", \"token\": ...}",
                            code="no_hello")
-        hub.workshop(session_id)
-        member = hub.authenticate(session_id, hello.get("token"))
+        sessions.workshop(session_id)
+        member = sessions.authenticate(session_id, hello.get("token"))
     except (asyncio.TimeoutError, WebSocketDisconnect, json.JSONDecodeError, AppError) as exc:
         if isinstance(exc, AppError):
             await websocket.send_text(_error(exc))
@@ -83,17 +85,17 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
     conn = Connection(websocket, member.id)
     # No await between building the state and registering the connection, so no
     # change can slip between them.
-    w = hub.workshop(session_id)
+    w = sessions.workshop(session_id)
     conn.send(json.dumps({"type": "welcome", "member": member.to_public(),
                           "online": sorted(set(hub.online(session_id)) | {member.id})}))
     conn.send(_state_with_missed(hub, session_id, hello.get("revision")))
     hub.connect(session_id, conn)
     try:
-        cached = hub.cached_analysis(session_id)
+        cached = sessions.analysis.cached(session_id)
         if cached is not None:
             conn.send(hub.analysis_message(cached))
         else:
-            hub.schedule_analysis(session_id)
+            sessions.analysis.schedule(session_id)
         while True:
             text = await websocket.receive_text()
             if len(text) > limit:
@@ -113,7 +115,7 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
             if kind == "command":
                 msg_id = message.get("id")
                 try:
-                    event = await hub.submit(session_id, member, message.get("command"),
+                    event = await sessions.submit(session_id, member, message.get("command"),
                                              key=message.get("key"))
                 except (AppError, DiagramError) as exc:
                     conn.send(_error(from_exception(exc), msg_id))
@@ -134,7 +136,7 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
 
 
 def _state_with_missed(hub: Hub, session_id: str, revision) -> str:
-    w = hub.workshop(session_id)
+    w = hub.sessions.workshop(session_id)
     missed = []
     if isinstance(revision, int) and not isinstance(revision, bool) and revision < w.revision:
         missed = [public_event(e) for e in w.log if e["revision"] > revision][-MISSED_LIMIT:]

@@ -16,6 +16,7 @@ from ..errors import AppError, BadRequest, Conflict, Forbidden, InvalidDiagram, 
 from ..graph.document import check_name, parse_document
 from ..graph.errors import DiagramError
 from ..graph import layout
+from .events import Event, new_event, public_event
 from .models import (
     PROPOSAL_KINDS, VOTE_CHOICES, Member, Proposal, Vote, Workshop, arrow_key,
 )
@@ -561,7 +562,7 @@ HANDLERS: dict[str, Callable[[Workshop, Member, dict], _Change]] = {
 COMMAND_TYPES = tuple(HANDLERS)
 
 
-def apply_command(workshop: Workshop, member: Member, command: Any, *, now: float) -> dict[str, Any]:
+def apply_command(workshop: Workshop, member: Member, command: Any, *, now: float) -> Event:
     """Check and apply one command; return its log event. Raises AppError, changes nothing then."""
     if not isinstance(command, dict):
         raise BadRequest("a command must be a JSON object with a 'type'", code="invalid_command")
@@ -592,14 +593,9 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
         raise
     workshop.revision += 1
     clean = {k: v for k, v in command.items() if k not in ("document", "text")}
-    event: dict[str, Any] = {
-        "revision": workshop.revision, "at": now, "actor": member.id, "actor_name": member.name,
-        "kind": kind, "summary": change.summary, "command": clean,
-        "undoable": change.undoable, "undone": False,
-    }
-    if change.undoable:
-        event["before"] = before
-    event.update(change.extra)
+    extra = dict(change.extra, before=before) if change.undoable else change.extra
+    event = new_event(revision=workshop.revision, at=now, actor=member, kind=kind,
+                      summary=change.summary, command=clean, undoable=change.undoable, **extra)
     workshop.log.append(event)
     return event
 
@@ -641,7 +637,7 @@ def read_document(document: Any = None, text: Any = None, fmt: Any = None) -> di
 
 def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id: str,
                  facilitator_name: str, document: Any = None, treatment: Any = None,
-                 outcome: Any = None, now: float) -> tuple[Workshop, dict[str, Any]]:
+                 outcome: Any = None, now: float) -> tuple[Workshop, Event]:
     """A new session with its facilitator; the question may create missing variables."""
     title = _text({"title": title}, "title", limit=MAX_TITLE, required=True, what="the title")
     name = _text({"name": facilitator_name}, "name", limit=MAX_MEMBER_NAME, what="your name") \
@@ -677,25 +673,19 @@ def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id:
                 w.variables.append({"name": n, "latent": False, "x": x, "y": y})
         setattr(w, part, list(names))
     _validate(w)
-    event = {"revision": 0, "at": now, "actor": fac.id, "actor_name": fac.name,
-             "kind": "create", "summary": f"opened the session {title!r}",
-             "command": {"type": "create"}, "undoable": False, "undone": False}
+    event = new_event(revision=0, at=now, actor=fac, kind="create",
+                      summary=f"opened the session {title!r}")
     w.log.append(event)
     return w, event
 
 
-def add_member(workshop: Workshop, *, member_id: str, name: Any, now: float) -> tuple[Member, dict]:
+def add_member(workshop: Workshop, *, member_id: str, name: Any, now: float) -> tuple[Member, Event]:
     name = _text({"name": name}, "name", limit=MAX_MEMBER_NAME, required=True, what="your name")
     member = Member(id=member_id, name=name, role="participant", joined=now)
     workshop.members[member.id] = member
     workshop.revision += 1
-    event = {"revision": workshop.revision, "at": now, "actor": member.id, "actor_name": name,
-             "kind": "join", "summary": "joined the session", "command": {"type": "join"},
-             "undoable": False, "undone": False}
+    event = new_event(revision=workshop.revision, at=now, actor=member, kind="join",
+                      summary="joined the session")
     workshop.log.append(event)
     return member, event
 
-
-def public_event(event: dict[str, Any]) -> dict[str, Any]:
-    """An event as the history view shows it (without the undo snapshot)."""
-    return {k: v for k, v in event.items() if k != "before"}

@@ -20,15 +20,14 @@ analyst or facilitator role and the ``agreed`` or ``estimation`` stage):
 
 Results are kept under the attachment keys ``estimation.estimate``,
 ``estimation.stability``, ``estimation.sensitivity``, ``estimation.disputes``;
-the data under ``estimation.data``. :func:`attach_file` attaches a file outside a
-request (for seeding a session).
+the data under ``estimation.data``. ``Sessions.attach_data`` (app/sessions)
+attaches a file outside a request (for seeding a session).
 """
 
 from __future__ import annotations
 
 import os
 import time
-from pathlib import Path
 from typing import Any
 
 from fastapi import APIRouter, Body, Request
@@ -41,13 +40,12 @@ from ...estimation.errors import DataError
 from ...estimation.tables import load_table, profile_table
 from ...graph.errors import DiagramError
 from ...reporting import charts
+from ...sessions.data import DATA_KEY, RESULT_KEYS, data_info, stored_name
 from ..deps import AnalystDep, MemberDep
 
 router = APIRouter(prefix="/api/sessions/{session_id}/estimation", tags=["estimation"])
 
 STAGES = ("agreed", "estimation")
-DATA_KEY = "estimation.data"
-RESULT_KEYS = ("estimation.estimate", "estimation.stability", "estimation.sensitivity", "estimation.disputes")
 _CACHE: dict[str, tuple[tuple, Any]] = {}
 
 
@@ -106,33 +104,6 @@ def _variables(access) -> list[dict]:
             for v in d.variables]
 
 
-def attach_file(store, session_id: str, path: str | os.PathLike, *, name: str | None = None,
-                variables: list[str] | None = None) -> dict:
-    """Attach a data file to a session outside a request (e.g. the demo session at start-up).
-
-    ``store`` is the app's Store (``put_attachment`` and ``session_data_dir``).
-    The file is copied into the session's data directory, checked and profiled
-    exactly as an upload is. With ``variables`` (the diagram's names) the mapping
-    of same-named columns is saved, as after an upload. Raises DataError if the
-    file is unusable.
-    """
-    import shutil
-
-    source = Path(path)
-    frame = load_table(source, max_bytes=None, name=name or source.name)
-    folder = store.session_data_dir(session_id)
-    with open(source, "rb") as handle:
-        stored = "data.parquet" if handle.read(4) == b"PAR1" else "data.csv"
-    shutil.copyfile(source, folder / stored)
-    info = {"name": name or source.name, "stored": stored, "bytes": source.stat().st_size,
-            "rows": int(len(frame)), "columns": list(map(str, frame.columns)),
-            "profile": service.json_ready(profile_table(frame)),
-            "mapping": None if variables is None else propose_mapping(variables, frame.columns),
-            "uploaded_at": time.time()}
-    store.put_attachment(session_id, DATA_KEY, info)
-    return info
-
-
 @router.get("")
 def read_estimation(access: MemberDep) -> dict:
     """What is attached, how it is mapped, and the latest results."""
@@ -180,9 +151,7 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
     except BaseException:
         partial.unlink(missing_ok=True)
         raise
-    with open(partial, "rb") as handle:
-        suffix = ".parquet" if handle.read(4) == b"PAR1" else ".csv"
-    stored = f"data{suffix}"
+    stored = stored_name(partial)
     for old in folder.glob("data.*"):
         if old.name != stored:
             old.unlink(missing_ok=True)
@@ -195,9 +164,7 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
     for var, col in previous.items():
         if var in diagram.names and col in frame.columns and col not in mapping.values():
             mapping[var] = col
-    info = {"name": name, "stored": stored, "bytes": size, "rows": int(len(frame)),
-            "columns": list(map(str, frame.columns)), "profile": service.json_ready(profile),
-            "mapping": mapping, "uploaded_at": time.time()}
+    info = data_info(frame, name=name, stored=stored, size=size, mapping=mapping, profile=profile)
     access.put_attachment(DATA_KEY, info)
     for key in RESULT_KEYS:
         access.delete_attachment(key)

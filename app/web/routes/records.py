@@ -27,20 +27,15 @@ from fastapi.responses import HTMLResponse, Response
 
 from ...errors import AppError, BadRequest, PayloadTooLarge
 from ...graph.errors import DiagramError
-from ...reporting.bundle import (
-    BundleError, attachments_from_bundle, build_bundle, file_sha256, restore_workshop, validate_bundle,
-)
+from ...reporting.bundle import BundleError, build_bundle, file_sha256, validate_bundle
 from ...reporting.report import render_report
-from ...workshop.models import Member
+from ...sessions import IMPORT_MODES
 from ...workshop.views import public_state
-from ..deps import AnalystDep, HubDep
-from ..live import JOIN_ALPHABET, hash_token
+from ..deps import AnalystDep, SessionAccess, SessionsDep
 
 router = APIRouter(tags=["records"])
 
 MAX_BUNDLE_BYTES = 50 * 1024 * 1024
-READ_ONLY_KEY = "record.read_only"
-SOURCE_KEY = "record.source"
 # The report is a standalone document: inline styles, inline SVG, nothing else.
 REPORT_CSP = ("default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; "
               "form-action 'none'; frame-ancestors 'self'")
@@ -61,17 +56,16 @@ def _download(body: str, media_type: str, filename: str) -> Response:
                     headers={"Content-Disposition": f'attachment; filename="{filename}"'})
 
 
-def session_bundle(access) -> dict[str, Any]:
+def session_bundle(access: SessionAccess) -> dict[str, Any]:
     """The record bundle of the session behind ``access``."""
-    store = access.hub.store
-    keys = [k for k in store.list_attachment_keys(access.session_id) if k.startswith("estimation.")]
-    attachments = {k: store.get_attachment(access.session_id, k) for k in keys}
+    keys = [k for k in access.list_attachment_keys() if k.startswith("estimation.")]
+    attachments = {k: access.get_attachment(k) for k in keys}
     info = attachments.get("estimation.data") or {}
     digest = None
     if info.get("stored"):
         path = access.data_dir() / info["stored"]
         digest = file_sha256(path) if path.is_file() else info.get("sha256")
-    return build_bundle(access.workshop, analysis=access.hub.analysis_now(access.session_id),
+    return build_bundle(access.workshop, analysis=access.analysis_now(),
                         attachments=attachments, data_sha256=digest, exported_at=time.time())
 
 
@@ -132,15 +126,13 @@ def create_report_link(access: AnalystDep) -> dict:
 
 
 @router.get("/records/view/{ticket}", include_in_schema=False)
-def read_report_by_link(ticket: str, hub: HubDep) -> HTMLResponse:
+def read_report_by_link(ticket: str, sessions: SessionsDep) -> HTMLResponse:
     found = _links.get(ticket)
     if found is None or found[1] < time.time():
         _links.pop(ticket, None)
         raise AppError("this report link has expired; open the report again from the session page",
                        code="link_expired", status=404)
-    from ..deps import SessionAccess
-
-    return _report_response(render_report(session_bundle(SessionAccess(session_id=found[0], hub=hub))))
+    return _report_response(render_report(session_bundle(SessionAccess(session_id=found[0], sessions=sessions))))
 
 
 async def _read_bundle(request: Request) -> dict[str, Any]:
@@ -183,58 +175,16 @@ def _clean_name(name: str | None, default: str) -> str:
     return name or default
 
 
-def import_bundle(hub, bundle: dict[str, Any], *, mode: str, name: str) -> tuple[Any, Member, str]:
-    """Open ``bundle`` as a fresh session with its full history; return (workshop, member, key)."""
-    store = hub.store
-    session_id = secrets.token_urlsafe(9)
-    for _ in range(50):
-        join_code = "".join(secrets.choice(JOIN_ALPHABET) for _ in range(6))
-        if not store.join_code_taken(join_code):
-            break
-    w = restore_workshop(bundle, session_id=session_id, join_code=join_code)
-    now = time.time()
-    member_id = "m" + secrets.token_hex(6)
-    member = Member(id=member_id, name=name, role="facilitator" if mode == "new" else "participant", joined=now)
-    w.members[member_id] = member
-    events = list(w.log)
-    w.revision = max([w.revision] + [e["revision"] for e in events]) + 1
-    original = bundle["session"]
-    how = "as a new session" if mode == "new" else "read-only"
-    event = {"revision": w.revision, "at": now, "actor": member_id, "actor_name": name, "kind": "import_record",
-             "summary": f"reopened the record of {original.get('title')!r} {how} (exported with Arrowmoot "
-                        f"{(bundle.get('software') or {}).get('version', '?')})",
-             "command": {"type": "import_record", "mode": mode}, "undoable": False, "undone": False}
-    w.log.append(event)
-    events.append(event)
-    token = f"{member_id}.{secrets.token_urlsafe(24)}"
-    state = w.to_state()
-    # Composed from the store's own functions: the session row with the first
-    # event and the importer's key, then each later event in order.
-    store.create_session(session_id=session_id, title=w.title, join_code=join_code, state=state,
-                         revision=w.revision, event=events[0], token_hash=hash_token(token), member_id=member_id)
-    for e in events[1:]:
-        store.save_change(session_id=session_id, state=state, revision=w.revision, event=e)
-    for key, value in attachments_from_bundle(bundle).items():
-        store.put_attachment(session_id, key, value)
-    store.put_attachment(session_id, SOURCE_KEY, {
-        "session_id": original.get("id"), "title": original.get("title"), "exported_at": bundle.get("exported_at"),
-        "software": bundle.get("software"), "data_sha256": (bundle.get("data") or {}).get("sha256"),
-        "mode": mode, "imported_at": now})
-    if mode == "read-only":
-        store.put_attachment(session_id, READ_ONLY_KEY, True)
-    return hub.workshop(session_id), member, token
-
-
 @router.post("/api/records/import", status_code=201)
-async def create_session_from_bundle(request: Request, hub: HubDep, mode: str = "new",
+async def create_session_from_bundle(request: Request, sessions: SessionsDep, mode: str = "new",
                                      name: str | None = None) -> dict:
     """Reopen a record bundle as a session, with its diagram, votes, history and results."""
-    if mode not in ("new", "read-only"):
+    if mode not in IMPORT_MODES:
         raise BadRequest("'mode' must be new or read-only", code="invalid_field")
     who = _clean_name(name, "Facilitator" if mode == "new" else "Reader")
     bundle = await _read_bundle(request)
     try:
-        w, member, token = import_bundle(hub, bundle, mode=mode, name=who)
+        w, member, token = sessions.import_record(bundle, mode=mode, name=who)
     except DiagramError as exc:
         raise AppError(f"the bundle's diagram is not valid: {exc.message}", code="bundle_bad_graph",
                        status=422) from None
@@ -298,14 +248,14 @@ async def records_form_report(request: Request, bundle: UploadFile = File(...)) 
 
 
 @router.post("/records/import", include_in_schema=False)
-async def records_form_import(request: Request, hub: HubDep, bundle: UploadFile = File(...),
+async def records_form_import(request: Request, sessions: SessionsDep, bundle: UploadFile = File(...),
                               mode: str = Form("new"), name: str = Form("")) -> HTMLResponse:
     try:
-        if mode not in ("new", "read-only"):
+        if mode not in IMPORT_MODES:
             raise BadRequest("choose to reopen it as a new session or read-only", code="invalid_field")
         who = _clean_name(name, "Facilitator" if mode == "new" else "Reader")
         data = await _form_bundle(bundle)
-        w, member, token = import_bundle(hub, data, mode=mode, name=who)
+        w, member, token = sessions.import_record(data, mode=mode, name=who)
     except AppError as err:
         return _page(request, status=err.status, error=err.message)
     opened = {"title": w.title, "read_only": mode == "read-only", "join_code": w.join_code,

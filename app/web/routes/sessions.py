@@ -8,7 +8,7 @@ from fastapi import APIRouter, Body, Request, Response
 
 from ...errors import BadRequest
 from ...workshop.views import history, public_state
-from ..deps import HubDep, MemberDep
+from ..deps import HubDep, MemberDep, SessionsDep
 from ..guards import guarded_join_lookup
 
 router = APIRouter(prefix="/api", tags=["sessions"])
@@ -23,11 +23,11 @@ def _links(session_id: str, join_code: str, token: str | None = None) -> dict[st
 
 
 @router.post("/sessions", status_code=201)
-async def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
+async def create_session(sessions: SessionsDep, body: Any = Body(...)) -> dict:
     """Open a new session; the answer holds the facilitator's key (shown once)."""
     if not isinstance(body, dict):
         raise BadRequest("send a JSON object with a 'title'", code="invalid_request")
-    w, token = hub.create_session(
+    w, token = sessions.create(
         title=body.get("title"), facilitator_name=body.get("name"),
         document=body.get("document"), treatment=body.get("treatment"),
         outcome=body.get("outcome"), document_text=body.get("document_text"),
@@ -40,29 +40,29 @@ async def create_session(hub: HubDep, body: Any = Body(...)) -> dict:
 
 
 @router.get("/join/{code}")
-async def read_join_code(code: str, hub: HubDep, request: Request) -> dict:
+async def read_join_code(code: str, sessions: SessionsDep, request: Request) -> dict:
     """What a join code leads to (title and stage only)."""
-    w = guarded_join_lookup(request, hub, code)
+    w = guarded_join_lookup(request, sessions, code)
     return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
 
 
 @router.post("/join", status_code=201)
-async def join_session(hub: HubDep, request: Request, body: Any = Body(...)) -> dict:
+async def join_session(sessions: SessionsDep, request: Request, body: Any = Body(...)) -> dict:
     """Join a session with its code and a display name; returns the participant's key."""
     if not isinstance(body, dict):
         raise BadRequest("send a JSON object with 'code' and 'name'", code="invalid_request")
-    guarded_join_lookup(request, hub, body.get("code"))
-    w, member, token = await hub.join(body.get("code"), body.get("name"))
+    guarded_join_lookup(request, sessions, body.get("code"))
+    w, member, token = await sessions.join(body.get("code"), body.get("name"))
     return {"ok": True, "session_id": w.id, "token": token, "member": member.to_public(),
             **_links(w.id, w.join_code)}
 
 
 @router.get("/sessions/{session_id}")
-async def read_session(access: MemberDep) -> dict:
+async def read_session(access: MemberDep, hub: HubDep) -> dict:
     """The session's current state, as every participant sees it."""
     w = access.workshop
     return {"ok": True, "member": access.member.to_public(), "state": public_state(w),
-            "online": access.hub.online(w.id)}
+            "online": hub.online(w.id)}
 
 
 @router.post("/sessions/{session_id}/commands")
@@ -71,7 +71,7 @@ async def submit_command(access: MemberDep, request: Request, body: Any = Body(.
 
     An ``Idempotency-Key`` header makes a resent request harmless: the same key
     from the same member is applied once and answered with ``"replayed": true`` after."""
-    event = await access.hub.submit(access.session_id, access.member, body,
+    event = await access.sessions.submit(access.session_id, access.member, body,
                                     key=request.headers.get("idempotency-key"))
     return {"ok": True, "revision": event["revision"], "event": _public(event),
             **({"replayed": True} if event.get("replayed") else {})}
@@ -86,7 +86,7 @@ async def read_history(access: MemberDep) -> dict:
 @router.get("/sessions/{session_id}/analysis")
 async def read_analysis(access: MemberDep) -> dict:
     """What the current diagram implies, with the dispute and absent-arrow checks."""
-    return {"ok": True, **(await access.hub.analysis_soon(access.session_id))}
+    return {"ok": True, **(await access.analysis_soon())}
 
 
 EXPORTS = {

@@ -1,6 +1,6 @@
 """The analysis worker: a child process that analyses workshop states.
 
-The server starts it with ``python -m app.web.worker`` and talks JSON lines
+The server starts it with ``python -m app.sessions.worker`` and talks JSON lines
 over stdin/stdout: one workshop state in, one analysis out. Running the
 analysis here keeps its CPU time away from the event loop that pushes edits.
 The worker exits when its stdin closes, so it never outlives the server.
