@@ -139,7 +139,7 @@ def test_import_as_new_session_reopens_it_as_it_was(recorded):
     est = client.get(f"/api/sessions/{made['session_id']}/estimation", headers=head).json()
     assert est["estimate"]["estimate"] == bundle["estimation"]["estimate"]["estimate"]
     assert est["disputes"]["charts"]["forest"].startswith("<svg")
-    assert est["sensitivity"]["charts"]["contour"].startswith("<svg")
+    assert est["sensitivity"]["charts"]["hidden_cause"].startswith("<svg")
     # the data file is not in the bundle: estimating again asks for it
     r = client.post(f"/api/sessions/{made['session_id']}/estimation/estimate", json={}, headers=head)
     assert r.status_code == 404 and r.json()["code"] == "data_missing"

@@ -26,3 +26,24 @@ def test_readme_has_exactly_two_setup_commands():
     setup = README.split("## Set up", 1)[1].split("\n## ", 1)[0]
     commands = [line for line in setup.splitlines() if line.startswith("    ")]
     assert commands == ["    pip install -e . && arrowmoot serve", "    bash scripts/test.sh"]
+
+
+def test_every_sensitivity_key_is_in_the_readme():
+    """Each key the sensitivity result carries is named in the README's table."""
+    import json
+
+    import pandas as pd
+
+    from app.estimation import service
+    from app.graph.document import parse_document
+
+    sample = Path(__file__).resolve().parent.parent / "sample_data"
+    diagram = parse_document(json.loads((sample / "cycle_to_work.json").read_text()))
+    frame = pd.read_csv(sample / "cycle_to_work.csv")
+    reg = service.sensitivity(diagram, frame, statements=[{"by": "A", "variable": "age", "times": 2}])["regression"]
+    table = README.split("| `sensitivity.regression` |", 1)[1].split("\n\n", 1)[0]
+    keys = set(reg) | set(reg["benchmarks"][0]) | set(reg["room"]) | set(reg["room"]["statements"][0]) \
+        | set(reg["path"][0])
+    missing = sorted(k for k in keys if not any(f"{pre}{k}{end}" in table
+                                                for pre in ("`", ".") for end in ("`", "[]`")))
+    assert not missing, missing

@@ -98,12 +98,12 @@ def test_stability_checks_behave(diagram, frame):
     assert all(c["verdict"] == "passes" for c in out["checks"])
 
 
-def test_sensitivity_for_demo_has_benchmarks_and_contour(diagram, frame):
+def test_sensitivity_for_demo_has_benchmarks_and_interval_path(diagram, frame):
     out = service.sensitivity(diagram, frame)
     reg = out["regression"]
     assert 0 < reg["robustness_value_alpha"] < reg["robustness_value"] < 1
     assert {b["variable"] for b in reg["benchmarks"]} == {"age", "commute_km", "department", "fitness"}
-    assert reg["contour"]["lines"]
+    assert reg["path"][0]["strength"] == 0 and reg["path"][0]["estimate"] == pytest.approx(reg["estimate"])
     assert out["e_value"]["e_value"] > 1
 
 

@@ -57,7 +57,7 @@ def test_sensitivity_and_disputes_return_svg_charts(room):
     client, base, headers, _ = room
     client.put(f"{base}/data?name=cycle.csv", content=CSV, headers=headers)
     sens = client.post(f"{base}/sensitivity", json={}, headers=headers).json()["result"]
-    assert "am-contour" in sens["charts"]["contour"]
+    assert "am-shift" in sens["charts"]["hidden_cause"]
     disputes = client.post(f"{base}/disputes", json={"disputed": [{"from": "fitness", "to": "bike_lease"}]},
                            headers=headers).json()["result"]
     assert len(disputes["rows"]) == 2 and "am-forest" in disputes["charts"]["forest"]

@@ -23,8 +23,9 @@ def test_darfur_partial_r2_and_robustness_values():
     assert S.robustness_value(t, DARFUR["df"], alpha=0.05) == pytest.approx(0.076, abs=5e-4)
 
 
-# The paper's bounds table: a confounder 1, 2, 3 times as strong as "female"
-# (r2dz, r2yz, adjusted estimate, adjusted se). Values from memory.
+# Cinelli & Hazlett (2020), Table 2 (Darfur, bounds on the strength of a hidden
+# cause 1, 2, 3 times as strong as "female"): its share of the treatment, of the
+# outcome, the estimate and standard error had it been adjusted for. Values from memory.
 DARFUR_BOUNDS = [
     (1, 0.0092, 0.1246, 0.0752, 0.0219),
     (2, 0.0183, 0.2493, 0.0529, 0.0204),
@@ -32,57 +33,66 @@ DARFUR_BOUNDS = [
 ]
 
 
-@pytest.mark.parametrize("k, r2dz, r2yz, adj_est, adj_se", DARFUR_BOUNDS)
-def test_darfur_adjusted_estimates_for_female_benchmarks(k, r2dz, r2yz, adj_est, adj_se):
+@pytest.mark.parametrize("k, with_t, with_y, adj_est, adj_se", DARFUR_BOUNDS)
+def test_darfur_estimates_if_present_for_causes_like_female(k, with_t, with_y, adj_est, adj_se):
     est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
-    assert float(S.adjusted_estimate(est, se, df, r2dz, r2yz)) == pytest.approx(adj_est, abs=2e-4)
-    assert float(S.adjusted_se(se, df, r2dz, r2yz)) == pytest.approx(adj_se, abs=2e-4)
+    assert float(S.estimate_if_present(est, se, df, with_t, with_y)) == pytest.approx(adj_est, abs=2e-4)
+    assert float(S.std_error_if_present(se, df, with_t, with_y)) == pytest.approx(adj_se, abs=2e-4)
 
 
 def test_benchmark_bounds_scale_like_the_published_table():
     """Recover female's partial R2 values from the 1x row, then the 2x and 3x rows must follow."""
-    r2dxj = 0.0092 / (1 + 0.0092)  # inverts r2dz = r2dxj / (1 - r2dxj)
-    r2yxj = optimize.brentq(lambda v: S.benchmark_bounds(r2dxj, v, kd=1)[1] - 0.1246, 1e-6, 0.5)
-    for k, r2dz, r2yz, *_ in DARFUR_BOUNDS[1:]:
-        got = S.benchmark_bounds(r2dxj, r2yxj, kd=k)
-        assert got[0] == pytest.approx(r2dz, abs=1.5e-4)
-        assert got[1] == pytest.approx(r2yz, abs=2e-4)
+    cov_r2_t = 0.0092 / (1 + 0.0092)  # inverts with_t = cov_r2_t / (1 - cov_r2_t)
+    cov_r2_y = optimize.brentq(lambda v: S.as_strong_as(cov_r2_t, v, times=1)[1] - 0.1246, 1e-6, 0.3)
+    for k, with_t, with_y, *_ in DARFUR_BOUNDS[1:]:
+        got = S.as_strong_as(cov_r2_t, cov_r2_y, times=k)
+        assert got[0] == pytest.approx(with_t, abs=1.5e-4)
+        assert got[1] == pytest.approx(with_y, abs=2e-4)
 
 
 @pytest.mark.parametrize("t_value, df", [(4.18, 783), (2.5, 100), (40.0, 500), (10.0, 10)])
 def test_robustness_value_alpha_is_the_smallest_strength_that_loses_significance(t_value, df):
-    """Brute-force check of RV(q=1, alpha) against its definition: the least max(r2dz, r2yz)
-    such that the bias-adjusted 95% interval reaches zero (covers the case f_q > 1/f*)."""
+    """Brute-force check of RV(q=1, alpha) against its definition: the least max(with_t, with_y)
+    such that the 95% interval of the estimate if present reaches zero (covers the case f_q > 1/f*)."""
     se = 1.0
     est = t_value * se
     tcrit = stats.t.ppf(0.975, df - 1)
 
-    def reaches_zero(r2dz, r2yz):
-        return S.adjusted_estimate(est, se, df, r2dz, r2yz) - tcrit * S.adjusted_se(se, df, r2dz, r2yz) <= 0
+    def reaches_zero(with_t, with_y):
+        return (S.estimate_if_present(est, se, df, with_t, with_y)
+                - tcrit * S.std_error_if_present(se, df, with_t, with_y) <= 0)
 
     grid = np.linspace(0, 0.999, 1200)
     best = 1.0
-    for r2dz in grid:
-        ok = grid[reaches_zero(r2dz, grid)]
+    for with_t in grid:
+        ok = grid[reaches_zero(with_t, grid)]
         if ok.size:
-            best = min(best, max(r2dz, ok.min()))
+            best = min(best, max(with_t, ok.min()))
     assert S.robustness_value(t_value, df, alpha=0.05) == pytest.approx(best, abs=2e-3)
 
 
-def test_adjusted_estimate_vanishes_at_the_robustness_value():
+def test_estimate_if_present_vanishes_at_the_robustness_value():
     est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
     rv = S.robustness_value(est / se, df)
-    assert float(S.adjusted_estimate(est, se, df, rv, rv)) == pytest.approx(0.0, abs=1e-9)
+    assert float(S.estimate_if_present(est, se, df, rv, rv)) == pytest.approx(0.0, abs=1e-9)
 
 
-def test_contour_line_for_zero_passes_through_the_robustness_value():
+def test_interval_path_reaches_zero_at_the_two_robustness_values():
+    """Along the path of equally strong causes, the estimate reaches zero at RV and the
+    lower interval limit at RV(alpha) (both from Cinelli & Hazlett's closed forms)."""
     est, se, df = DARFUR["estimate"], DARFUR["se"], DARFUR["df"]
-    contour = S.contour_lines(est, se, df, r2_max=0.3, levels=[0.0, 0.05])
-    zero = next(line for line in contour["lines"] if line["level"] == 0.0)
-    rv = S.robustness_value(est / se, df)
-    xs, ys = np.array(zero["points"]).T
-    assert np.interp(rv, xs, ys) == pytest.approx(rv, rel=0.02)
-    assert zero["critical"]
+    path = S.interval_path(est, se, df, top=0.3, points=3001)
+    xs = np.array([p["strength"] for p in path])
+    rv, rv_alpha = S.robustness_value(est / se, df), S.robustness_value(est / se, df, alpha=0.05)
+    assert np.interp(0.0, -np.array([p["estimate"] for p in path]), xs) == pytest.approx(rv, abs=2e-4)
+    assert np.interp(0.0, -np.array([p["low"] for p in path]), xs) == pytest.approx(rv_alpha, abs=2e-4)
+    assert path[0]["estimate"] == pytest.approx(est) and path[0]["strength"] == 0
+
+
+def test_equal_strength_moves_the_estimate_as_far():
+    for with_t, with_y in [(0.0092, 0.1246), (0.2, 0.01), (0.05, 0.05)]:
+        s = S.equal_strength(with_t, with_y)
+        assert float(S.shift(1.0, 100, s, s)) == pytest.approx(float(S.shift(1.0, 100, with_t, with_y)), rel=1e-9)
 
 
 # VanderWeele & Ding (2017), worked example: observed risk ratio 3.9 with lower
@@ -117,6 +127,8 @@ def test_benchmark_partial_r2_match_statsmodels_t_statistics():
     frame = pd.read_csv(sample / "cycle_to_work.csv")
     reg = service.sensitivity(diagram, frame)["regression"]
     age = next(b for b in reg["benchmarks"] if b["variable"] == "age" and b["k"] == 1)
+    assert (age["r2_with_treatment"], age["r2_with_outcome"]) == pytest.approx(
+        S.as_strong_as(age["covariate_r2_treatment"], age["covariate_r2_outcome"]))
     covs = pd.get_dummies(frame[["age", "commute_km", "department", "fitness"]], drop_first=True, dtype=float)
     d_fit = sm.OLS(frame.bike_lease, sm.add_constant(covs)).fit()
     y_fit = sm.OLS(frame.sick_days, sm.add_constant(pd.concat([frame.bike_lease, covs], axis=1))).fit()
@@ -139,9 +151,9 @@ def _confounded_by_z(n=1500, seed=3):
 
 
 def test_bias_and_standard_error_formulas_reproduce_the_longer_regression():
-    """Cinelli & Hazlett (2020), section 4: with r2dz, r2yz the partial R2 of the omitted
-    z, the short regression's estimate minus the bias is the long regression's estimate
-    and the adjusted se is its classical se, exactly. The short-regression figures are
+    """Cinelli & Hazlett (2020), section 4: with with_t, with_y the partial R2 of the omitted
+    z with treatment and outcome, the short regression's estimate moved by the shift is
+    the long regression's estimate and the adjusted se its classical se, exactly. The short-regression figures are
     taken from our sensitivity result; the long regression and the partial R2 of z from
     statsmodels OLS."""
     import statsmodels.api as sm
@@ -153,15 +165,15 @@ def test_bias_and_standard_error_formulas_reproduce_the_longer_regression():
     reg = S.regression_sensitivity(design)
     long = sm.OLS(frame.y, sm.add_constant(frame[["d", "x1", "x2", "z"]])).fit()
     treat = sm.OLS(frame.d, sm.add_constant(frame[["x1", "x2", "z"]])).fit()
-    r2yz = S.partial_r2(long.tvalues["z"], long.df_resid)
-    r2dz = S.partial_r2(treat.tvalues["z"], treat.df_resid)
-    est, se, df = reg["estimate"], reg["std_error"], reg["df"]
-    assert est - float(S.bias(se, df, r2dz, r2yz)) == pytest.approx(long.params["d"], rel=1e-9)
-    assert float(S.adjusted_se(se, df, r2dz, r2yz)) == pytest.approx(long.bse["d"], rel=1e-9)
+    with_y = S.partial_r2(long.tvalues["z"], long.df_resid)
+    with_t = S.partial_r2(treat.tvalues["z"], treat.df_resid)
+    est, se, df = reg["estimate"], reg["classical_std_error"], reg["df"]
+    assert float(S.estimate_if_present(est, se, df, with_t, with_y)) == pytest.approx(long.params["d"], rel=1e-9)
+    assert float(S.std_error_if_present(se, df, with_t, with_y)) == pytest.approx(long.bse["d"], rel=1e-9)
     short = sm.OLS(frame.y, sm.add_constant(frame[["d", "x1", "x2"]])).fit()
     assert se == pytest.approx(short.bse["d"], rel=1e-10)
     robust = short.get_robustcov_results("HC1").bse[1]
-    assert abs(float(S.adjusted_se(robust, df, r2dz, r2yz)) - long.bse["d"]) > 0.05 * long.bse["d"]
+    assert abs(float(S.std_error_if_present(robust, df, with_t, with_y)) - long.bse["d"]) > 0.05 * long.bse["d"]
 
 
 def test_robustness_value_uses_the_classical_t_on_mroz_wage_regression():
@@ -185,3 +197,64 @@ def test_robustness_value_uses_the_classical_t_on_mroz_wage_regression():
     assert reg["partial_r2_treatment"] == pytest.approx(S.partial_r2(t, df), rel=1e-9)
     robust_t = fit.get_robustcov_results("HC1").tvalues[1]
     assert abs(reg["robustness_value"] - S.robustness_value(robust_t, df)) > 0.01
+
+
+# -- the room's stated hidden causes ------------------------------------------------
+
+def _hidden_u(n=2000, seed=5):
+    """Simulated truth: the effect of d on y is -0.1, but an unmeasured u drives both
+    (about 1.4 times as strongly as x1 does), so adjusting for x1 and x2 alone gives a
+    clearly positive estimate."""
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    x1, x2, u = rng.normal(size=(3, n))
+    d = 0.5 * x1 + 0.3 * x2 + 0.6 * u + rng.normal(size=n)
+    y = -0.1 * d + 0.5 * x1 + 0.3 * x2 + 0.6 * u + rng.normal(size=n)
+    return pd.DataFrame({"x1": x1, "x2": x2, "u": u, "d": d, "y": y})
+
+
+def test_room_reading_says_the_sign_changes_under_the_rooms_median_cause():
+    import statsmodels.api as sm
+
+    from app.estimation.design import build_design
+
+    frame = _hidden_u()
+    design = build_design(frame, {c: c for c in frame}, treatment="d", outcome="y", adjust=["x1", "x2"])
+    statements = [{"by": "Ana", "variable": "x1", "times": 0.5, "words": "half as strong as x1"},
+                  {"by": "Ben", "variable": "x1", "times": 2.0, "words": "twice as strong as x1"},
+                  {"by": "Cy", "variable": "x1", "times": 3.0, "words": "three times as strong as x1"},
+                  {"by": "Di", "variable": "u", "times": 1.0}]
+    reg = S.regression_sensitivity(design, statements=statements)
+    room = reg["room"]
+    assert reg["estimate"] > 0.1
+    assert room["counted"] == 3
+    assert room["median"]["by"] == "Ben" and room["strongest"]["by"] == "Cy"
+    assert room["median"]["standing"] == "sign changes" and room["median"]["estimate_if_present"] < 0
+    by = {r["by"]: r for r in room["statements"]}
+    assert by["Ana"]["standing"] == "holds"
+    assert not by["Di"]["usable"] and "not among the adjustment columns" in by["Di"]["why"]
+    assert "median statement (twice as strong as x1, stated by Ben) the estimate changes sign" in room["reading"]
+    # and the simulated truth agrees: adjusting for u as well turns the estimate negative
+    full = sm.OLS(frame.y, sm.add_constant(frame[["d", "x1", "x2", "u"]])).fit()
+    assert full.params["d"] < 0
+
+
+def test_room_reading_holds_under_weak_statements_and_says_when_nobody_spoke():
+    from app.estimation.design import build_design
+
+    frame = _hidden_u()
+    design = build_design(frame, {c: c for c in frame}, treatment="d", outcome="y", adjust=["x1", "x2"])
+    reg = S.regression_sensitivity(design, statements=[{"by": "Ana", "variable": "x2", "times": 0.5}])
+    assert reg["room"]["median"] is reg["room"]["strongest"]
+    assert reg["room"]["strongest"]["standing"] == "holds"
+    assert "stays positive and its interval stays away from zero" in reg["room"]["reading"]
+    silent = S.regression_sensitivity(design)["room"]
+    assert silent["median"] is None and "Nobody in the room" in silent["reading"]
+
+
+def test_a_cause_stronger_than_the_data_allow_is_set_aside_with_a_reason():
+    assert S.as_strong_as(0.4, 0.1, times=3) is None  # 3 x 0.4 / 0.6 >= 1
+    reading = S.room_reading([{"by": "A", "variable": "x", "times": 3}], {"x": (0.4, 0.1)},
+                             estimate=1.0, se=0.1, df=500)
+    assert reading["counted"] == 0 and "rule it out" in reading["statements"][0]["why"]

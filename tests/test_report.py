@@ -138,7 +138,7 @@ def test_report_carries_the_decision_record(reported):
 def test_report_draws_the_charts_as_inline_svg(reported):
     _, response, _ = reported
     html = response.text
-    for cls in ("am-diagram", "am-legend", "am-forest", "am-contour"):
+    for cls in ("am-diagram", "am-legend", "am-forest", "am-shift"):
         assert f'class="{cls}' in html or f'class="am-chart {cls}"' in html, cls
 
 

@@ -16,7 +16,7 @@ Modules
 ``implications``  the diagram's independences tested on the data (Fisher z; likelihood ratio),
                   Holm or Benjamini-Hochberg correction
 ``stability``     resampled rows, split halves, shuffled treatment, invented common cause
-``sensitivity``   Cinelli & Hazlett (2020) partial R2, robustness values, contours, benchmarks;
+``sensitivity``   Cinelli & Hazlett (2020) partial R2, robustness values, a cause k times as strong as a covariate, the room's stated causes;
                   VanderWeele & Ding (2017) E-values
 ``service``       one call per question (estimate, stability, sensitivity, disputed arrows)
 ``cli``           ``arrowmoot estimate GRAPH.json DATA.csv [--map v=col ...] [--method NAME]``

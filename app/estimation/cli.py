@@ -1,7 +1,10 @@
 """``arrowmoot estimate GRAPH.json DATA.csv [--map variable=column ...] [--method NAME]``
 
 Prints the estimate as JSON (estimate, std_error, ci, method, strategy,
-adjustment_set or instrument and given, n_used, n_dropped, checks). Exit
+adjustment_set or instrument and given, n_used, n_dropped, checks, and
+``sensitivity``: how strong a hidden common cause would have to be, read with
+the room's stated causes from ``--room FILE``: a record bundle, or a JSON list
+of ``{"by", "variable", "times"}``). Exit
 codes: 0 estimated; 2 bad input (unreadable graph or data, bad mapping or
 method, data the estimate cannot use, an effect the diagram does not
 identify with the measured variables), with the message on stderr.
@@ -19,7 +22,7 @@ from app.graph.errors import DiagramError
 
 from .errors import DataError
 from .planning import METHOD_LABELS
-from .service import estimate, json_ready
+from .service import estimate, json_ready, sensitivity
 from .tables import DEFAULT_MAX_BYTES, load_table
 
 __all__ = ["add_parser", "run"]
@@ -42,6 +45,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="use this adjustment set instead of the default (must be valid)")
     parser.add_argument("--correction", default="holm", choices=["holm", "bh", "none"],
                         help="multiple-testing correction for the implication tests")
+    parser.add_argument("--room", default=None, metavar="FILE",
+                        help="the room's stated hidden causes: a record bundle or a JSON list of "
+                             '{"by", "variable", "times"} (default: none)')
     parser.add_argument("--max-bytes", type=int, default=DEFAULT_MAX_BYTES, help=argparse.SUPPRESS)
     parser.set_defaults(handler=run)
     return parser
@@ -50,6 +56,31 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 def _fail(message: str) -> int:
     print(f"arrowmoot estimate: {message}", file=sys.stderr)
     return 2
+
+
+def _room(path: str | None) -> list[dict]:
+    """Statements from a record bundle (its ``hidden_causes``) or a plain JSON list."""
+    if path is None:
+        return []
+    try:
+        raw = json.loads(Path(path).read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise DataError(f"--room {path}: no such file") from None
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise DataError(f"--room {path} is not JSON ({exc})") from None
+    rows = raw.get("hidden_causes") if isinstance(raw, dict) else raw
+    if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
+        raise DataError(f"--room {path} must be a record bundle or a JSON list of "
+                        '{"by", "variable", "times"} objects')
+    out = []
+    for i, r in enumerate(rows, 1):
+        times = r.get("times")
+        if not isinstance(r.get("variable"), str) or isinstance(times, bool) \
+                or not isinstance(times, (int, float)) or not 0 < times <= 10:
+            raise DataError(f"--room {path}: statement {i} needs a 'variable' name and 'times' above 0 and at most 10")
+        out.append({"by": str(r.get("by") or ""), "variable": r["variable"], "times": float(times),
+                    **({"words": r["words"]} if isinstance(r.get("words"), str) else {})})
+    return out
 
 
 def run(args) -> int:
@@ -77,6 +108,8 @@ def run(args) -> int:
             adjust = [a.strip() for a in args.adjust.split(",") if a.strip()]
         result = estimate(diagram, frame, mapping, method=args.method, adjust=adjust,
                           correction=args.correction)
+        result["sensitivity"] = sensitivity(diagram, frame, mapping, method=args.method, adjust=adjust,
+                                            statements=_room(getattr(args, "room", None)))
     except (DataError, DiagramError) as exc:
         return _fail(exc.message)
     json.dump(json_ready(result), sys.stdout, indent=2)

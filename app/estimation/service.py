@@ -208,30 +208,36 @@ def stability(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None
 
 def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
                 method: str | None = None, adjust: list[str] | None = None, q: float = 1.0,
-                alpha: float = 0.05) -> dict:
+                alpha: float = 0.05, statements: list[dict] | None = None) -> dict:
+    """How strong a hidden common cause would have to be, and what the room's stated
+    ones (``[{"by", "variable", "times"}]``) would do to the estimate."""
     mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
-    out: dict = {"method": chosen, "regression": None, "e_value": None}
+    out: dict = {"method": chosen, "regression": None, "e_value": None, "not_applicable": {}}
     if chosen in ("weighting", "doubly-robust"):
         chosen = out["method"] = "regression"
         out["note"] = ("the partial R-squared sensitivity is defined for the regression estimate; "
                        "it is shown for the regression with the same adjustment set")
     if chosen == "regression":
         fit = estimators.regression(design)
-        out["regression"] = regression_sensitivity(design, q=q, alpha=alpha)
+        out["regression"] = regression_sensitivity(design, q=q, alpha=alpha, statements=statements)
         sd = float(np.std(design.y, ddof=1))
         out["e_value"] = standardized_e_value(fit["estimate"], fit["ci"][0], fit["ci"][1], sd)
     elif chosen == "standardization":
         fit = estimators.standardization(design)
         out["e_value"] = e_value(fit["risk_ratio"], *fit["risk_ratio_ci"])
+        out["not_applicable"]["regression"] = (
+            "the partial R-squared bounds are identities of a linear regression; this estimate "
+            "comes from logistic models, so the E-value of its risk ratio is given instead")
     else:
-        out["note"] = ("the partial R-squared sensitivity and the E-value here apply to adjustment "
-                       f"estimates; the {chosen} estimate relies on other assumptions (see its list)")
+        why = (f"the {chosen} estimate rests on other assumptions than a missing common cause "
+               "of treatment and outcome (see its list)")
+        out["not_applicable"] = {"regression": why, "e_value": why}
     if out["e_value"]:
         ev = out["e_value"]
         out["e_value"]["reading"] = (
-            f"To explain away the estimate, an unmeasured confounder would need a risk ratio of at least "
-            f"{ev['e_value']:.2f} with both treatment and outcome; to move the interval to include no effect, "
-            f"{ev['e_value_ci']:.2f}." if ev["e_value_ci"] is not None else ""
+            f"To explain the estimate away, a hidden common cause would need a risk ratio of at least "
+            f"{ev['e_value']:.2f} with the treatment and with the outcome; to bring the interval to no "
+            f"effect, {ev['e_value_ci']:.2f}." if ev["e_value_ci"] is not None else ""
         )
     return out
 

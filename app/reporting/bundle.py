@@ -16,6 +16,7 @@ Layout (``format`` ``"arrowmoot-record"``, ``version`` 1)::
     identification  the engine's analysis of the agreed diagram
     disputes        which disputed arrows change the answer
     absent_arrows   left-out arrows that would change the answer
+    hidden_causes   each member's stated strongest hidden common cause ("twice as strong as age")
     data            the attached file: name, rows, columns, mapping, SHA-256 fingerprint
     estimation      estimate, implication tests, stability, sensitivity, disputed-arrow estimates
     workshop        the exact session state and event log, so an import reopens it as it was
@@ -36,6 +37,7 @@ from typing import Any
 from .. import __version__
 from ..graph.document import parse_document
 from ..graph.errors import DiagramError
+from ..workshop.hidden_causes import statements_public
 from ..workshop.models import Workshop, parse_arrow_key
 from ..workshop.voting import proposal_public, tally, votes_public
 
@@ -158,6 +160,7 @@ def build_bundle(workshop: Workshop, *, analysis: dict | None, attachments: dict
         "identification_problem": analysis.get("problem"),
         "disputes": _without_timings(analysis.get("disputes")),
         "absent_arrows": analysis.get("absent"),
+        "hidden_causes": statements_public(w)["statements"],
         "data": data,
         "estimation": estimation,
         "implication_tests": (estimation.get("estimate") or {}).get("checks"),
@@ -302,11 +305,8 @@ def attachments_from_bundle(bundle: dict[str, Any]) -> dict[str, Any]:
                 drawn["overlap"] = charts.overlap_histogram(
                     value["details"]["overlap"], treated_label=f"{value.get('treatment')} = 1",
                     untreated_label=f"{value.get('treatment')} = 0")
-            elif name == "sensitivity" and (value.get("regression") or {}).get("contour"):
-                reg = value["regression"]
-                drawn["contour"] = charts.sensitivity_contour(
-                    reg["contour"], benchmarks=reg.get("benchmarks") or [], estimate=reg.get("estimate"),
-                    robustness_value=reg.get("robustness_value"))
+            elif name == "sensitivity" and (value.get("regression") or {}).get("path"):
+                drawn["hidden_cause"] = charts.hidden_cause_chart(value["regression"])
             elif name == "disputes" and value.get("rows"):
                 rows = [{"label": r.get("label"), "estimate": r.get("estimate"),
                          "low": (r.get("ci") or [None, None])[0], "high": (r.get("ci") or [None, None])[1],

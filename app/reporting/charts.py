@@ -1,8 +1,8 @@
 """Server-side SVG charts, returned as strings.
 
 Three builders: :func:`forest_plot` (one estimate per row with its interval),
-:func:`sensitivity_contour` (adjusted estimate over the strength of an
-unmeasured confounder, with benchmark points) and :func:`overlap_histogram`
+:func:`hidden_cause_chart` (the estimate's interval as a hidden common
+cause grows stronger, with the room's stated causes marked) and :func:`overlap_histogram`
 (propensity scores of the two arms, mirrored). All text is XML-escaped; the
 output holds no script and no inline style, only presentation attributes and
 class names (``am-chart``, ``am-...``) a stylesheet may refine.
@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import math
 from html import escape
-from typing import Iterable, Sequence
+from typing import Sequence
 
-__all__ = ["forest_plot", "sensitivity_contour", "overlap_histogram", "nice_ticks"]
+__all__ = ["forest_plot", "hidden_cause_chart", "overlap_histogram", "nice_ticks"]
 
 INK = "#1f2933"
 MUTED = "#6b7785"
@@ -124,72 +124,93 @@ def forest_plot(rows: Sequence[dict], *, title: str = "Estimate under each versi
     return "".join(out)
 
 
-def sensitivity_contour(contour: dict, *, benchmarks: Iterable[dict] = (), estimate: float | None = None,
-                        robustness_value: float | None = None,
-                        title: str = "How strong would an unmeasured confounder have to be?") -> str:
-    """Adjusted-estimate curves over (partial R2 with treatment, partial R2 with outcome)."""
-    size, left, top, right, bottom = 380, 64, 40, 200, 52
-    width, height = left + size + right, top + size + bottom
-    r2_max = float(contour["r2_max"])
+def hidden_cause_chart(regression: dict, *,
+                       title: str = "The interval as a hidden common cause grows stronger") -> str:
+    """The estimate and its interval (shaded band) against the strength of a hidden common
+    cause equally strong on both sides (x: share of what the adjustment set leaves
+    unexplained). The room's stated causes stand as vertical bars with their own interval,
+    placed where an equally strong cause would move the estimate as far; the median and
+    the strongest are named."""
+    path = regression["path"]
+    room = regression.get("room") or {}
+    stated = [r for r in room.get("statements") or [] if r.get("usable")]
+    left, top, plot_w, plot_h, bottom = 70, 62, 500, 220, 96
+    width, height = left + plot_w + 80, top + plot_h + bottom
+    x_max = path[-1]["strength"] or 1.0
+    values = [v for p in path for v in (p["low"], p["high"])] + [0.0]
+    values += [v for r in stated for v in r["interval_if_present"]]
+    ticks_y = nice_ticks(min(values), max(values))
+    if len(ticks_y) > 1 and ticks_y[-1] < max(values):
+        ticks_y.append(round(2 * ticks_y[-1] - ticks_y[-2], 10))
+    lo, hi = ticks_y[0], ticks_y[-1]
 
     def px(v: float) -> float:
-        return left + v / r2_max * size
+        return left + min(v, x_max) / x_max * plot_w
 
     def py(v: float) -> float:
-        return top + size - v / r2_max * size
+        return top + plot_h - (v - lo) / (hi - lo) * plot_h
 
-    out = _open(width, height, title, "Contours of the bias-adjusted estimate; the red dashed curve is where it reaches zero", "am-contour")
+    out = _open(width, height, title, "Estimate and 95% interval for hidden causes of growing strength, "
+                "with the room's stated causes marked", "am-shift")
     out.append(f'<text x="12" y="22" font-size="14" font-weight="600" fill="{INK}">{_t(title)}</text>')
-    for tv in nice_ticks(0, r2_max):
-        if tv > r2_max + 1e-12:
-            continue
-        out.append(f'<line x1="{_f(px(tv))}" y1="{top}" x2="{_f(px(tv))}" y2="{top + size}" stroke="{GRID}"/>')
-        out.append(f'<line x1="{left}" y1="{_f(py(tv))}" x2="{left + size}" y2="{_f(py(tv))}" stroke="{GRID}"/>')
-        out.append(f'<text x="{_f(px(tv))}" y="{top + size + 16}" text-anchor="middle" fill="{MUTED}">{_t(_fmt(tv))}</text>')
+    for tv in ticks_y:
+        out.append(f'<line x1="{left}" y1="{_f(py(tv))}" x2="{left + plot_w}" y2="{_f(py(tv))}" stroke="{GRID}"/>')
         out.append(f'<text x="{left - 6}" y="{_f(py(tv) + 4)}" text-anchor="end" fill="{MUTED}">{_t(_fmt(tv))}</text>')
-    out.append(f'<rect x="{left}" y="{top}" width="{size}" height="{size}" fill="none" stroke="{MUTED}"/>')
-    out.append(f'<text x="{left + size / 2}" y="{top + size + 38}" text-anchor="middle" fill="{INK}">'
-               "partial R² of the confounder with the treatment</text>")
-    out.append(f'<text transform="translate(16 {top + size / 2}) rotate(-90)" text-anchor="middle" fill="{INK}">'
-               "partial R² with the outcome</text>")
-    for line in contour["lines"]:
-        pts = [p for p in line["points"] if 0 <= p[1] <= r2_max]
-        if len(pts) < 2:
+    for tv in nice_ticks(0, x_max):
+        if tv > x_max + 1e-12:
             continue
-        path = " ".join(f"{_f(px(a))},{_f(py(b))}" for a, b in pts)
-        critical = line.get("critical")
-        colour, dash = (CRITICAL, ' stroke-dasharray="6 4"') if critical else (POINT, "")
-        out.append(f'<polyline class="am-level{" am-critical" if critical else ""}" points="{path}" fill="none" '
-                   f'stroke="{colour}" stroke-width="{2 if critical else 1.2}"{dash}/>')
-        lx, ly = pts[-1]
-        out.append(f'<text x="{_f(px(lx) + 4)}" y="{_f(py(ly) + 4)}" fill="{colour}" font-size="11">{_t(_fmt(line["level"]))}</text>')
-    if estimate is not None:
-        out.append(f'<circle cx="{_f(px(0))}" cy="{_f(py(0))}" r="4" fill="{INK}"/>')
-        out.append(f'<text x="{_f(px(0) + 8)}" y="{_f(py(0) - 8)}" fill="{INK}">as estimated: {_t(_fmt(estimate))}</text>')
-    if robustness_value is not None and 0 < robustness_value <= r2_max:
-        out.append(f'<circle cx="{_f(px(robustness_value))}" cy="{_f(py(robustness_value))}" r="4" fill="none" stroke="{CRITICAL}" stroke-width="2"/>')
-    legend_x = left + size + 52
-    benchmarks = list(benchmarks)
-    firsts = [b for b in benchmarks if b["k"] == 1]
-    strongest = max(firsts, key=lambda b: max(b["r2dz"], b["r2yz"]))["variable"] if firsts else None
-    benchmarks = [b for b in benchmarks if b["k"] == 1 or b["variable"] == strongest]
-    out.append(f'<text x="{legend_x}" y="{top + 10}" fill="{INK}" font-weight="600">Benchmarks</text>')
-    row = 0
-    for b in benchmarks:
-        if b["r2dz"] > r2_max or b["r2yz"] > r2_max:
-            continue
-        cx, cy = px(b["r2dz"]), py(b["r2yz"])
-        out.append(f'<path class="am-benchmark" d="M{_f(cx)},{_f(cy - 5)} L{_f(cx + 5)},{_f(cy)} L{_f(cx)},{_f(cy + 5)} '
-                   f'L{_f(cx - 5)},{_f(cy)} z" fill="{UNTREATED}"/>')
-        label = f'{_fmt(b["k"])}× {b["variable"]}'
-        out.append(f'<text x="{_f(cx + 7)}" y="{_f(cy - 4)}" fill="{INK}" font-size="10">{_t(label)}</text>')
-        if row < 14:
-            out.append(f'<text x="{legend_x}" y="{top + 28 + 15 * row}" fill="{INK}" font-size="11">'
-                       f'{_t(label)}: {_t(_fmt(b["adjusted_estimate"]))}</text>')
-
-        row += 1
-    if row == 0:
-        out.append(f'<text x="{legend_x}" y="{top + 28}" fill="{MUTED}" font-size="11">none inside the plot</text>')
+        out.append(f'<line x1="{_f(px(tv))}" y1="{top + plot_h}" x2="{_f(px(tv))}" y2="{top + plot_h + 5}" stroke="{MUTED}"/>')
+        out.append(f'<text x="{_f(px(tv))}" y="{top + plot_h + 18}" text-anchor="middle" fill="{MUTED}">'
+                   f'{_t(_fmt(100 * tv))}%</text>')
+    out.append(f'<text x="{left + plot_w / 2}" y="{top + plot_h + 36}" text-anchor="middle" fill="{INK}">'
+               "strength of the hidden cause: share of the remaining variance it explains, "
+               "in treatment and outcome alike</text>")
+    out.append(f'<text transform="translate(18 {top + plot_h / 2}) rotate(-90)" text-anchor="middle" '
+               f'fill="{INK}">effect if the cause were adjusted for</text>')
+    band = [f"{_f(px(p['strength']))},{_f(py(p['high']))}" for p in path]
+    band += [f"{_f(px(p['strength']))},{_f(py(p['low']))}" for p in reversed(path)]
+    out.append(f'<polygon class="am-band" points="{" ".join(band)}" fill="{POINT}" fill-opacity="0.16" stroke="none"/>')
+    line = " ".join(f"{_f(px(p['strength']))},{_f(py(p['estimate']))}" for p in path)
+    out.append(f'<polyline class="am-path" points="{line}" fill="none" stroke="{POINT}" stroke-width="2"/>')
+    if lo <= 0 <= hi:
+        out.append(f'<line class="am-zero" x1="{left}" y1="{_f(py(0))}" x2="{left + plot_w}" y2="{_f(py(0))}" '
+                   f'stroke="{INK}" stroke-width="1"/>')
+        out.append(f'<text x="{left + plot_w + 4}" y="{_f(py(0) + 4)}" fill="{INK}">no effect</text>')
+    for key, label in (("robustness_value_alpha", "interval reaches 0"), ("robustness_value", "estimate reaches 0")):
+        v = regression.get(key)
+        if v and 0 < v <= x_max:
+            out.append(f'<line class="am-threshold" x1="{_f(px(v))}" y1="{top}" x2="{_f(px(v))}" '
+                       f'y2="{top + plot_h}" stroke="{MUTED}" stroke-width="1"/>')
+            row = 0 if key == "robustness_value_alpha" else 1
+            anchor = "end" if px(v) > left + plot_w * 0.55 else "start"
+            out.append(f'<line x1="{_f(px(v))}" y1="{top - 14 + 12 * row}" x2="{_f(px(v))}" y2="{top}" '
+                       f'stroke="{MUTED}" stroke-width="1"/>')
+            out.append(f'<text x="{_f(px(v) + (-3 if anchor == "end" else 3))}" y="{top - 16 + 12 * row}" '
+                       f'text-anchor="{anchor}" fill="{MUTED}" font-size="11">{_t(label)} at {100 * v:.1f}%</text>')
+    if room.get("median") == room.get("strongest"):
+        named = [(room.get("median"), "the room's statement")]
+    else:
+        named = [(room.get("median"), "room's median"), (room.get("strongest"), "room's strongest")]
+    for r in stated:
+        cx = px(r["equal_strength"])
+        low, high = r["interval_if_present"]
+        out.append(f'<g class="am-stated"><line x1="{_f(cx)}" y1="{_f(py(low))}" x2="{_f(cx)}" y2="{_f(py(high))}" '
+                   f'stroke="{UNTREATED}" stroke-width="3" stroke-linecap="round"/>'
+                   f'<circle cx="{_f(cx)}" cy="{_f(py(r["estimate_if_present"]))}" r="4.5" fill="#ffffff" '
+                   f'stroke="{UNTREATED}" stroke-width="2"/><title>{_t(r.get("by") or "")}: {_t(r["phrase"])}</title></g>')
+    rows = [(name, r) for r in stated for chosen, name in named if chosen == r]
+    for i, (name, r) in enumerate(rows):
+        cx = px(r["equal_strength"])
+        ty = top + plot_h + 58 + 16 * i
+        out.append(f'<line x1="{_f(cx)}" y1="{top + plot_h + 42}" x2="{_f(cx)}" y2="{ty - 10}" stroke="{UNTREATED}" '
+                   f'stroke-dasharray="1 2"/>')
+        text = f"{name}: {r['phrase']}" + (f" ({r['by']})" if r.get("by") else "")
+        anchor = "end" if cx > left + plot_w * 0.6 else "start"
+        out.append(f'<text class="am-stated-label" x="{_f(cx)}" y="{ty}" text-anchor="{anchor}" fill="{UNTREATED}" '
+                   f'font-size="11">{_t(text)}</text>')
+    if not stated:
+        out.append(f'<text x="{left}" y="{top + plot_h + 60}" fill="{MUTED}" font-size="11">'
+                   "No stated hidden cause from the room to mark.</text>")
     out.append("</svg>")
     return "".join(out)
 

@@ -35,7 +35,7 @@ SECTIONS = [
     ("disputes", "Does the answer depend on the disputed arrows?"),
     ("implications", "Testing the diagram against the data"),
     ("stability", "Stability checks"),
-    ("sensitivity", "Sensitivity to an unmeasured common cause"),
+    ("sensitivity", "How strong would a hidden common cause have to be?"),
     ("decisions", "The decision record"),
     ("assumptions", "Assumptions in words"),
     ("cautions", "Cautions"),
@@ -206,12 +206,11 @@ def _forest(disputes: dict | None) -> str | None:
     return _safe_chart(charts.forest_plot, rows, highlight=drawn)
 
 
-def _contour(sens: dict | None) -> str | None:
+def _shift_chart(sens: dict | None) -> str | None:
     reg = (sens or {}).get("regression")
-    if not reg or not reg.get("contour"):
+    if not reg or not reg.get("path"):
         return None
-    return _safe_chart(charts.sensitivity_contour, reg["contour"], benchmarks=reg.get("benchmarks") or [],
-                       estimate=reg.get("estimate"), robustness_value=reg.get("robustness_value"))
+    return _safe_chart(charts.hidden_cause_chart, reg)
 
 
 def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
@@ -295,7 +294,7 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
         "checks": checks,
         "stability": stability,
         "sensitivity": sensitivity,
-        "contour": _contour(sensitivity),
+        "shift_chart": _shift_chart(sensitivity),
         "overlap": _safe_chart(charts.overlap_histogram, est["details"]["overlap"],
                                treated_label=f"{est['treatment']} = 1", untreated_label=f"{est['treatment']} = 0")
         if est and isinstance(est.get("details"), dict) and est["details"].get("overlap") else None,

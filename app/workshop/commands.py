@@ -187,6 +187,8 @@ def _update_variable(w: Workshop, m: Member, c: dict) -> _Change:
             p.source, p.target = rn(p.source), rn(p.target)
         w.votes = {_rename_subject(s, name, new_name): v for s, v in w.votes.items()}
         w.arrow_flags = {_rename_key(k, name, new_name): f for k, f in w.arrow_flags.items()}
+        for statement in w.hidden_causes.values():
+            statement["variable"] = rn(statement["variable"])
     w.variables, w.arrows, w.treatment, w.outcome = variables, arrows, treatment, outcome
     what = ", ".join(changes)
     return _Change(f"changed variable {name!r}: {what}", undoable=True)
@@ -460,6 +462,24 @@ def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     return _Change(f"{text} arrow {source} → {target}", undoable=True)
 
 
+def _state_hidden_cause(w: Workshop, m: Member, c: dict) -> _Change:
+    """A member's strongest imaginable hidden common cause, compared with a measured variable;
+    ``times`` null withdraws it."""
+    from .hidden_causes import check_statement, strength_words
+
+    _require_unlocked(w, "state a hidden cause")
+    if c.get("times") is None:
+        if w.hidden_causes.pop(m.id, None) is None:
+            raise NotFound("you have stated no hidden cause", code="no_statement")
+        return _Change("withdrew their hidden-cause statement")
+    try:
+        variable, times = check_statement(w, _name(c, "variable"), c.get("times"))
+    except ValueError as exc:
+        raise BadRequest(str(exc), code="invalid_field") from None
+    w.hidden_causes[m.id] = {"variable": variable, "times": times, "at": c.get("_now")}
+    return _Change(f"stated that a hidden common cause could be {strength_words(times)} {variable}")
+
+
 # -- facilitation -------------------------------------------------------------------
 def _set_stage(w: Workshop, m: Member, c: dict) -> _Change:
     _require_facilitator(m, "move the session to another stage")
@@ -532,6 +552,9 @@ def _undo(w: Workshop, m: Member, c: dict) -> _Change:
         # votes on arrows follow the variable's name back
         old = target["command"]["name"]
         w.votes = {_rename_subject(s, renamed, old): v for s, v in w.votes.items()}
+        for statement in w.hidden_causes.values():
+            if statement["variable"] == renamed:
+                statement["variable"] = old
     target["undone"] = True
     return _Change(f"undid #{target['revision']}: {target['actor_name']} {target['summary']}",
                    undoes=target["revision"])
@@ -554,6 +577,7 @@ HANDLERS: dict[str, Callable[[Workshop, Member, dict], _Change]] = {
     "withdraw_vote": _withdraw_vote,
     "settle": _settle,
     "flag_arrow": _flag_arrow,
+    "state_hidden_cause": _state_hidden_cause,
     "set_stage": _set_stage,
     "grant_role": _grant_role,
     "rename_session": _rename_session,
@@ -603,7 +627,7 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
 def _restore(workshop: Workshop, state: dict, log_flags: list) -> None:
     fresh = Workshop.from_state(state, workshop.log)
     for name in ("title", "stage", "revision", "variables", "arrows", "treatment", "outcome",
-                 "members", "proposals", "next_proposal", "votes", "arrow_flags"):
+                 "members", "proposals", "next_proposal", "votes", "arrow_flags", "hidden_causes"):
         setattr(workshop, name, getattr(fresh, name))
     for event, flag in zip(workshop.log, log_flags):
         event["undone"] = flag

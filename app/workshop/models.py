@@ -107,6 +107,7 @@ class Workshop:
     next_proposal: int = 1
     votes: dict[str, dict[str, Vote]] = field(default_factory=dict)
     arrow_flags: dict[str, str] = field(default_factory=dict)
+    hidden_causes: dict[str, dict[str, Any]] = field(default_factory=dict)  # member id -> statement
     log: list[dict[str, Any]] = field(default_factory=list)
 
     # -- lookups --------------------------------------------------------------
@@ -169,6 +170,7 @@ class Workshop:
             "votes": {subject: {mid: dict(vars(v)) for mid, v in by.items()}
                       for subject, by in self.votes.items()},
             "arrow_flags": dict(self.arrow_flags),
+            "hidden_causes": {mid: dict(s) for mid, s in self.hidden_causes.items()},
         }
 
     @classmethod
@@ -186,5 +188,6 @@ class Workshop:
             votes={subject: {mid: Vote(**v) for mid, v in by.items()}
                    for subject, by in state.get("votes", {}).items()},
             arrow_flags=dict(state.get("arrow_flags", {})),
+            hidden_causes={str(mid): dict(s) for mid, s in (state.get("hidden_causes") or {}).items()},
             log=list(log or []),
         )

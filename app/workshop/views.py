@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from .commands import public_event
+from .hidden_causes import statements_public
 from .models import Workshop, arrow_key
 from .stages import STAGE_TITLES, STAGES
 from .voting import disputed_items, proposal_public, tally, votes_public
@@ -39,6 +40,7 @@ def public_state(w: Workshop, *, compact: bool = False) -> dict[str, Any]:
         "proposals": [proposal_public(w, p) for p in sorted(w.proposals.values(), key=lambda p: p.id)],
         "disputed": disputes,
         "can_undo": can_undo(w),
+        "hidden_causes": statements_public(w),
     }
     if not compact:
         out["recent"] = [public_event(e) for e in w.log[-RECENT_EVENTS:]]

@@ -353,19 +353,41 @@ class EstimationPanel {
 
   renderSensitivity() {
     if (!this.data) return null;
-    const box = el('section', { class: 'am-section', 'aria-label': 'Sensitivity' }, el('h4', { text: '6. Sensitivity to unmeasured confounding' }),
+    const box = el('section', { class: 'am-section', 'aria-label': 'Sensitivity' }, el('h4', { text: '6. How strong would a hidden common cause have to be?' }),
       el('div', { class: 'row end' }, this.button('Analyse sensitivity', 'sensitivity', () => this.run('sensitivity'))));
     const s = this.results.sensitivity;
     if (!s) return box;
     { const note = this.staleNote(s); if (note) box.append(note); }
     if (s.regression) {
       const g = s.regression;
+      const room = g.room || { statements: [] };
+      box.append(el('p', { class: 'am-room-reading summary', text: room.reading || '' }),
+        el('div', { class: 'am-caution' }, el('strong', { text: 'Caution. ' }),
+          el('span', { text: 'These figures say what a hidden cause of a given strength would do, not that none exists, and assume it acts like the measured variables. A decision about people\'s health or livelihood should not rest on them alone.' })));
+      if (room.statements.length) {
+        box.append(table(['stated by', 'a hidden cause…', 'effect if adjusted for [95% interval]', 'then'],
+          room.statements.map((r) => el('tr', { class: r.usable && room.strongest && r.by === room.strongest.by && r.phrase === room.strongest.phrase ? 'am-strongest' : '' },
+            el('td', { text: r.by || '–' }), el('td', { text: r.phrase }),
+            ...(r.usable
+              ? [el('td', { text: `${fmt(r.estimate_if_present)} [${fmt(r.interval_if_present[0])}, ${fmt(r.interval_if_present[1])}]` }), el('td', { text: r.standing })]
+              : [el('td', { colspan: '2', class: 'note', text: r.why })]))), 'am-room'));
+      }
       box.append(el('dl', { class: 'am-facts' },
-        el('dt', { text: 'robustness value' }), el('dd', { text: pct(g.robustness_value) }),
-        el('dt', { text: `… to lose significance (α = ${g.alpha})` }), el('dd', { text: pct(g.robustness_value_alpha) }),
+        el('dt', { text: 'robustness value (estimate reaches 0)' }), el('dd', { text: pct(g.robustness_value) }),
+        el('dt', { text: `… interval reaches 0 (α = ${g.alpha})` }), el('dd', { text: pct(g.robustness_value_alpha) }),
         el('dt', { text: 'partial R² of the treatment' }), el('dd', { text: pct(g.partial_r2_treatment) })),
       el('p', { class: 'summary', text: g.reading }),
-      chart(s.charts?.contour, 'Curves: the estimate after removing the bias of a confounder of the given strengths (Cinelli & Hazlett 2020). Diamonds: a confounder k times as strong as a measured variable.'));
+      chart(s.charts?.hidden_cause, 'Line: the effect that would remain had a hidden common cause of that strength been adjusted for; band: its 95% interval. Orange bars: the causes the room stated, each with its own interval (Cinelli & Hazlett 2020 formulas, ordinary least-squares fit).'));
+      const firsts = (g.benchmarks || []).filter((b) => b.k === 1);
+      if (firsts.length) {
+        box.append(el('details', {}, el('summary', { text: 'A hidden cause as strong as each measured variable' }),
+          table(['as strong as', 'share of treatment', 'share of outcome', 'effect if adjusted for', 'its standard error'],
+            (g.benchmarks || []).map((b) => el('tr', {}, el('td', { text: `${fmt(b.k)} × ${b.variable}` }),
+              el('td', { text: pct(b.r2_with_treatment) }), el('td', { text: pct(b.r2_with_outcome) }),
+              el('td', { text: fmt(b.estimate_if_present) }), el('td', { text: fmt(b.std_error_if_present) }))), 'am-yardsticks')));
+      }
+    } else if (s.not_applicable?.regression) {
+      box.append(el('p', { class: 'note', text: s.not_applicable.regression }));
     }
     if (s.e_value) {
       const ev = s.e_value;

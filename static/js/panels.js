@@ -3,6 +3,7 @@
 
 import { el, clock, ROLE_WORDS, independenceText } from './dom.js';
 import { draftField } from './drafts.js';
+import { renderHiddenCauses } from './hidden_cause.js';
 
 const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
 
@@ -180,6 +181,7 @@ export function renderDebate(app) {
   if (done.length) box.append(el('details', { open: typing }, el('summary', { text: `Settled (${done.length})` }), done.map((p) => proposalCard(app, p))));
   box.append(renderDisputes(app));
   box.append(renderAbsent(app));
+  box.append(renderHiddenCauses(app));
   return box;
 }
 

@@ -15,7 +15,8 @@ analyst or facilitator role and the ``agreed`` or ``estimation`` stage):
 ``PUT /mapping``           ``{"mapping": {variable: column or null}}``
 ``POST /estimate``         ``{"method", "adjust", "correction": holm|bh|none, "checks"}``
 ``POST /stability``        ``{"method", "adjust", "repeats"}``
-``POST /sensitivity``      ``{"method", "adjust"}`` (adds ``charts.contour``)
+``POST /sensitivity``      ``{"method", "adjust"}``, read with the room's stated hidden causes
+                           (adds ``charts.hidden_cause``)
 ``POST /disputes``         ``{"disputed": [...]}`` or the room's disputed arrows (``charts.forest``)
 
 Results are kept under the attachment keys ``estimation.estimate``,
@@ -261,12 +262,12 @@ async def create_stability(access: AnalystDep, body: Any = Body(None)) -> dict:
 @router.post("/sensitivity")
 async def create_sensitivity(access: AnalystDep, body: Any = Body(None)) -> dict:
     """How strong an unmeasured confounder would have to be to change the conclusion."""
-    result = await _run(access, service.sensitivity, **_options(body))
-    reg = result.get("regression")
-    if reg:
-        result["charts"] = {"contour": charts.sensitivity_contour(
-            reg["contour"], benchmarks=reg["benchmarks"], estimate=reg["estimate"],
-            robustness_value=reg["robustness_value"])}
+    from ...workshop.hidden_causes import statements_for_estimate
+
+    result = await _run(access, service.sensitivity, statements=statements_for_estimate(access.workshop),
+                        **_options(body))
+    if result.get("regression"):
+        result["charts"] = {"hidden_cause": charts.hidden_cause_chart(result["regression"])}
     access.put_attachment("estimation.sensitivity", result)
     await access.log("ran the sensitivity analysis", kind="estimation")
     return {"ok": True, "result": result}
