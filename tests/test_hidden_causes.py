@@ -44,7 +44,7 @@ def test_members_state_replace_and_withdraw_their_hidden_cause(debate):
 
 
 @pytest.mark.parametrize("command, words", [
-    ({"variable": "scheme", "times": 1}, "is the treatment or the outcome"),
+    ({"variable": "bike_lease", "times": 1}, "is the treatment or the outcome"),
     ({"variable": "health_consciousness", "times": 1}, "is marked unmeasured"),
     ({"variable": "nobody", "times": 1}, "there is no variable 'nobody'"),
     ({"variable": "age", "times": 0}, "'times' must be a number above 0 and at most 10"),
