@@ -36,6 +36,12 @@ RETIRED = [
     ("#1d3f66", re.I),  # and its outline
     ("identify_effect", 0),
     ("refute", re.I),
+    ("r2dz", 0),  # the sensitivity result's old keys and chart
+    ("r2yz", 0),
+    ("adjusted_estimate", 0),
+    ("adjusted_se", 0),
+    ("am-contour", 0),
+    ("red dashed", re.I),
 ]
 
 
