@@ -49,13 +49,17 @@ def _installed_dir(name: str) -> Path | None:
     try:
         dist = metadata.distribution(DISTRIBUTION)
     except metadata.PackageNotFoundError:
-        dist = None
-    for entry in (dist.files or []) if dist is not None else []:
+        return _under_prefix(wanted)
+    for entry in dist.files or []:
         parts = Path(str(entry)).parts
         for i in range(len(parts) - len(wanted)):
             if parts[i:i + len(wanted)] == wanted:
                 folder = Path(str(dist.locate_file(Path(*parts[:i + len(wanted)])))).resolve()
                 if folder.is_dir():
                     return folder
-    fallback = Path(sys.prefix, *wanted)
-    return fallback if fallback.is_dir() else None
+    return _under_prefix(wanted)
+
+
+def _under_prefix(wanted: tuple[str, ...]) -> Path | None:
+    folder = Path(sys.prefix, *wanted)
+    return folder if folder.is_dir() else None

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Install what the tests need (Python packages; Debian chromium for the browser
-# tests, when running as root and it is missing; axe-core from npm) and run the whole suite.
+# tests, when running as root and it is missing; axe-core from npm), lint and type-check, and run the whole suite.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 if ! command -v chromium >/dev/null 2>&1 && [ "$(id -u)" = "0" ] && command -v apt-get >/dev/null 2>&1; then
@@ -18,4 +18,12 @@ if [ ! -f tests/.axe/node_modules/axe-core/axe.min.js ]; then
     mkdir -p tests/.axe
     npm install --no-save --no-audit --no-fund --silent --prefix tests/.axe axe-core@4 >/dev/null
 fi
-python3 -m pytest "$@"
+# Lint (the rules chosen in pyproject.toml) and type-check, then the tests; the tests
+# run even when a check fails, and the script fails if any of the three did.
+checks=0
+python3 -m ruff check . || checks=1
+python3 -m mypy || checks=1
+tests=0
+python3 -m pytest "$@" || tests=$?
+if [ "$tests" -ne 0 ]; then exit "$tests"; fi
+exit "$checks"

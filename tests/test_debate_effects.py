@@ -67,7 +67,7 @@ def test_sets_still_valid_match_networkx(case):
     if not result["disputes"]:
         return
     base = analyze(w.diagram())["minimal_adjustment_sets"]
-    for index, item in enumerate(result["disputes"]["items"]):
+    for item in result["disputes"]["items"]:
         for effect in item["effects"]:
             if effect["current"] or "sets_still_valid" not in effect:
                 continue

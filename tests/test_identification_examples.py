@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import pytest
 
 from app.graph.document import parse_document
 from app.graph.identification import analyze

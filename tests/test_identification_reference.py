@@ -204,7 +204,7 @@ def test_optimal_set_has_the_smallest_asymptotic_variance():
         assert ident.is_adjustment_set(q, optimal)
         index, _, cov = _linear_model(graph, rng)
 
-        def variance(z):
+        def variance(z, cov=cov, index=index, x=x, y=y):
             _, res_y = _regression(cov, index, y, [x, *sorted(z)])
             if z:
                 _, res_x = _regression(cov, index, x, sorted(z))

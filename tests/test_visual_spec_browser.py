@@ -108,7 +108,7 @@ def _server_facts(svg_text):
     for g in root.iter(SVG + "g"):
         if g.get("class") != "am-node":
             continue
-        by_class = lambda cls: [el for el in g if el.get("class") == cls]  # noqa: E731
+        by_class = lambda cls, g=g: [el for el in g if el.get("class") == cls]  # noqa: E731
         shape = by_class("shape")[0]
         tag, role = by_class("tag"), by_class("role")
         inner, ring = by_class("shape-inner"), by_class("adjust-ring")

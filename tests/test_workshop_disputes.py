@@ -5,7 +5,6 @@ from __future__ import annotations
 import itertools
 
 import networkx as nx
-import pytest
 from hypothesis import given, settings, strategies as st
 
 from app.graph.document import parse_document

@@ -218,7 +218,9 @@ def _quick_risks(design: Design, start: list) -> tuple[float, float]:
 
 
 def _contrasts(p0: float, p1: float) -> dict:
-    odds = (lambda p: p / (1 - p))
+    def odds(p: float) -> float:
+        return p / (1 - p)
+
     return {
         "risk_difference": p1 - p0,
         "risk_ratio": p1 / p0 if p0 > 0 else float("inf"),

@@ -16,7 +16,7 @@ G_pbd  the proper back-door graph: G without the first arrow of every proper
 from __future__ import annotations
 
 from collections import deque
-from typing import Iterable
+from typing import AbstractSet, Iterable
 
 __all__ = ["Dag"]
 
@@ -82,7 +82,7 @@ class Dag:
         """de(sources), walking only through nodes not in ``avoid``."""
         return _closure(sources, self.children, set(avoid))
 
-    def causal_nodes(self, xs: set[str], ys: set[str]) -> set[str]:
+    def causal_nodes(self, xs: AbstractSet[str], ys: AbstractSet[str]) -> set[str]:
         """cn(X, Y): nodes other than X on proper causal paths from X to Y."""
         down = self.descendants([c for x in xs for c in self.children[x] if c not in xs], avoid=xs)
         up = self.ancestors(ys, avoid=xs)

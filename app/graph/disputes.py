@@ -50,7 +50,7 @@ import itertools
 import random
 import time
 from dataclasses import dataclass, field
-from typing import Iterable, Optional
+from typing import Iterable, Optional, cast
 
 from .dag import Dag
 from .identification import (
@@ -96,7 +96,7 @@ class Dispute:
     @classmethod
     def of(cls, pair: Iterable[str], options: Iterable, current: int = 0) -> "Dispute":
         opts = tuple(None if o is None else (o[0], o[1]) for o in options)
-        return cls(tuple(pair), opts, current)
+        return cls(cast("tuple[str, str]", tuple(pair)), opts, current)
 
     def arrows(self) -> list[Edge]:
         return [o for o in self.options if o is not None]
@@ -344,7 +344,7 @@ def fullest_combinations(fixed_dag: Dag, disputes: list[Dispute],
 def _minimal_unions(lists: list[list[frozenset]], cap: int) -> list[frozenset] | None:
     """The inclusion-minimal sets formed by taking one set from each list and joining
     them (None when more than ``cap`` would have to be kept)."""
-    unions = [frozenset()]
+    unions: list[frozenset] = [frozenset()]
     for options in lists:
         joined = {u | m for u in unions for m in options}
         unions = []
@@ -583,6 +583,7 @@ def _one_at_a_time(engine: _Engine, fixed: list[Edge], disputes: list[Dispute],
             if cycle:
                 effects.append(OptionEffect(option, "cycle", None, cycle))
             else:
+                assert answer is not None  # the engine answers whenever there is no cycle
                 effects.append(OptionEffect(option, base.change_to(answer), answer,
                                             still_valid=engine.still_valid(edges, base.sets)))
         out.append(DisputeEffects(d, effects))
@@ -800,7 +801,9 @@ def find_absent_arrows(dag: Dag, xs: Iterable[str], ys: Iterable[str], observed:
         # Only arrows into an(X u Y u listed variables) can matter (module notes, fact 2).
         targets = sorted(work.ancestors(xs | ys | set().union(*(set(i) for i in listed))))
         judge = lambda q, u, v, affected: sets.change(q, u, v)  # noqa: E731
-        scope = lambda v: (True, None)  # noqa: E731
+
+        def scope(v: str) -> tuple[bool, set[str] | None]:
+            return True, None
     else:
         ivs = _InstrumentCheck(Question.on_dag(work, xs, ys, observed), answer, listed)
         targets, judge = list(work.nodes), ivs.change

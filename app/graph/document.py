@@ -208,7 +208,7 @@ def find_cycle(names: Iterable[str], arrows: Iterable[tuple[str, str]]) -> list[
         return None
     # Every remaining node has a remaining parent: walk backwards until a repeat.
     remaining = {n for n, d in indegree.items() if d > 0}
-    parent_of = {}
+    parent_of: dict[str, str] = {}
     for u in remaining:
         for v in children[u]:
             if v in remaining:

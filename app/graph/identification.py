@@ -55,7 +55,7 @@ from .dag import Dag
 from .document import Diagram
 from .errors import BadQuestion
 from .implications import implied_independencies
-from .paths import arrow_text, colliders_on_paths, describe_path, iter_paths, relevant_nodes
+from .paths import PathReport, arrow_text, colliders_on_paths, describe_path, iter_paths, relevant_nodes
 from .separators import iter_minimal_separators, moral_graph, reduce_graph
 
 __all__ = [
@@ -141,6 +141,13 @@ class Question:
         return cls(diagram, dag, xset, yset, frozenset(observed), cn, forb, pbd)
 
     @property
+    def document(self) -> Diagram:
+        """The diagram asked about (every question made by :meth:`of` has one)."""
+        if self.diagram is None:
+            raise ValueError("this question was asked of a bare graph, not of a diagram")
+        return self.diagram
+
+    @property
     def relevant(self) -> set[str]:
         """Inner nodes on at least one proper treatment-outcome path (computed once)."""
         cached = self.__dict__.get("_relevant")
@@ -187,7 +194,7 @@ def check_adjustment(q: Question, zs: Iterable[str]) -> dict:
     """Check Z against the complete adjustment criterion and say why it fails."""
     zs = set(zs)
     for z in sorted(zs):
-        q.diagram.variable(z)  # raises UnknownVariable with the name
+        q.document.variable(z)  # raises UnknownVariable with the name
     reasons: list[str] = []
     for z in sorted(zs & q.xs):
         reasons.append(f"{z} is a treatment variable and cannot also be adjusted for")
@@ -499,7 +506,7 @@ def list_paths(q: Question, given: Iterable[str] = (), cap: int = PATH_CAP) -> t
     opened = q.dag.ancestors(given)
     allowed = q.relevant
     seen: set[tuple[str, ...]] = set()
-    reports = []
+    reports: list[PathReport] = []
     # First the open paths (pruned search), so the ones that matter are listed.
     for nodes in iter_paths(q.dag, set(q.xs), set(q.ys), allowed=allowed, given=given,
                             opened=opened, budget=[PATH_STEP_BUDGET]):
@@ -620,7 +627,7 @@ def analyze(
         out["adjustment_check"] = check_adjustment(q, given)
     paths, total, capped = list_paths(q, given - q.xs - q.ys)
     out["paths"], out["paths_total"], out["paths_capped"] = paths, total, capped
-    listed, imp_total, incomplete = implications(q.diagram)
+    listed, imp_total, incomplete = implications(q.document)
     out["implications"] = listed
     out["implications_total"] = imp_total
     out["implications_capped"] = incomplete or imp_total > len(listed)

@@ -50,10 +50,10 @@ def latent_projection(dag: Dag, observed: frozenset[str] | set[str]):
                     seen.add(c)
                     stack.append(c)
     reach: dict[str, set[str]] = {}  # latent -> measured variables it reaches via latents
-    for l in dag.nodes:
-        if l in observed:
+    for hidden in dag.nodes:
+        if hidden in observed:
             continue
-        stack, seen, hit = list(dag.children[l]), set(dag.children[l]), set()
+        stack, seen, hit = list(dag.children[hidden]), set(dag.children[hidden]), set()
         while stack:
             w = stack.pop()
             if w in observed:
@@ -64,7 +64,7 @@ def latent_projection(dag: Dag, observed: frozenset[str] | set[str]):
                     seen.add(c)
                     stack.append(c)
         if len(hit) > 1:
-            reach[l] = hit
+            reach[hidden] = hit
     siblings: dict[str, set[str]] = {v: set() for v in observed}
     for hit in reach.values():
         for a in hit:

@@ -59,7 +59,7 @@ def layered_positions(names: Iterable[str], arrows: Iterable[tuple[str, str]]) -
         for li in order:
             index = {n: i for row in rows for i, n in enumerate(row)}
 
-            def centre(n: str) -> float:
+            def centre(n: str, index: dict[str, int] = index, li: int = li) -> float:
                 near = [index[m] for m in neighbours[n] if abs(layer[m] - li) == 1]
                 return sum(near) / len(near) if near else index[n]
 

@@ -19,7 +19,7 @@ when the walk finishes and a lower bound, flagged, when it does not.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Iterator
+from typing import AbstractSet, Iterator
 
 import networkx as nx
 
@@ -169,6 +169,8 @@ def iter_paths(
     stops when it reaches zero.
     """
     only_open = given is not None
+    given_set: set[str] = given if given is not None else set()
+    opened_set: set[str] = opened if opened is not None else set()
     neighbours = {v: sorted(dag.neighbours(v)) for v in allowed | xs}
     for x in sorted(xs):
         # Each frame: (node, arrived_with_head_at_node, iterator over neighbours)
@@ -191,9 +193,9 @@ def iter_paths(
             if only_open and len(path) > 1:
                 # v is an inner node: check it with the arrow marks on both sides.
                 collider = head_at_v and (v in dag.children[w])
-                if collider and v not in opened:
+                if collider and v not in opened_set:
                     continue
-                if not collider and v in given:
+                if not collider and v in given_set:
                     continue
             if w in ys:
                 yield path + [w]
@@ -301,7 +303,7 @@ class _SplitNetwork:
 
 
 def colliders_on_paths(
-    dag: Dag, xs: set[str], ys: set[str], relevant: set[str], known: set[str] = frozenset()
+    dag: Dag, xs: set[str], ys: set[str], relevant: set[str], known: AbstractSet[str] = frozenset()
 ) -> set[str]:
     """Inner nodes that are a collider on at least one proper path from xs to ys.
 

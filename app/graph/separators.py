@@ -86,9 +86,9 @@ def reduce_graph(
                         stack.append(w)
                 else:
                     boundary.add(rep[w])
-        boundary = list(boundary)
-        for i, p in enumerate(boundary):
-            for q in boundary[i + 1:]:
+        members = list(boundary)
+        for i, p in enumerate(members):
+            for q in members[i + 1:]:
                 if p != q:
                     out[p].add(q)
                     out[q].add(p)
@@ -125,7 +125,7 @@ def iter_minimal_separators(adj: Adjacency, a: str, b: str) -> Iterator[frozense
 
     # Explicit stack of (a_side, separator, kept_out) to avoid deep recursion.
     a_side, separator = close({a})
-    stack = [(a_side, separator, frozenset())]
+    stack: list[tuple[set[str], set[str], frozenset[str]]] = [(a_side, separator, frozenset())]
     while stack:
         a_side, separator, kept_out = stack.pop()
         free = sorted(v for v in separator if v not in kept_out and v not in near_b)

@@ -69,7 +69,7 @@ class AnalysisWorker:
                 line = await asyncio.wait_for(proc.stdout.readline(), WORKER_TIMEOUT)
             except (asyncio.TimeoutError, ConnectionError, BrokenPipeError):
                 await self.stop()
-                raise RuntimeError("the analysis worker did not answer")
+                raise RuntimeError("the analysis worker did not answer") from None
             if not line:
                 await self.stop()
                 raise RuntimeError("the analysis worker stopped")
