@@ -68,7 +68,7 @@ def test_every_page_has_no_serious_or_critical_axe_finding(tmp_path, capsys):
                 page = context.new_page()
                 size = f"{width}x{height}"
 
-                def check(where):
+                def check(where, page=page, size=size):
                     issues = _audit(page, f"{where} {size}", results, capsys)
                     if issues:
                         bad[f"{where} {size}"] = issues
