@@ -23,7 +23,7 @@ def test_stated_hidden_causes_reach_the_spread_and_the_sensitivity_chart(tmp_pat
     ARTIFACTS.mkdir(parents=True, exist_ok=True)
     with running_server(tmp_path) as base, sync_playwright() as p:
         doc = json.loads((SAMPLE / "cycle_to_work.json").read_text())
-        made = httpx.post(base + "/api/sessions", json={"title": "Cycle-to-work scheme", "name": "Fac",
+        made = httpx.post(base + "/api/sessions", json={"title": "Bike leases and sick days", "name": "Fac",
                                                          "document": doc}).json()
         sid, fac = made["session_id"], {"X-Arrowmoot-Token": made["token"]}
         commands = f"{base}/api/sessions/{sid}/commands"
