@@ -10,9 +10,10 @@ from scipy import optimize, stats
 
 from app.estimation import sensitivity as S
 
-# Cinelli & Hazlett (2020), Darfur example: effect of being directly harmed on
-# attitudes toward peace; estimate 0.0973, se 0.0233, df 783, partial R2 of the
-# treatment 2.2%, RV = 13.9%, RV(alpha = 0.05) = 7.6%. Values from memory.
+# Cinelli & Hazlett (2020), Darfur example, Table 1 (the minimal sensitivity
+# report): effect of being directly harmed on attitudes toward peace; estimate
+# 0.0973, se 0.0233, df 783, partial R2 of the treatment 2.2%, RV = 13.9%,
+# RV(alpha = 0.05) = 7.6%. Values and table number from memory.
 DARFUR = {"estimate": 0.09731, "se": 0.02326, "df": 783}
 
 
@@ -23,9 +24,10 @@ def test_darfur_partial_r2_and_robustness_values():
     assert S.robustness_value(t, DARFUR["df"], alpha=0.05) == pytest.approx(0.076, abs=5e-4)
 
 
-# Cinelli & Hazlett (2020), Table 2 (Darfur, bounds on the strength of a hidden
-# cause 1, 2, 3 times as strong as "female"): its share of the treatment, of the
-# outcome, the estimate and standard error had it been adjusted for. Values from memory.
+# Cinelli & Hazlett (2020), Darfur example, the bounds table (Table 2 as we recall
+# it): a hidden cause 1, 2, 3 times as strong as "female": its share of the
+# treatment, of the outcome, the estimate and standard error had it been adjusted
+# for. Values and table number from memory.
 DARFUR_BOUNDS = [
     (1, 0.0092, 0.1246, 0.0752, 0.0219),
     (2, 0.0183, 0.2493, 0.0529, 0.0204),
