@@ -236,7 +236,14 @@ def test_room_reading_says_the_sign_changes_under_the_rooms_median_cause():
     by = {r["by"]: r for r in room["statements"]}
     assert by["Ana"]["standing"] == "holds"
     assert not by["Di"]["usable"] and "not among the adjustment columns" in by["Di"]["why"]
-    assert "median statement (twice as strong as x1, stated by Ben) the estimate changes sign" in room["reading"]
+    assert ("median statement (twice as strong as x1, stated by Ben) and under its strongest "
+            "(three times as strong as x1, stated by Cy) the estimate changes sign") in room["reading"]
+    mixed = S.regression_sensitivity(design, statements=[statements[0], dict(statements[1], times=1.0,
+                                                                             words="about as strong as x1"),
+                                                         statements[2]])["room"]
+    assert ("median statement (about as strong as x1, stated by Ben) the estimate stays positive and its "
+            "interval stays away from zero; under its strongest (three times as strong as x1, stated by Cy) "
+            "it changes sign") in mixed["reading"]
     # and the simulated truth agrees: adjusting for u as well turns the estimate negative
     full = sm.OLS(frame.y, sm.add_constant(frame[["d", "x1", "x2", "u"]])).fit()
     assert full.params["d"] < 0

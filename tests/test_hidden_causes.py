@@ -112,6 +112,13 @@ def test_cli_estimate_prints_sensitivity_with_statements_from_a_file(tmp_path, c
                                          "std_error_if_present"}
     assert reg["room"]["counted"] == 2
     assert set(out["sensitivity"]["e_value"]) >= {"risk_ratio", "e_value", "e_value_ci"}
+    bundle_like = tmp_path / "record.json"
+    bundle_like.write_text(json.dumps({"format": "arrowmoot-record", "hidden_causes": [
+        {"by": "Cy", "variable": "fitness", "times": 3.0, "words": "three times as strong as fitness"}]}))
+    assert main(["estimate", str(SAMPLE / "cycle_to_work.json"), str(SAMPLE / "cycle_to_work.csv"),
+                 "--room", str(bundle_like)]) == 0
+    room = json.loads(capsys.readouterr().out)["sensitivity"]["regression"]["room"]
+    assert room["strongest"]["phrase"] == "three times as strong as fitness" and room["strongest"]["by"] == "Cy"
 
 
 def test_cli_refuses_a_bad_room_file_with_a_message(tmp_path, capsys):

@@ -206,6 +206,9 @@ def room_reading(statements: list[dict], yardsticks: dict[str, tuple[float, floa
     if med is top:
         text = (f"Under the room's one usable statement ({said(top)}) the estimate "
                 f"{_standing_words(top['standing'], sign)}.")
+    elif med["standing"] == top["standing"]:
+        text = (f"Under the room's median statement ({said(med)}) and under its strongest ({said(top)}) "
+                f"the estimate {_standing_words(top['standing'], sign)}.")
     else:
         text = (f"Under the room's median statement ({said(med)}) the estimate "
                 f"{_standing_words(med['standing'], sign)}; under its strongest ({said(top)}) it "
