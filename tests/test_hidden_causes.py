@@ -92,6 +92,13 @@ def test_sensitivity_over_http_reads_the_rooms_statements_and_the_bundle_keeps_t
     bundle = room.client.get(f"/api/sessions/{room.id}/export/bundle", headers=headers).json()
     assert [s["words"] for s in bundle["hidden_causes"]] == ["half as strong as fitness", "twice as strong as age"]
     assert bundle["estimation"]["sensitivity"]["regression"]["room"] == reg["room"]
+    assert "room_fingerprint" in bundle["estimation"]["sensitivity"]
+    assert room.client.get(base, headers=headers).json()["sensitivity"]["stale"] is False
+    room.ok(room.facilitator, {"type": "set_stage", "stage": "debating", "reason": "Ben has second thoughts"})
+    room.ok(ben, {"type": "state_hidden_cause", "variable": "fitness", "times": 3})
+    room.ok(room.facilitator, {"type": "set_stage", "stage": "agreed"})
+    assert room.client.get(base, headers=headers).json()["sensitivity"]["stale"] is True
+    room.client.post(f"{base}/sensitivity", json={}, headers=headers)
     report = room.client.get(f"/api/sessions/{room.id}/report", headers=headers).text
     assert "stated by Ana" in report and 'class="am-chart am-shift"' in report
 

@@ -98,6 +98,16 @@ def _fingerprint(access) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
+def _room_fingerprint(access) -> str:
+    import hashlib
+    import json
+
+    from ...workshop.hidden_causes import statements_for_estimate
+
+    text = json.dumps(statements_for_estimate(access.workshop), sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
 def _variables(access) -> list[dict]:
     d = access.diagram()
     return [{"name": v.name, "label": v.label, "latent": v.latent,
@@ -119,6 +129,9 @@ def read_estimation(access: MemberDep) -> dict:
         if result is not None:
             result["stale"] = (result.get("diagram_fingerprint") != fingerprint
                                or result.get("data_uploaded_at") != (info or {}).get("uploaded_at"))
+            if key == "estimation.sensitivity":  # the room has changed what it stated since
+                room = _room_fingerprint(access)
+                result["stale"] = result["stale"] or result.get("room_fingerprint", room) != room
         out[key.split(".", 1)[1]] = result
     return out
 
@@ -268,6 +281,7 @@ async def create_sensitivity(access: AnalystDep, body: Any = Body(None)) -> dict
                         **_options(body))
     if result.get("regression"):
         result["charts"] = {"hidden_cause": charts.hidden_cause_chart(result["regression"])}
+    result["room_fingerprint"] = _room_fingerprint(access)
     access.put_attachment("estimation.sensitivity", result)
     await access.log("ran the sensitivity analysis", kind="estimation")
     return {"ok": True, "result": result}
