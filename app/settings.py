@@ -25,8 +25,9 @@ SETTING_HELP = {
     "empty means same origin only.",
     "request_limit_bytes": "Largest request body accepted other than a data upload, in bytes "
     "(default 2 MB); a bigger one gets 413 before it is read.",
-    "join_attempts_per_minute": "Wrong join codes one address may try per minute before it gets "
-    "429 (default 10).",
+    "join_attempts_per_minute": "Different wrong join codes one address may try per minute at full "
+    "speed (default 10); past that its join requests wait their turn, a second longer for each "
+    "further wrong code (at most 10 s), and a right code is still let in.",
     "key_lifetime_days": "Days a session key stays valid after it is issued (default 30; 0 means "
     "keys never expire). An expired key gets 401 'expired_token'.",
     "demo_session": "Create the cycle-to-work demo session when the database has no sessions.",

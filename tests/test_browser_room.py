@@ -410,3 +410,20 @@ def test_the_whole_workshop_works_from_the_keyboard(room):
     wait(fay, "window.arrowmoot.state.proposals[0].status === 'accepted'", "accepted")
     assert fay.evaluate("window.arrowmoot.state.document.arrows.some((a) => a.from === 'commute' && a.to === 'fitness')")
     fay.screenshot(path=str(ARTIFACTS / "room-keyboard.png"))
+
+
+def test_a_wrong_join_code_is_answered_on_the_home_form(room):
+    context = room.browser.new_context(viewport={"width": 390, "height": 844})
+    page = context.new_page()
+    page.goto(room.base + "/")
+    page.fill("#join-code-form input[name=code]", "zzzzzz")
+    page.click("#join-code-form button[type=submit]")
+    error = page.locator("#join-error")
+    wait(page, "document.getElementById('join-error').textContent.length > 0", "the answer")
+    assert error.inner_text().startswith("No session has the code ZZZZZZ. Check it with the facilitator")
+    assert page.url == room.base + "/"
+    page.screenshot(path=str(ARTIFACTS / "room-home-wrong-code.png"))
+    page.fill("#join-code-form input[name=code]", room.code.lower())
+    page.click("#join-code-form button[type=submit]")
+    page.wait_for_url(f"{room.base}/join/{room.code}")
+    assert page.locator("#join-form").count() == 1

@@ -123,43 +123,89 @@ def test_participant_cannot_open_another_sessions_socket(client, debate):
 
 
 # -- join codes ----------------------------------------------------------------------------
-def test_wrong_join_codes_are_rate_limited(client, room):
+def _recorded_pauses(client):
+    """Make the join limiter record its pauses instead of sleeping them."""
+    pauses: list[float] = []
+
+    async def sleep(seconds):
+        pauses.append(seconds)
+
+    client.app.state.join_limiter.sleep = sleep
+    return pauses
+
+
+def test_wrong_join_codes_slow_down_but_the_right_code_gets_in(client, room):
+    pauses = _recorded_pauses(client)
     limit = client.app.state.settings.join_attempts_per_minute
     for i in range(limit):
         r = client.post("/api/join", json={"code": f"WRONG{i}", "name": "Eve"})
-        assert r.status_code == 404
+        assert r.status_code == 404 and r.json()["code"] == "unknown_join_code"
+    assert pauses == []  # within the allowance: full speed
     r = client.post("/api/join", json={"code": "WRONGX", "name": "Eve"})
-    assert r.status_code == 429 and r.json()["code"] == "too_many_attempts"
-    assert "wait" in r.json()["error"]
-    # Once limited, even the right code waits: guessing cannot continue through it.
-    assert client.post("/api/join", json={"code": room.join_code, "name": "Eve"}).status_code == 429
-    assert client.get(f"/api/join/{room.join_code}").status_code == 429
-    assert client.get(f"/join/{room.join_code}").status_code == 429
+    assert r.status_code == 404  # still an answer, after a pause
+    assert pauses == [1.0]
+    # the right code from the same address (a room behind one router) is let in, after its turn
+    assert client.post("/api/join", json={"code": room.join_code, "name": "Sam"}).status_code == 201
+    assert client.get(f"/api/join/{room.join_code}").status_code == 200
+    assert client.get(f"/join/{room.join_code}").status_code == 200
+    assert pauses == [1.0, 2.0, 2.0, 2.0]
 
 
 def test_right_join_codes_do_not_count(client, room):
+    pauses = _recorded_pauses(client)
     limit = client.app.state.settings.join_attempts_per_minute
     for i in range(limit * 2):
         assert client.post("/api/join", json={"code": room.join_code, "name": f"P{i}"}).status_code == 201
+    assert pauses == []
 
 
-def test_join_limit_window_moves_on_and_is_per_address():
-    from app.web.guards import JoinLimiter, TooManyAttempts
+def test_join_pause_grows_moves_on_and_is_per_address():
+    from app.web.guards import JoinLimiter
 
     now = [1000.0]
-    limiter = JoinLimiter(limit=3, window=60.0, clock=lambda: now[0])
-    for _ in range(3):
-        limiter.check("10.0.0.1")
-        limiter.failed("10.0.0.1")
-    with pytest.raises(TooManyAttempts) as err:
-        limiter.check("10.0.0.1")
-    assert err.value.status == 429 and "wait 60 s" in err.value.message
-    limiter.check("10.0.0.2")  # another address is not affected
-    now[0] += 30
-    with pytest.raises(TooManyAttempts):
-        limiter.check("10.0.0.1")
-    now[0] += 31
-    limiter.check("10.0.0.1")
+    limiter = JoinLimiter(limit=3, window=60.0, step=1.0, max_wait=5.0, clock=lambda: now[0])
+    for code in ("AAAAAA", "BBBBBB", "AAAAAA", "aaaaaa "):  # a typo retried counts once
+        limiter.failed("10.0.0.1", code)
+    assert limiter.pause("10.0.0.1") == 0
+    limiter.failed("10.0.0.1", "CCCCCC")
+    assert limiter.pause("10.0.0.1") == 1.0
+    for i in range(10):
+        limiter.failed("10.0.0.1", f"D{i}")
+    assert limiter.pause("10.0.0.1") == 5.0  # capped
+    assert limiter.pause("10.0.0.2") == 0  # another address is not affected
+    now[0] += 61
+    assert limiter.pause("10.0.0.1") == 0
+
+
+def test_join_turns_are_taken_one_at_a_time_and_a_flood_is_turned_away():
+    import asyncio
+
+    from app.web.guards import JoinLimiter, TooManyAttempts
+
+    async def run():
+        gate = asyncio.Event()
+        inside: list[int] = []
+        limiter = JoinLimiter(limit=1, window=60.0, max_queue=2, sleep=lambda s: gate.wait())
+        limiter.failed("10.0.0.1", "WRONG1")
+
+        async def one(i):
+            async with limiter.turn("10.0.0.1"):
+                inside.append(i)
+                assert len(inside) == 1  # one at a time
+                await asyncio.sleep(0)
+                inside.remove(i)
+                return i
+
+        tasks = [asyncio.create_task(one(i)) for i in range(2)]
+        await asyncio.sleep(0.01)
+        with pytest.raises(TooManyAttempts) as err:
+            async with limiter.turn("10.0.0.1"):
+                pass
+        assert err.value.status == 429 and "waiting from this address at once" in err.value.message
+        gate.set()
+        assert sorted(await asyncio.gather(*tasks)) == [0, 1]
+
+    asyncio.run(run())
 
 
 def test_join_limiter_forgets_quiet_addresses():
@@ -169,10 +215,9 @@ def test_join_limiter_forgets_quiet_addresses():
     limiter = JoinLimiter(limit=3, window=60.0, clock=lambda: now[0])
     limiter.MAX_ADDRESSES = 100
     for i in range(150):
-        limiter.check(f"10.0.{i // 256}.{i % 256}")
-        limiter.failed(f"10.0.{i // 256}.{i % 256}")
+        limiter.failed(f"10.0.{i // 256}.{i % 256}", "WRONG")
     now[0] += 61
-    limiter.check("10.9.9.9")
+    limiter.pause("10.9.9.9")
     assert len(limiter._failures) <= 1
 
 

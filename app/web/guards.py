@@ -8,11 +8,14 @@
   browser's pre-flight for the allowed ones. Requests without an ``Origin``
   header (scripts, curl) are not browsers acting for someone else and pass.
 * :class:`JoinLimiter` counts wrong join codes per client address in a sliding
-  window; past the limit that address gets 429 until the window moves on.
+  window; past the allowance that address's join requests wait their turn, slower
+  with every further wrong code, and a right code is still let in.
 """
 
 from __future__ import annotations
 
+import asyncio
+import contextlib
 import json
 import re
 import threading
@@ -137,49 +140,78 @@ class OriginGuard:
 
 
 class JoinLimiter:
-    """At most ``limit`` wrong join codes per address within ``window`` seconds."""
+    """Slows join-code guessing from one address; never refuses a right code for it.
+
+    An address may try ``limit`` different wrong codes per ``window`` seconds at full
+    speed (the same wrong code typed again counts once: a person retrying a typo is
+    not guessing). Past that allowance its join requests take turns, one at a time,
+    each after a pause of ``step`` seconds per wrong code beyond the allowance, at
+    most ``max_wait``. A right code waits its turn like any other and is then let in,
+    so a room behind one router is slowed by a guesser, never locked out, while the
+    guesser gets one try per pause. Only a flood (``max_queue`` requests from the
+    address waiting at once) is turned away with 429.
+    """
 
     MAX_ADDRESSES = 10000
 
-    def __init__(self, limit: int = 10, window: float = 60.0, clock=time.monotonic):
-        self.limit = limit
-        self.window = window
+    def __init__(self, limit: int = 10, window: float = 60.0, *, step: float = 1.0,
+                 max_wait: float = 10.0, max_queue: int = 64, clock=time.monotonic, sleep=None):
+        self.limit, self.window, self.step, self.max_wait, self.max_queue = limit, window, step, max_wait, max_queue
         self.clock = clock
-        self._failures: dict[str, deque[float]] = {}
+        self.sleep = sleep or asyncio.sleep
+        self._failures: dict[str, dict[str, float]] = {}  # address -> wrong code -> last tried
+        self._turns: dict[str, asyncio.Lock] = {}
+        self._waiting: dict[str, int] = {}
         self._lock = threading.Lock()
 
-    def _recent(self, address: str, now: float) -> deque[float]:
-        times = self._failures.setdefault(address, deque())
-        while times and times[0] <= now - self.window:
-            times.popleft()
-        return times
+    def _recent(self, address: str, now: float) -> dict[str, float]:
+        codes = self._failures.setdefault(address, {})
+        for code in [c for c, at in codes.items() if at <= now - self.window]:
+            del codes[code]
+        return codes
 
-    def check(self, address: str) -> None:
-        """Raise TooManyAttempts when this address is over the limit."""
+    def pause(self, address: str) -> float:
+        """Seconds a join request from ``address`` waits now (0 within the allowance)."""
         with self._lock:
             now = self.clock()
-            times = self._recent(address, now)
-            if len(times) >= self.limit:
-                wait = max(1, int(times[0] + self.window - now + 0.999))
-                raise TooManyAttempts(
-                    f"too many wrong join codes from this address; wait {wait} s and check "
-                    "the code with the facilitator", code="too_many_attempts")
+            excess = len(self._recent(address, now)) - self.limit + 1
             if len(self._failures) > self.MAX_ADDRESSES:  # forget addresses quiet for a window
                 for key in [k for k in self._failures if not self._recent(k, now)]:
                     del self._failures[key]
+            return 0.0 if excess <= 0 else min(self.max_wait, self.step * excess)
 
-    def failed(self, address: str) -> None:
+    @contextlib.asynccontextmanager
+    async def turn(self, address: str):
+        """Hold the address's turn for one join request, after its pause."""
+        if self.pause(address) == 0:
+            yield
+            return
+        if self._waiting.get(address, 0) >= self.max_queue:
+            raise TooManyAttempts("too many join requests are waiting from this address at once; "
+                                  "try again in a few seconds", code="too_many_attempts")
+        self._waiting[address] = self._waiting.get(address, 0) + 1
+        try:
+            async with self._turns.setdefault(address, asyncio.Lock()):
+                await self.sleep(self.pause(address))
+                yield
+        finally:
+            self._waiting[address] -= 1
+            if not self._waiting[address]:
+                del self._waiting[address]
+                self._turns.pop(address, None)
+
+    def failed(self, address: str, code: str = "") -> None:
         with self._lock:
-            self._recent(address, self.clock()).append(self.clock())
+            self._recent(address, self.clock())[str(code).strip().upper()] = self.clock()
 
 
-def guarded_join_lookup(request, sessions, code):
-    """Find the session of a join code; wrong codes count against the caller's address."""
+async def guarded_join_lookup(request, sessions, code):
+    """Find the session of a join code; wrong codes slow the caller's address down."""
     limiter = request.app.state.join_limiter
     address = request.client.host if request.client else "unknown"
-    limiter.check(address)
-    try:
-        return sessions.find_by_join_code(code)
-    except NotFound:
-        limiter.failed(address)
-        raise
+    async with limiter.turn(address):
+        try:
+            return sessions.find_by_join_code(code)
+        except NotFound:
+            limiter.failed(address, code if isinstance(code, str) else "")
+            raise

@@ -26,9 +26,9 @@ def join_form_page(request: Request):
 
 
 @router.get("/join/{code}")
-def join_page(code: str, request: Request, sessions: SessionsDep):
+async def join_page(code: str, request: Request, sessions: SessionsDep):
     """The join form for one session (the code is checked again on submit)."""
-    w = guarded_join_lookup(request, sessions, code)
+    w = await guarded_join_lookup(request, sessions, code)
     return _render(request, "join.html", title=w.title,
                    page_data={"page": "join", "code": w.join_code, "title": w.title})
 

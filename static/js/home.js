@@ -29,10 +29,22 @@ createForm.addEventListener('submit', async (event) => {
   }
 });
 
-document.getElementById('join-code-form').addEventListener('submit', (event) => {
+const joinError = document.getElementById('join-error');
+document.getElementById('join-code-form').addEventListener('submit', async (event) => {
   event.preventDefault();
-  const code = String(new FormData(event.target).get('code') || '').trim().toUpperCase();
-  if (code) location.href = `/join/${encodeURIComponent(code)}`;
+  joinError.textContent = '';
+  const code = String(new FormData(event.target).get('code') || '').trim().toUpperCase().replaceAll(' ', '');
+  if (!code) return;
+  // Checked here first, so a wrong code is answered beside the field, not on a page of its own.
+  try {
+    await callApi('GET', `/api/join/${encodeURIComponent(code)}`);
+    location.href = `/join/${encodeURIComponent(code)}`;
+  } catch (err) {
+    joinError.textContent = err.status === 404
+      ? `No session has the code ${code}. Check it with the facilitator: it is on their screen, six letters and digits.`
+      : err.message;
+    event.target.querySelector('input[name=code]').focus();
+  }
 });
 
 const mine = listSessions();

@@ -42,7 +42,7 @@ async def create_session(sessions: SessionsDep, body: Any = Body(...)) -> dict:
 @router.get("/join/{code}")
 async def read_join_code(code: str, sessions: SessionsDep, request: Request) -> dict:
     """What a join code leads to (title and stage only)."""
-    w = guarded_join_lookup(request, sessions, code)
+    w = await guarded_join_lookup(request, sessions, code)
     return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
 
 
@@ -51,7 +51,7 @@ async def join_session(sessions: SessionsDep, request: Request, body: Any = Body
     """Join a session with its code and a display name; returns the participant's key."""
     if not isinstance(body, dict):
         raise BadRequest("send a JSON object with 'code' and 'name'", code="invalid_request")
-    guarded_join_lookup(request, sessions, body.get("code"))
+    await guarded_join_lookup(request, sessions, body.get("code"))
     w, member, token = await sessions.join(body.get("code"), body.get("name"))
     return {"ok": True, "session_id": w.id, "token": token, "member": member.to_public(),
             **_links(w.id, w.join_code)}
