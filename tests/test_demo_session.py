@@ -146,3 +146,11 @@ def test_demo_estimation_tab_says_the_data_waits_for_agreement(tmp_path):
                 assert page.locator(f"button[data-action='{action}']").is_disabled()
             page.screenshot(path=str(ARTIFACTS / "demo-estimation-debating.png"))
             browser.close()
+
+
+def test_demo_room_has_stated_hidden_causes(demo):
+    statements = demo.get()["state"]["hidden_causes"]["statements"]
+    assert [(s["by"], s["words"]) for s in statements] == [
+        ("Dev (warehouse manager)", "half as strong as age"),
+        ("Tomasz (occupational health)", "about as strong as fitness"),
+        ("Ruth (staff representative)", "twice as strong as commute_km")]
