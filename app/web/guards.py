@@ -20,7 +20,6 @@ import json
 import re
 import threading
 import time
-from collections import deque
 from urllib.parse import urlparse
 
 from ..errors import AppError, NotFound, error_body
