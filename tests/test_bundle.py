@@ -95,13 +95,15 @@ def test_bundle_identification_matches_a_fresh_analysis(recorded):
     assert bundle["absent_arrows"]["total"] >= 1
 
 
-def test_bundle_holds_estimates_tests_stability_and_sensitivity_without_markup(recorded):
+def test_bundle_holds_estimates_tests_verdict_and_sensitivity_without_markup(recorded):
     _, bundle, _ = recorded
     est = bundle["estimation"]["estimate"]
     assert est["method"] == "regression" and est["n_used"] == 4000
     assert est["adjustment_set"] == ["age", "commute_km", "department", "fitness"]
     assert bundle["implication_tests"]["tested"] == est["checks"]["tested"] > 0
-    assert len(bundle["estimation"]["stability"]["checks"]) == 4
+    verdict = bundle["estimation"]["validation"]
+    assert verdict["verdict"] == "no contradiction found" and verdict["run"] >= 2
+    assert {i["check"] for i in verdict["items"]} >= {"set-agreement", "control-outcomes", "implications-together"}
     assert bundle["estimation"]["sensitivity"]["regression"]["robustness_value"] > 0
     assert len(bundle["estimation"]["disputes"]["rows"]) == 2
     assert "<svg" not in json.dumps(bundle)  # charts are drawn again, never carried

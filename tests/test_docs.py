@@ -47,3 +47,24 @@ def test_every_sensitivity_key_is_in_the_readme():
     missing = sorted(k for k in keys if not any(f"{pre}{k}{end}" in table
                                                 for pre in ("`", ".") for end in ("`", "[]`")))
     assert not missing, missing
+
+
+def test_every_validation_key_is_in_the_readme():
+    """The verdict object of ``arrowmoot estimate`` and the API, key by key."""
+    import json
+
+    import pandas as pd
+
+    from app.estimation import service
+    from app.graph.document import parse_document
+
+    root = Path(__file__).resolve().parent.parent / "sample_data"
+    diagram = parse_document(json.loads((root / "cycle_to_work.json").read_text()))
+    result = service.validate(diagram, pd.read_csv(root / "cycle_to_work.csv"), resamples=20)
+    table = README.split("| `verdict` |", 1)[1].split("\n\n", 1)[0]
+    keys = set(result) | {k for i in result["items"] for k in i}
+    for i in result["items"]:
+        for row in i.get("sets", []) + i.get("controls", []):
+            keys |= set(row)
+    for key in keys:
+        assert f"`{key}`" in table or f".{key}`" in table or f"`{key}[]" in table or key == "verdict", key

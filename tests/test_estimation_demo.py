@@ -89,15 +89,6 @@ def test_not_identified_names_the_variables_that_would_fix_it(diagram, frame):
     assert info.value.item["fixes"] == [["fitness"]]
 
 
-def test_stability_checks_behave(diagram, frame):
-    out = service.stability(diagram, frame, repeats=40)
-    by = {c["check"]: c for c in out["checks"]}
-    assert set(by) == {"resampled-rows", "split-halves", "shuffled-treatment", "invented-common-cause"}
-    assert abs(by["shuffled-treatment"]["new"]) < 0.1 and by["shuffled-treatment"]["p_value"] < 0.05
-    assert by["invented-common-cause"]["new"] == pytest.approx(by["invented-common-cause"]["original"], abs=0.02)
-    assert all(c["verdict"] == "passes" for c in out["checks"])
-
-
 def test_sensitivity_for_demo_has_benchmarks_and_interval_path(diagram, frame):
     out = service.sensitivity(diagram, frame)
     reg = out["regression"]

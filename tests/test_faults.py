@@ -322,13 +322,13 @@ def _infinite(f):
     (_no_variation, "single value"),
     (_infinite, "infinite values"),
 ])
-@pytest.mark.parametrize("step", ["estimate", "stability", "sensitivity"])
+@pytest.mark.parametrize("step", ["estimate", "validation", "sensitivity"])
 def test_numerical_failure_in_an_estimate_is_a_clear_message(agreed, change, words, step):
     room, base, headers = agreed
     client = room.client
     assert client.put(f"{base}/data?name=bad.csv", content=_data(change), headers=headers).status_code == 200
     before_state, before_est = room.state(), client.get(base, headers=headers).json()
-    body = {"repeats": 10} if step == "stability" else {}
+    body = {"wait": True} if step == "validation" else {}
     r = client.post(f"{base}/{step}", json=body, headers=headers)
     assert 400 <= r.status_code < 500, r.text
     assert words in r.json()["error"]

@@ -75,7 +75,7 @@ def build_workshop(client: TestClient, *, document: dict | None = None, estimate
         _ok(client.put(f"{base}/data?name=cycle_to_work.csv", content=(SAMPLE / "cycle_to_work.csv").read_bytes(),
                        headers=head))
         _ok(client.post(f"{base}/estimate", json={}, headers=head))
-        _ok(client.post(f"{base}/stability", json={"repeats": 20}, headers=head))
+        _ok(client.post(f"{base}/validation", json={"resamples": 50, "wait": True}, headers=head))
         _ok(client.post(f"{base}/sensitivity", json={}, headers=head))
         _ok(client.post(f"{base}/disputes", json={}, headers=head))
     return Workshop(client=client, session_id=sid, facilitator=fac, analyst=ana, participant=pat)

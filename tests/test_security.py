@@ -83,7 +83,7 @@ def test_participant_cannot_upload_data_or_estimate(agreed):
     csv = (SAMPLE / "cycle_to_work.csv").read_bytes()
     r = room.client.put(f"{base}/data?name=x.csv", content=csv, headers={TOKEN_HEADER: ann})
     assert r.status_code == 403 and r.json()["code"] == "needs_role"
-    for step in ("estimate", "stability", "sensitivity", "disputes"):
+    for step in ("estimate", "validation", "validation/stop", "sensitivity", "disputes"):
         r = room.client.post(f"{base}/{step}", json={}, headers={TOKEN_HEADER: ann})
         assert r.status_code == 403, step
     r = room.client.put(f"{base}/mapping", json={"mapping": {}}, headers={TOKEN_HEADER: ann})

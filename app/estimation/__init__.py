@@ -1,5 +1,5 @@
 """The estimation stage: data, measure mapping, estimators, checks against the
-data, stability and sensitivity. Pure: pandas, numpy, statsmodels, scipy and
+data, a verdict on the diagram, and sensitivity. Pure: pandas, numpy, statsmodels, scipy and
 linearmodels only; no web, no storage.
 
 Modules
@@ -15,10 +15,12 @@ Modules
                   front-door (product of coefficients, bootstrap)
 ``implications``  the diagram's independences tested on the data (Fisher z; likelihood ratio),
                   Holm or Benjamini-Hochberg correction
-``stability``     resampled rows, split halves, shuffled treatment, invented common cause
+``validation``    checks that can contradict the diagram (valid sets agree, control outcomes
+                  and exposures, implications alone and together) and one verdict
+``samples``       recognise the shipped demo data by digest
 ``sensitivity``   Cinelli & Hazlett (2020) partial R2, robustness values, a cause k times as strong as a covariate, the room's stated causes;
                   VanderWeele & Ding (2017) E-values
-``service``       one call per question (estimate, stability, sensitivity, disputed arrows)
+``service``       one call per question (estimate, validate, sensitivity, disputed arrows)
 ``cli``           ``arrowmoot estimate GRAPH.json DATA.csv [--map v=col ...] [--method NAME]``
 
 Methods (``--method`` / ``"method"``): ``auto`` (default), ``regression``,

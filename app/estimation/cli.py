@@ -1,10 +1,12 @@
 """``arrowmoot estimate GRAPH.json DATA.csv [--map variable=column ...] [--method NAME]``
 
 Prints the estimate as JSON (estimate, std_error, ci, method, strategy,
-adjustment_set or instrument and given, n_used, n_dropped, checks, and
-``sensitivity``: how strong a hidden common cause would have to be, read with
-the room's stated causes from ``--room FILE``: a record bundle, or a JSON list
-of ``{"by", "variable", "times"}``). Exit
+adjustment_set or instrument and given, n_used, n_dropped, checks),
+``validation``: the checks that can contradict the diagram and their verdict
+(see :mod:`app.estimation.validation`), and ``sensitivity``: how strong a
+hidden common cause would have to be, read with the room's stated causes from
+``--room FILE``: a record bundle, or a JSON list of ``{"by", "variable",
+"times"}``). Exit
 codes: 0 estimated; 2 bad input (unreadable graph or data, bad mapping or
 method, data the estimate cannot use, an effect the diagram does not
 identify with the measured variables), with the message on stderr.
@@ -22,7 +24,8 @@ from app.graph.errors import DiagramError
 
 from .errors import DataError
 from .planning import METHOD_LABELS
-from .service import estimate, json_ready, sensitivity
+from .service import estimate, json_ready, sensitivity, validate
+from .validation import RESAMPLES, SET_CAP
 from .tables import DEFAULT_MAX_BYTES, load_table
 
 __all__ = ["add_parser", "run"]
@@ -48,6 +51,12 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--room", default=None, metavar="FILE",
                         help="the room's stated hidden causes: a record bundle or a JSON list of "
                              '{"by", "variable", "times"} (default: none)')
+    parser.add_argument("--resamples", type=int, default=RESAMPLES, metavar="N",
+                        help=f"paired resamples for comparing adjustment sets (default {RESAMPLES})")
+    parser.add_argument("--set-cap", type=int, default=SET_CAP, metavar="N",
+                        help=f"compare at most N valid adjustment sets (default {SET_CAP})")
+    parser.add_argument("--no-validation", action="store_true",
+                        help="skip the checks against the data (validation is then null)")
     parser.add_argument("--max-bytes", type=int, default=DEFAULT_MAX_BYTES, help=argparse.SUPPRESS)
     parser.set_defaults(handler=run)
     return parser
@@ -106,8 +115,15 @@ def run(args) -> int:
         adjust = None
         if args.adjust is not None:
             adjust = [a.strip() for a in args.adjust.split(",") if a.strip()]
+        if not 20 <= args.resamples <= 2000:
+            return _fail("--resamples must be from 20 to 2000")
+        if not 1 <= args.set_cap <= 20:
+            return _fail("--set-cap must be from 1 to 20")
         result = estimate(diagram, frame, mapping, method=args.method, adjust=adjust,
                           correction=args.correction)
+        result["validation"] = None if args.no_validation else validate(
+            diagram, frame, mapping, method=args.method, adjust=adjust, correction=args.correction,
+            resamples=args.resamples, set_cap=args.set_cap, implication_checks=result["checks"])
         result["sensitivity"] = sensitivity(diagram, frame, mapping, method=args.method, adjust=adjust,
                                             statements=_room(getattr(args, "room", None)))
     except (DataError, DiagramError) as exc:

@@ -1,4 +1,4 @@
-"""One call per question the analyst asks: estimate, stability, sensitivity,
+"""One call per question the analyst asks: estimate, the checks against the data, sensitivity,
 and the estimate under each combination of disputed arrows.
 
 Each function takes a :class:`~app.graph.document.Diagram`, a DataFrame and a
@@ -19,15 +19,14 @@ import pandas as pd
 from app.graph.document import Arrow, Diagram
 from app.graph.errors import DiagramError
 
-from . import estimators
+from . import estimators, validation
 from .design import build_design, check_mapping, propose_mapping
 from .errors import BadMapping, BadMethod, DataError, NotIdentified
 from .implications import test_implications
-from .planning import METHOD_LABELS, Plan, choose_method, make_plan
+from .planning import METHOD_LABELS, Plan, _observed_except, choose_method, make_plan
 from .sensitivity import e_value, regression_sensitivity, standardized_e_value
-from .stability import run_stability
 
-__all__ = ["CAUTIONS", "resolve_mapping", "estimate", "stability", "sensitivity", "disputed_estimates", "MAX_DISPUTES"]
+__all__ = ["CAUTIONS", "resolve_mapping", "estimate", "validate", "sensitivity", "disputed_estimates", "MAX_DISPUTES"]
 
 CAUTIONS = [
     "This is an observational estimate: it is causal only if the agreed diagram is right, "
@@ -67,6 +66,12 @@ def _prepare(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, method
     )
     chosen = choose_method(plan, t_binary=design.t_binary, y_binary=design.y_binary, method=method)
     return mapping, plan, design, chosen
+
+
+def prepare(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, method: str | None = None,
+            adjust: list[str] | None = None) -> tuple:
+    """Check the inputs of an estimate: (mapping, plan, design, method), or DataError / DiagramError."""
+    return _prepare(diagram, frame, mapping, method, adjust)
 
 
 def _fit(design, method: str) -> dict:
@@ -191,19 +196,30 @@ def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
     return out
 
 
-def stability(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
-              method: str | None = None, adjust: list[str] | None = None, repeats: int = 100,
-              seed: int = 2024) -> dict:
-    mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
-    point = estimators.point_function(chosen)
-    original = point(design)
-    checks = run_stability(design, point, original, repeats=repeats, seed=seed)
-    if plan.strategy != "adjustment":
-        checks = [c for c in checks if c["check"] != "invented-common-cause"] + [
-            {"check": "invented-common-cause", "label": "Invented common cause", "original": original,
-             "new": None, "spread": None, "runs": 0, "p_value": None, "verdict": "not run",
-             "detail": "only meaningful for an adjustment estimate"}]
-    return {"method": chosen, "estimate": original, "repeats": repeats, "seed": seed, "checks": checks}
+def validate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
+             method: str | None = None, adjust: list[str] | None = None, correction: str = "holm",
+             alpha: float = 0.05, resamples: int = validation.RESAMPLES, set_cap: int = validation.SET_CAP,
+             seed: int = validation.SEED, implication_checks: dict | None = None,
+             prepared: tuple | None = None, progress=None, stop=None) -> dict:
+    """Every check that can contradict the diagram, and one verdict (:mod:`.validation`).
+
+    ``prepared`` is what :func:`prepare` returned for the same arguments (so a caller can
+    refuse bad input at once and run the checks later)."""
+    mapping, plan, design, chosen = prepared or prepare(diagram, frame, mapping, method, adjust)
+    if implication_checks is None:
+        implication_checks = test_implications(
+            frame, mapping, plan.analysis["implications"], correction=correction, alpha=alpha,
+            total=plan.analysis.get("implications_total"))
+    in_use = plan.adjustment_set if plan.strategy == "adjustment" else None
+    sets = _valid_sets(plan)
+    if in_use is not None:
+        sets = [sorted(in_use)] + [s for s in sets if sorted(s) != sorted(in_use)]
+    working = _observed_except(diagram, set(plan.unmeasured))
+    return validation.run_checks(
+        working, frame, mapping, treatment=plan.treatment, outcome=plan.outcome, adjustment_set=in_use,
+        sets=sets, more_sets=bool(plan.analysis.get("more_sets_exist")), method=chosen,
+        implication_checks=implication_checks, resamples=resamples, set_cap=set_cap, seed=seed, alpha=alpha,
+        progress=progress, stop=stop)
 
 
 def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,

@@ -18,7 +18,7 @@ Layout (``format`` ``"arrowmoot-record"``, ``version`` 1)::
     absent_arrows   left-out arrows that would change the answer
     hidden_causes   each member's stated strongest hidden common cause ("twice as strong as age")
     data            the attached file: name, rows, columns, mapping, SHA-256 fingerprint
-    estimation      estimate, implication tests, stability, sensitivity, disputed-arrow estimates
+    estimation      estimate, implication tests, checks against the data and their verdict, sensitivity, disputed-arrow estimates
     workshop        the exact session state and event log, so an import reopens it as it was
 
 Charts are never stored: they are drawn again from the numbers, so a bundle
@@ -48,7 +48,7 @@ __all__ = [
 
 BUNDLE_FORMAT = "arrowmoot-record"
 BUNDLE_VERSION = 1
-ESTIMATION_KEYS = {"estimate": "estimation.estimate", "stability": "estimation.stability",
+ESTIMATION_KEYS = {"estimate": "estimation.estimate", "validation": "estimation.validation",
                    "sensitivity": "estimation.sensitivity", "disputes": "estimation.disputes"}
 DATA_KEY = "estimation.data"
 DECISION_KINDS = frozenset({"settle", "flag_arrow", "set_stage", "set_question", "undo", "grant_role",

@@ -16,6 +16,7 @@ from typing import Any
 import jinja2
 
 from .. import __version__
+from ..estimation.samples import is_sample_digest
 from ..graph.document import Diagram, parse_document
 from ..graph.errors import DiagramError
 from ..resources import resource_dir
@@ -34,7 +35,7 @@ SECTIONS = [
     ("estimate", "The estimate"),
     ("disputes", "Does the answer depend on the disputed arrows?"),
     ("implications", "Testing the diagram against the data"),
-    ("stability", "Stability checks"),
+    ("validation", "Checks that could contradict the diagram"),
     ("sensitivity", "How strong would a hidden common cause have to be?"),
     ("decisions", "The decision record"),
     ("assumptions", "Assumptions in words"),
@@ -262,7 +263,7 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
         elif bundle.get("data") and v.name not in mapping:
             unmeasured.append({"name": v.name, "label": v.label, "why": "no column of the data measures it"})
     absent = bundle.get("absent_arrows") or {}
-    stability = estimation.get("stability") or None
+    validation = estimation.get("validation") or None
     sensitivity = estimation.get("sensitivity") or None
     checks = (est or {}).get("checks") or bundle.get("implication_tests") or None
     members = {m.get("id"): m for m in bundle.get("members") or []}
@@ -292,7 +293,8 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
         "dispute_rows": (estimation.get("disputes") or {}).get("rows") or [],
         "disputes_report": disputes_report,
         "checks": checks,
-        "stability": stability,
+        "validation": validation,
+        "sample_data": is_sample_digest((bundle.get("data") or {}).get("sha256")),
         "sensitivity": sensitivity,
         "shift_chart": _shift_chart(sensitivity),
         "overlap": _safe_chart(charts.overlap_histogram, est["details"]["overlap"],

@@ -18,7 +18,7 @@ from ..estimation.tables import profile_table
 __all__ = ["DATA_KEY", "RESULT_KEYS", "stored_name", "data_info"]
 
 DATA_KEY = "estimation.data"
-RESULT_KEYS = ("estimation.estimate", "estimation.stability", "estimation.sensitivity",
+RESULT_KEYS = ("estimation.estimate", "estimation.validation", "estimation.sensitivity",
                "estimation.disputes")
 
 

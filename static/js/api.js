@@ -125,7 +125,17 @@ export function saveEstimationMapping(sessionId, token, mapping) {
   return callApi('PUT', `${sessionPath(sessionId)}/estimation/mapping`, { mapping }, token);
 }
 
-/** Run one of the estimation stage's analyses: 'estimate', 'stability', 'sensitivity' or 'disputes'. */
+/** Run one of the estimation stage's analyses: 'estimate', 'validation', 'sensitivity' or 'disputes'. */
 export function runEstimation(sessionId, token, kind, body) {
   return callApi('POST', `${sessionPath(sessionId)}/estimation/${encodeURIComponent(kind)}`, body, token);
+}
+
+/** Progress of the latest run of the checks against the data. */
+export function readValidationRun(sessionId, token) {
+  return callApi('GET', `${sessionPath(sessionId)}/estimation/validation/run`, undefined, token);
+}
+
+/** Stop the running checks against the data. */
+export function stopValidation(sessionId, token) {
+  return callApi('POST', `${sessionPath(sessionId)}/estimation/validation/stop`, {}, token);
 }

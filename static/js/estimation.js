@@ -1,9 +1,11 @@
 // The estimation stage panel: attach data, map measures, estimate, test the diagram
-// against the data, stability and sensitivity, and the disputed-arrow forest plot.
+// against the data (with a verdict), sensitivity, and the disputed-arrow forest plot.
 // Mounted by the session page through mountEstimation(element, context).
 
 import { el, clear, independenceText } from './dom.js';
-import { fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation } from './api.js';
+import {
+  fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation, readValidationRun, stopValidation,
+} from './api.js';
 
 const METHODS = [
   ['auto', 'Chosen from the diagram and the data'],
@@ -49,7 +51,8 @@ class EstimationPanel {
     this.context = context;
     this.data = null;
     this.variables = [];
-    this.results = { estimate: null, stability: null, sensitivity: null, disputes: null };
+    this.results = { estimate: null, validation: null, sensitivity: null, disputes: null };
+    this.checking = null; // the latest run of the checks against the data: progress and state
     this.busy = null;
     this.message = null;
     this.flagged = null;
@@ -96,6 +99,7 @@ class EstimationPanel {
       this.variables = data.variables;
       this.results = results;
       this.loaded = true;
+      if (data.validation_run?.state === 'running' && !this.polling) this.followValidation(data.validation_run);
       if (quiet && !changed) return;
     } catch (err) {
       if (quiet) return;
@@ -151,7 +155,49 @@ class EstimationPanel {
       const body = kind === 'estimate' ? opts : { method: opts.method, adjust: opts.adjust };
       const out = await runEstimation(this.context.sessionId, this.context.token, kind, body);
       this.results[kind] = out.result;
-    });
+      if (kind === 'estimate') this.results.validation = null;
+    }).then(() => { if (kind === 'estimate' && this.results.estimate && !this.message) this.startValidation(); });
+  }
+
+  /** Start the checks against the data in the background; the page stays usable meanwhile. */
+  async startValidation() {
+    const opts = this.options();
+    try {
+      const out = await runEstimation(this.context.sessionId, this.context.token, 'validation',
+        { method: opts.method, adjust: opts.adjust, correction: opts.correction });
+      this.followValidation(out.run);
+    } catch (err) {
+      this.message = { kind: 'error', text: err.message || String(err) };
+      this.render();
+    }
+  }
+
+  /** Poll the run's progress until it ends, then load the stored result. */
+  async followValidation(run) {
+    this.checking = run;
+    this.polling = true;
+    this.render();
+    while (this.checking?.state === 'running') {
+      await new Promise((resolve) => { setTimeout(resolve, 400); });
+      try {
+        this.checking = (await readValidationRun(this.context.sessionId, this.context.token)).run;
+      } catch (err) {
+        this.checking = { state: 'failed', message: err.message || String(err) };
+      }
+      this.renderProgress();
+    }
+    this.polling = false;
+    if (this.checking?.state === 'finished') await this.load();
+    else this.render();
+  }
+
+  async stopChecks() {
+    try {
+      this.checking = (await stopValidation(this.context.sessionId, this.context.token)).run;
+    } catch (err) {
+      this.message = { kind: 'error', text: err.message || String(err) };
+    }
+    this.render();
   }
 
   /** Show a failing implication on the diagram: the two variables and the conditioning set. */
@@ -189,7 +235,7 @@ class EstimationPanel {
     if (!this.canEdit) parts.push(el('p', { class: 'note', text: 'You can read the results here; the facilitator or an analyst attaches data and runs the estimates.' }));
     if (this.message) parts.push(el('p', { class: `am-message am-${this.message.kind}`, role: this.message.kind === 'error' ? 'alert' : 'status', text: this.message.text }));
     parts.push(this.renderData(), this.renderMapping(), this.renderEstimate(), this.renderChecks(),
-      this.renderStability(), this.renderSensitivity(), this.renderDisputes());
+      this.renderValidation(), this.renderSensitivity(), this.renderDisputes());
     clear(this.root).append(...parts.filter(Boolean));
   }
 
@@ -218,6 +264,7 @@ class EstimationPanel {
       box.append(el('p', { class: 'note', text: 'No data attached yet.' }));
       return box;
     }
+    if (this.data.sample_data) box.append(el('p', { class: 'am-sample', role: 'note', text: 'Demo data: this file is the invented sample shipped with Arrowmoot (recognised by its fingerprint). Its numbers illustrate the method and describe no real people.' }));
     box.append(el('p', { class: 'note', text: `${this.data.name}: ${this.data.rows.toLocaleString()} rows, ${this.data.columns.length} columns.` }));
     const rows = this.data.profile.map((p) => el('tr', {},
       el('th', { text: p.name }), el('td', { text: p.kind }), el('td', { text: pct(p.missing_share) }),
@@ -268,6 +315,8 @@ class EstimationPanel {
         el('strong', { text: fmt(r.estimate) }),
         ` [${fmt(r.ci[0])}, ${fmt(r.ci[1])}]`,
         el('span', { class: 'note', text: ' 95% interval' })),
+      this.verdictLine(),
+      el('div', { class: 'am-caution' }, el('strong', { text: 'Caution. ' }), ...r.cautions.map((c) => el('span', { text: c + ' ' }))),
       el('p', { class: 'summary', text: r.explanation }));
     const facts = [
       ['method', r.method_label], ['strategy', r.strategy],
@@ -298,7 +347,6 @@ class EstimationPanel {
     for (const w of r.warnings || []) card.append(el('p', { class: 'notice', role: 'alert', text: w }));
     card.append(el('details', {}, el('summary', { text: 'What must be true for this to be a causal effect' }),
       el('ul', {}, ...r.assumptions.map((a) => el('li', { text: a })))));
-    card.append(el('div', { class: 'am-caution' }, el('strong', { text: 'Caution. ' }), ...r.cautions.map((c) => el('span', { text: c + ' ' }))));
     if (r.charts?.overlap) {
       card.append(chart(r.charts.overlap, 'Overlap: where both arms have people with similar chances of treatment.'));
       const o = r.details.overlap;
@@ -336,18 +384,72 @@ class EstimationPanel {
     return box;
   }
 
-  renderStability() {
+  /** The verdict of the checks against the data, for the line under the headline number. */
+  verdictLine() {
+    const v = this.results.validation;
+    if (this.checking?.state === 'running') return el('p', { class: 'am-verdict am-verdict-running', text: 'Checking the diagram against the data…' });
+    if (!v) return el('p', { class: 'am-verdict', text: 'Checks against the data: not run yet. Until they run, the number rests on the diagram alone.' });
+    return el('p', { class: `am-verdict am-verdict-${v.verdict.replaceAll(' ', '-')}`, dataset: { verdict: v.verdict }, role: 'status' },
+      el('strong', { text: `Checks against the data: ${v.verdict}` }),
+      ` (${v.contradicted} of ${v.run} contradict the diagram). ${v.reading}`);
+  }
+
+  /** Progress of a running check, with a stop button; updated in place while polling. */
+  progressBox() {
+    const run = this.checking;
+    if (!run || run.state !== 'running') {
+      if (run && ['stopped', 'failed'].includes(run.state)) return el('p', { class: run.state === 'failed' ? 'notice' : 'note', dataset: { progress: 'ended' }, text: `The checks ${run.state === 'failed' ? 'failed' : 'were stopped'}: ${run.message || ''}` });
+      return null;
+    }
+    const share = Math.round(100 * (run.share || 0));
+    return el('div', { class: 'am-progress', dataset: { progress: 'running' } },
+      el('progress', { max: '100', value: String(share), 'aria-label': 'Progress of the checks' }),
+      el('span', { class: 'note', text: ` ${share}% — ${run.step || ''}` }),
+      el('button', { type: 'button', text: 'Stop', disabled: !this.canEdit, dataset: { action: 'stop-checks' }, on: { click: () => this.stopChecks() } }));
+  }
+
+  renderProgress() {
+    const slot = this.root.querySelector('[data-slot="progress"]');
+    if (!slot) return;
+    const box = this.progressBox();
+    clear(slot);
+    if (box) slot.append(box);
+  }
+
+  renderValidation() {
     if (!this.data) return null;
-    const box = el('section', { class: 'am-section', 'aria-label': 'Stability' }, el('h4', { text: '5. Stability checks' }),
-      el('div', { class: 'row end' }, this.button('Run the checks', 'stability', () => this.run('stability'))));
-    const s = this.results.stability;
-    if (!s) return box;
-    const rows = s.checks.map((c) => el('tr', { class: c.verdict === 'warns' ? 'am-fail' : '', title: c.detail },
-      el('th', { text: c.label }), el('td', { text: fmt(c.original) }), el('td', { text: fmt(c.new) }),
-      el('td', { text: fmt(c.p_value, 2) }), el('td', { text: c.verdict })));
-    { const note = this.staleNote(s); if (note) box.append(note); }
-    box.append(table(['check', 'original', 'new', 'p', 'verdict'], rows, 'am-stability'));
-    box.append(el('p', { class: 'note', text: 'Resampled rows and split halves should centre on the original; with a shuffled treatment the estimate should vanish; an invented common cause should not move it.' }));
+    const box = el('section', { class: 'am-section', 'aria-label': 'Checks against the data' },
+      el('h4', { text: '5. Checks that could contradict the diagram' }),
+      el('div', { class: 'row end' }, el('button', {
+        type: 'button', text: 'Run the checks', disabled: !this.canEdit || !!this.busy || this.checking?.state === 'running',
+        dataset: { action: 'validation' }, on: { click: () => this.startValidation() } })));
+    const slot = el('div', { dataset: { slot: 'progress' } });
+    const progress = this.progressBox();
+    if (progress) slot.append(progress);
+    box.append(slot);
+    const v = this.results.validation;
+    if (!v) return box;
+    { const note = this.staleNote(v); if (note) box.append(note); }
+    box.append(el('p', { class: `summary ${v.verdict === 'contradicted' ? 'am-bad' : ''}`, text: `${v.verdict[0].toUpperCase()}${v.verdict.slice(1)}: ${v.reading}` }));
+    const rows = v.items.map((i) => el('tr', { class: i.status === 'contradicted' ? 'am-fail' : '', dataset: { check: i.check } },
+      el('th', { text: i.label }), el('td', { class: `am-status am-status-${i.status.replaceAll(' ', '-')}`, text: i.status }), el('td', { text: i.why })));
+    box.append(table(['check', 'result', 'why'], rows, 'am-validation'));
+    const sets = v.items.find((i) => i.check === 'set-agreement');
+    if (sets?.sets?.length) {
+      const setRows = sets.sets.map((s) => el('tr', { class: s.status === 'differs' ? 'am-fail' : '' },
+        el('td', { text: s.set ? `{${s.set.join(', ')}}` : 'further sets' }), el('td', { text: fmt(s.estimate) }),
+        el('td', { text: s.difference === undefined ? '' : fmt(s.difference) }), el('td', { text: s.p_adjusted === undefined ? '' : fmt(s.p_adjusted, 2) }),
+        el('td', { text: s.status + (s.why ? `: ${s.why}` : '') })));
+      box.append(el('details', { open: sets.status === 'contradicted' }, el('summary', { text: `The estimate with each valid adjustment set (${sets.rows?.toLocaleString?.() ?? ''} shared rows, ${sets.resamples ?? ''} paired resamples)` }),
+        table(['adjusted for', 'estimate', 'difference', 'p (Holm)', 'result'], setRows, 'am-sets')));
+    }
+    for (const i of v.items.filter((x) => x.controls?.length)) {
+      const controlRows = i.controls.map((c) => el('tr', { class: c.status === 'contradicted' ? 'am-fail' : '' },
+        el('td', { text: c.variable }), el('td', { text: c.ci ? `${fmt(c.estimate)} [${fmt(c.ci[0])}, ${fmt(c.ci[1])}]` : '–' }),
+        el('td', { text: c.p_adjusted === undefined ? '' : fmt(c.p_adjusted, 2) }), el('td', { text: c.status + (c.why ? `: ${c.why}` : '') })));
+      box.append(el('details', { open: i.status === 'contradicted' }, el('summary', { text: i.label }),
+        table(['variable', 'estimated effect', 'p (Holm)', 'result'], controlRows, 'am-controls')));
+    }
     return box;
   }
 

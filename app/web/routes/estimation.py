@@ -2,8 +2,8 @@
 
 Data is attached (streamed to the session's data directory with a size
 limit), profiled and mapped to the diagram's variables; then the analyst asks
-for the estimate (with the implication tests), the stability checks, the
-sensitivity analysis and the estimate under each combination of disputed
+for the estimate (with the implication tests), the checks of the diagram against
+the data (a verdict), the sensitivity analysis and the estimate under each combination of disputed
 arrows. Results are kept as session attachments and announced to everyone in
 the room. A refused upload or request changes nothing that was there.
 
@@ -14,13 +14,16 @@ analyst or facilitator role and the ``agreed`` or ``estimation`` stage):
 ``PUT /data?name=F``       raw CSV or Parquet bytes as the body (413 over the limit)
 ``PUT /mapping``           ``{"mapping": {variable: column or null}}``
 ``POST /estimate``         ``{"method", "adjust", "correction": holm|bh|none, "checks"}``
-``POST /stability``        ``{"method", "adjust", "repeats"}``
+``POST /validation``       ``{"method", "adjust", "resamples", "set_cap", "wait"}``: starts the checks
+                           against the data in the background (``wait``: answer when done)
+``GET /validation/run``    progress of the latest run: ``{"state", "done", "total", "share", "step"}``
+``POST /validation/stop``  stop the running checks (nothing stored)
 ``POST /sensitivity``      ``{"method", "adjust"}``, read with the room's stated hidden causes
                            (adds ``charts.hidden_cause``)
 ``POST /disputes``         ``{"disputed": [...]}`` or the room's disputed arrows (``charts.forest``)
 
 Results are kept under the attachment keys ``estimation.estimate``,
-``estimation.stability``, ``estimation.sensitivity``, ``estimation.disputes``;
+``estimation.validation``, ``estimation.sensitivity``, ``estimation.disputes``;
 the data under ``estimation.data``. ``Sessions.attach_data`` (app/sessions)
 attaches a file outside a request (for seeding a session).
 """
@@ -31,18 +34,20 @@ import os
 import time
 from typing import Any
 
-from fastapi import APIRouter, Body, Request
+from fastapi import APIRouter, Body, Request, Response
 from starlette.concurrency import run_in_threadpool
 
-from ...errors import AppError, BadRequest, NotFound, PayloadTooLarge
-from ...estimation import service
+from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge
+from ...estimation import service, validation
 from ...estimation.design import check_mapping, propose_mapping
 from ...estimation.errors import DataError
+from ...estimation.samples import is_sample_file
 from ...estimation.tables import load_table, profile_table
 from ...graph.errors import DiagramError
 from ...reporting import charts
 from ...sessions.data import DATA_KEY, RESULT_KEYS, data_info, stored_name
 from ..deps import AnalystDep, MemberDep
+from ..runs import RUNS
 
 router = APIRouter(prefix="/api/sessions/{session_id}/estimation", tags=["estimation"])
 
@@ -121,6 +126,8 @@ def read_estimation(access: MemberDep) -> dict:
     info = access.get_attachment(DATA_KEY)
     if info and info.get("mapping") is None:
         info = {**info, "mapping": propose_mapping(access.diagram().names, info["columns"])}
+    if info:
+        info = {**info, "sample_data": is_sample_file(access.data_dir() / info["stored"])}
     out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
            "variables": _variables(access)}
     fingerprint = _fingerprint(access)
@@ -133,6 +140,8 @@ def read_estimation(access: MemberDep) -> dict:
                 room = _room_fingerprint(access)
                 result["stale"] = result["stale"] or result.get("room_fingerprint", room) != room
         out[key.split(".", 1)[1]] = result
+    run = RUNS.get(access.session_id, "validation")
+    out["validation_run"] = run.to_json() if run else None
     return out
 
 
@@ -259,17 +268,84 @@ async def create_estimate(access: AnalystDep, body: Any = Body(None)) -> dict:
     return {"ok": True, "result": result}
 
 
-@router.post("/stability")
-async def create_stability(access: AnalystDep, body: Any = Body(None)) -> dict:
-    """Re-estimate on resampled rows, split halves, a shuffled treatment and with an invented common cause."""
+def _validation_options(body: Any) -> dict:
     opts = _options(body)
-    repeats = (body or {}).get("repeats", 100)
-    if not isinstance(repeats, int) or not 10 <= repeats <= 1000:
-        raise BadRequest("'repeats' must be a whole number from 10 to 1000", code="invalid_field")
-    result = await _run(access, service.stability, repeats=repeats, **opts)
-    access.put_attachment("estimation.stability", result)
-    await access.log("ran the stability checks", kind="estimation")
-    return {"ok": True, "result": result}
+    body = body or {}
+    resamples = body.get("resamples", validation.RESAMPLES)
+    if isinstance(resamples, bool) or not isinstance(resamples, int) or not 20 <= resamples <= 2000:
+        raise BadRequest("'resamples' must be a whole number from 20 to 2000", code="invalid_field")
+    cap = body.get("set_cap", validation.SET_CAP)
+    if isinstance(cap, bool) or not isinstance(cap, int) or not 1 <= cap <= 20:
+        raise BadRequest("'set_cap' must be a whole number from 1 to 20", code="invalid_field")
+    correction = body.get("correction", "holm")
+    if correction not in ("holm", "bh", "none"):
+        raise BadRequest("'correction' must be holm, bh or none", code="invalid_field")
+    return {"method": opts.get("method"), "adjust": opts.get("adjust"), "resamples": resamples, "set_cap": cap,
+            "correction": correction}
+
+
+@router.post("/validation", status_code=202)
+async def create_validation(access: AnalystDep, response: Response, body: Any = Body(None)) -> dict:
+    """Start the checks that can contradict the diagram; poll ``/validation/run`` for progress
+    (202), or with ``"wait": true`` answer with the result when they end (200)."""
+    opts = _validation_options(body)
+    wait = (body or {}).get("wait", False)
+    if not isinstance(wait, bool):
+        raise BadRequest("'wait' must be true or false", code="invalid_field")
+    access.require_stage(*STAGES)
+    if RUNS.is_running(access.session_id, "validation"):
+        raise Conflict("the checks are already running for this session; stop them or wait", code="already_running")
+    info = _data_info(access)
+    fingerprint = _fingerprint(access)
+    diagram = access.diagram()
+    frame = await run_in_threadpool(_frame, access, info)
+    try:  # refuse bad input at once, before anything runs
+        prepared = await run_in_threadpool(service.prepare, diagram, frame, info.get("mapping"),
+                                           opts["method"], opts["adjust"])
+    except (DataError, DiagramError) as exc:
+        raise _refuse(exc) from None
+
+    def work(run):
+        return service.validate(diagram, frame, info.get("mapping"), prepared=prepared, progress=run.progress,
+                                stop=run.stopped, **opts)
+
+    async def finish(run, result):
+        result = service.json_ready(result)
+        result.update(diagram_fingerprint=fingerprint, data_name=info["name"],
+                      data_uploaded_at=info.get("uploaded_at"), seconds=round(time.time() - run.started, 2))
+        access.put_attachment("estimation.validation", result)
+        await access.log(f"checked the diagram against the data: {result['verdict']} "
+                         f"({result['contradicted']} of {result['run']} checks contradict it)", kind="estimation")
+
+    def fail(run, exc):
+        return exc.message if isinstance(exc, (DataError, DiagramError)) else None
+
+    run = RUNS.start(access.session_id, "validation", work, finish, fail)
+    if wait:
+        await RUNS.wait(run)
+        if run.state == "failed":
+            raise AppError(run.message, code="validation_failed", status=422)
+        response.status_code = 200
+        return {"ok": True, "run": run.to_json(), "result": access.get_attachment("estimation.validation")}
+    return {"ok": True, "run": run.to_json()}
+
+
+@router.get("/validation/run")
+def read_validation_run(access: MemberDep) -> dict:
+    """Progress of the latest run of the checks (``null`` when none ran since the server started)."""
+    run = RUNS.get(access.session_id, "validation")
+    return {"ok": True, "run": run.to_json() if run else None}
+
+
+@router.post("/validation/stop")
+async def stop_validation(access: AnalystDep) -> dict:
+    """Stop the running checks; what was stored before stays."""
+    run = RUNS.stop(access.session_id, "validation")
+    if run is None or run.state != "running":
+        raise Conflict("no checks are running for this session", code="not_running")
+    await RUNS.wait(run)
+    await access.log("stopped the checks against the data", kind="estimation")
+    return {"ok": True, "run": run.to_json()}
 
 
 @router.post("/sensitivity")
