@@ -17,7 +17,7 @@ from statsmodels.stats.multitest import multipletests
 
 from app.estimation import validation
 from app.estimation.design import build_design
-from app.graph.identification import identify_effect
+from app.graph.identification import Question, answer_question
 
 from validation_truths import (DETOUR_RIGHT, DETOUR_WRONG, ROWS, SEEDS, detour_frame, diagram,
                                 false_alarm_band)
@@ -26,7 +26,7 @@ IDENTITY = {v: v for v in "abdty"}
 
 
 def _sets(arrows):
-    found = identify_effect(diagram(arrows))
+    found = answer_question(Question.of(diagram(arrows)))
     in_use = found["optimal_adjustment_set"]
     return [in_use] + [s for s in found["minimal_adjustment_sets"] if s != in_use]
 
