@@ -15,7 +15,7 @@ from dataclasses import dataclass
 from ..resources import resource_dir
 
 __all__ = ["SPEC", "text_width", "label_lines", "box_size", "outline", "exit_distance",
-           "route_arrows", "place_badge", "Node", "Route"]
+           "route_arrows", "place_badge", "spread_along", "Node", "Route"]
 
 SPEC_PATH = resource_dir("static") / "visual-spec.json"
 SPEC: dict = json.loads(SPEC_PATH.read_text(encoding="utf-8"))
@@ -195,74 +195,92 @@ def _crossings(a, b, c, boxes) -> int:
     return hits
 
 
-def _spread_ends(nodes: dict[str, Node], arrows: list[tuple[str, str]]) -> list[dict]:
-    """Anchor points: ends meeting one side of a box spread along it, ordered by their other end."""
+def spread_along(values: list[float], gap: float, lo: float, hi: float) -> list[float]:
+    """Spread positions along one side: in order, at least ``gap`` apart, centred where they were, within [lo, hi]."""
+    out: list[float] = []
+    for i, v in enumerate(values):
+        out.append(max(v, out[i - 1] + gap) if i else v)
+    shift = sum(values) / len(values) - sum(out) / len(out)
+    if out[0] + shift < lo:
+        shift = lo - out[0]
+    if out[-1] + shift > hi:
+        shift = hi - out[-1]
+    return [v + shift for v in out]
+
+
+_NORMALS = {"top": (0, -1), "bottom": (0, 1), "left": (-1, 0), "right": (1, 0)}
+
+
+def _detour(nodes: dict[str, Node], a: str, b: str):
+    """None for a straight arrow, else the control point of the smallest curve round the boxes in the way."""
     spec = SPEC["arrows"]
-    groups: dict[str, list] = {}
-    anchors: list[dict] = [{} for _ in arrows]
-    for i, (a, b) in enumerate(arrows):
-        if a not in nodes or b not in nodes or a == b:
-            continue
-        s, t = nodes[a], nodes[b]
-        for node, other, which, name in ((s, t, "from", a), (t, s, "to", b)):
-            side = _side_of(node, other.x - node.x, other.y - node.y)
-            along = other.x if side in ("top", "bottom") else other.y
-            groups.setdefault(f"{name}|{side}", []).append((along, i, which, node, side))
-    corner = SPEC["variables"]["measured"]["corner"]
-    for group in groups.values():
-        group.sort(key=lambda e: (e[0], e[1]))
-        node, side = group[0][3], group[0][4]
-        horizontal = side in ("top", "bottom")
-        usable = max(0.0, (node.width if horizontal else node.height) - 2 * corner)
-        spacing = min(spec["spread"], usable / (len(group) - 1)) if len(group) > 1 else 0.0
-        for k, (_, i, which, _, _) in enumerate(group):
-            offset = (k - (len(group) - 1) / 2) * spacing
-            anchors[i][which] = (node.x + offset, node.y) if horizontal else (node.x, node.y + offset)
-    return anchors
+    s, t = nodes[a], nodes[b]
+    A, B = (s.x, s.y), (t.x, t.y)
+    others = [_footprint(n, spec["clearance"]) for name, n in nodes.items() if name not in (a, b)]
+    best = None
+    hits = _crossings(A, B, None, others)
+    if not hits:
+        return best
+    length = math.hypot(B[0] - A[0], B[1] - A[1]) or 1.0
+    nx, ny = -(B[1] - A[1]) / length, (B[0] - A[0]) / length
+    mx, my = (A[0] + B[0]) / 2, (A[1] + B[1]) / 2
+    for d in spec["detour"]:
+        for sign in (1, -1):
+            # A quadratic curve's middle lies halfway to its control point: bend by 2d.
+            control = (mx + sign * nx * 2 * d, my + sign * ny * 2 * d)
+            h = _crossings(A, B, control, others)
+            if h < hits:
+                best, hits = control, h
+            if not hits:
+                return best
+    return best
 
 
 def route_arrows(nodes: dict[str, Node], arrows: list[tuple[str, str]]) -> list[Route | None]:
     """Where every arrow runs (see static/js/visual.js, routeArrows: the same steps).
 
-    Ends that meet one side of a box are spread along it; an arrow that would cross
-    another box bends round it (the smallest quadratic detour that clears); each end
-    stops the arrow gap short of the outline actually drawn.
+    An arrow that would cross another box bends round it (the smallest quadratic
+    detour that clears); the ends that meet one side of a box are spread along that
+    side, in the order they arrive; each end stops the arrow gap short of the outline
+    actually drawn.
     """
     spec = SPEC["arrows"]
-    anchors = _spread_ends(nodes, arrows)
-    out: list[Route | None] = []
+    missing = object()
+    controls = [_detour(nodes, a, b) if a in nodes and b in nodes and a != b else missing for a, b in arrows]
+    groups: dict[str, list] = {}
+    ends: list[dict] = [{} for _ in arrows]
     for i, (a, b) in enumerate(arrows):
-        if a not in nodes or b not in nodes or a == b:
-            out.append(None)
+        if controls[i] is missing:
             continue
         s, t = nodes[a], nodes[b]
-        A, B = anchors[i]["from"], anchors[i]["to"]
-        others = [_footprint(n, spec["clearance"]) for name, n in nodes.items() if name not in (a, b)]
-        control = None
-        hits = _crossings(A, B, None, others)
-        if hits:
-            length = math.hypot(B[0] - A[0], B[1] - A[1]) or 1.0
-            nx, ny = -(B[1] - A[1]) / length, (B[0] - A[0]) / length
-            mx, my = (A[0] + B[0]) / 2, (A[1] + B[1]) / 2
-            for d in spec["detour"]:
-                for sign in (1, -1):
-                    candidate = (mx + sign * nx * 2 * d, my + sign * ny * 2 * d)
-                    h = _crossings(A, B, candidate, others)
-                    if h < hits:
-                        control, hits = candidate, h
-                    if not hits:
-                        break
-                if not hits:
-                    break
-
-        def cut(node: Node, p, q):
-            length = math.hypot(q[0] - p[0], q[1] - p[1]) or 1.0
-            ux, uy = (q[0] - p[0]) / length, (q[1] - p[1]) / length
-            reach = exit_distance(outline(node), p[0] - node.x, p[1] - node.y, ux, uy) + spec["gap"]
-            return p[0] + ux * reach, p[1] + uy * reach
-
-        x1, y1 = cut(s, A, control or B)
-        x2, y2 = cut(t, B, control or A)
+        for name, node, other, which in ((a, s, t, "from"), (b, t, s, "to")):
+            toward = controls[i] or (other.x, other.y)
+            dx, dy = toward[0] - node.x, toward[1] - node.y
+            side = _side_of(node, dx, dy)
+            length = math.hypot(dx, dy) or 1.0
+            reach = exit_distance(outline(node), 0.0, 0.0, dx / length, dy / length)
+            natural = (dx if side in ("top", "bottom") else dy) / length * reach
+            groups.setdefault(f"{name}|{side}", []).append((natural, i, which, node, side))
+    corner = SPEC["variables"]["measured"]["corner"]
+    for group in groups.values():
+        group.sort(key=lambda e: (e[0], e[1]))
+        node, side = group[0][3], group[0][4]
+        horizontal = side in ("top", "bottom")
+        half = max(0.0, (node.width if horizontal else node.height) / 2 - corner)
+        gap = min(spec["spread"], 2 * half / (len(group) - 1)) if len(group) > 1 else 0.0
+        placed = spread_along([e[0] for e in group], gap, -half, half)
+        nx, ny = _NORMALS[side]
+        poly = outline(node)
+        for k, (_, i, which, _, _) in enumerate(group):
+            ox, oy = (placed[k], 0.0) if horizontal else (0.0, placed[k])
+            reach = exit_distance(poly, ox, oy, nx, ny) + spec["gap"]
+            ends[i][which] = (node.x + ox + nx * reach, node.y + oy + ny * reach)
+    out: list[Route | None] = []
+    for i in range(len(arrows)):
+        if controls[i] is missing:
+            out.append(None)
+            continue
+        (x1, y1), (x2, y2), control = ends[i]["from"], ends[i]["to"], controls[i]
         if control:
             d = f"M{x1:.1f},{y1:.1f} Q{control[0]:.1f},{control[1]:.1f} {x2:.1f},{y2:.1f}"
         else:

@@ -19,7 +19,7 @@ const MARKERS = { drawn: 'head', pending: 'head-pending', disputed: 'head-disput
 export class Canvas {
   /**
    * @param {HTMLElement} host
-   * @param {{onCommand: (c: any) => Promise<any>, onSelect: (s: any) => void, onAddVariable: (x: number, y: number) => void, arrowCommand: (from: string, to: string) => any}} callbacks
+   * @param {{onCommand: (c: any) => Promise<any>, onSelect: (s: any) => void, onAddVariable: (x: number, y: number) => void, arrowCommand: (from: string, to: string) => any, onFit?: (cut: boolean) => void}} callbacks
    */
   constructor(host, callbacks) {
     this.host = host;
@@ -42,6 +42,8 @@ export class Canvas {
     host.append(this.root);
     this.attachPointer();
     this.fitted = false;
+    this.autoFit = true;
+    this.watchSize();
   }
 
   buildDefs() {
@@ -84,31 +86,94 @@ export class Canvas {
     this.view.k = Math.max(0.25, Math.min(3, this.view.k * factor));
     this.view.x = cx - rect.left - before.x * this.view.k;
     this.view.y = cy - rect.top - before.y * this.view.k;
+    this.autoFit = false;
     this.applyView();
   }
 
-  /** Fit the whole diagram into the visible area. */
-  fit() {
-    const variables = this.model?.document?.variables || [];
-    const rect = this.root.getBoundingClientRect();
-    if (!variables.length || !rect.width) { this.view = { x: 40, y: 40, k: 1 }; this.applyView(); return; }
+  /** The smallest and largest zoom Fit uses: labels never drawn smaller than a readable size. */
+  zoomLimits() {
+    const big = document.body.classList.contains('projector');
+    const readable = big ? 15 : 11;  // px on screen for a 15 px label
+    return { min: readable / SPEC.label.size, max: big ? 1.6 : 1.15 };
+  }
+
+  /** The diagram's extent in its own coordinates, captions included. */
+  extent() {
     let minX = Infinity, minY = Infinity, maxX = -Infinity, maxY = -Infinity;
-    for (const v of variables) {
+    for (const v of this.model?.document?.variables || []) {
       const p = this.position(v);
       const { width, height } = this.size(v);
       const half = width / 2 + 40;  // room for the role caption under the box
       minX = Math.min(minX, p.x - half); maxX = Math.max(maxX, p.x + half);
       minY = Math.min(minY, p.y - height / 2 - 24); maxY = Math.max(maxY, p.y + height / 2 + 30);
     }
-    const pad = 30;
-    const top = 56 + pad;
-    const legend = this.host.parentElement?.querySelector('.legend');
-    const bottom = (legend && !legend.hidden ? legend.offsetHeight + 16 : 0) + pad;
-    const usableH = Math.max(120, rect.height - top - bottom);
-    const usableW = rect.width - 2 * pad;
-    const k = Math.max(0.3, Math.min(1.15, Math.min(usableW / (maxX - minX), usableH / (maxY - minY))));
-    this.view = { k, x: pad + (usableW - (maxX - minX) * k) / 2 - minX * k, y: top + (usableH - (maxY - minY) * k) / 2 - minY * k };
+    return { minX, minY, maxX, maxY };
+  }
+
+  /**
+   * Fit the whole diagram into the canvas, at a zoom that keeps its labels readable; when
+   * that cannot show all of it, centre it and say so (callbacks.onFit(true)).
+   */
+  fit() {
+    const variables = this.model?.document?.variables || [];
+    const rect = this.root.getBoundingClientRect();
+    this.autoFit = true;
+    if (!variables.length || !rect.width || !rect.height) {
+      if (!variables.length) { this.view = { x: 40, y: 40, k: 1 }; this.applyView(); }
+      this.callbacks.onFit?.(false);
+      return;
+    }
+    const { minX, minY, maxX, maxY } = this.extent();
+    const pad = Math.min(24, rect.width / 20);
+    const usableW = Math.max(40, rect.width - 2 * pad), usableH = Math.max(40, rect.height - 2 * pad);
+    const limits = this.zoomLimits();
+    const wanted = Math.min(usableW / (maxX - minX), usableH / (maxY - minY));
+    const k = Math.max(limits.min, Math.min(limits.max, wanted));
+    this.view = { k, x: pad + (usableW - (maxX - minX) * k) / 2 - minX * k, y: pad + (usableH - (maxY - minY) * k) / 2 - minY * k };
+    if (wanted < limits.min) this.keepQuestionInView(rect, pad, { minX, minY, maxX, maxY });
     this.applyView();
+    this.callbacks.onFit?.(wanted < limits.min);
+  }
+
+  /** With only part of the diagram in view, make it the part with the treatment and outcome. */
+  keepQuestionInView(rect, pad, extent) {
+    const doc = this.model.document;
+    const names = new Set([...(doc.treatment || []), ...(doc.outcome || [])]);
+    const chosen = doc.variables.filter((v) => names.has(v.name));
+    if (!chosen.length) return;
+    const k = this.view.k;
+    for (const [axis, size, lo, hi] of [['x', rect.width, extent.minX, extent.maxX], ['y', rect.height, extent.minY, extent.maxY]]) {
+      if ((hi - lo) * k <= size - 2 * pad) continue;
+      const spans = chosen.map((v) => {
+        const p = this.position(v), s = this.size(v);
+        const half = axis === 'x' ? s.width / 2 + SPEC.variables.treatment.tip + 12 : s.height / 2 + 30;
+        return [p[axis] - half, p[axis] + half];
+      });
+      const from = Math.min(...spans.map((q) => q[0])), to = Math.max(...spans.map((q) => q[1]));
+      // Centre the question's variables, but never scroll past the diagram's own edges.
+      let offset = size / 2 - ((from + to) / 2) * k;
+      offset = Math.min(pad - lo * k, Math.max(size - pad - hi * k, offset));
+      this.view[axis] = offset;
+    }
+  }
+
+  /** When the canvas changes size (a panel opens, Big text, a rotated phone): fit again if the
+   *  view was fitted, else keep the same point of the diagram in the middle. */
+  watchSize() {
+    let last = null;
+    new ResizeObserver(() => {
+      const rect = this.root.getBoundingClientRect();
+      if (!rect.width || !rect.height) return;
+      if (last && (last.width !== rect.width || last.height !== rect.height)) {
+        if (this.autoFit) this.fit();
+        else {
+          this.view.x += (rect.width - last.width) / 2;
+          this.view.y += (rect.height - last.height) / 2;
+          this.applyView();
+        }
+      } else if (!last && this.model?.document?.variables?.length) this.fit();
+      last = { width: rect.width, height: rect.height };
+    }).observe(this.host);
   }
 
   // -- drawing --------------------------------------------------------------------------
@@ -330,6 +395,7 @@ export class Canvas {
     if (Math.abs(dx) + Math.abs(dy) > 3) drag.moved = true;
     if (drag.kind === 'pan') {
       this.view.x = drag.view.x + dx; this.view.y = drag.view.y + dy;
+      if (drag.moved) this.autoFit = false;
       this.applyView();
     } else if (drag.kind === 'node' && drag.moved) {
       const w = this.toWorld(event.clientX, event.clientY);

@@ -33,7 +33,7 @@ export function renderBar(app) {
     stepper,
     el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
       on: { click: () => showJoinScreen(s.session.join_code) } },
-      el('span', { class: 'muted', text: `${location.host}/join · code ` }), el('strong', { text: s.session.join_code })),
+      el('span', { class: 'muted join-where', text: `${location.host}/join · ` }), el('span', { class: 'muted', text: 'code ' }), el('strong', { text: s.session.join_code })),
     el('div', { class: 'who' }, el('span', { text: `${app.me.name} · ${app.me.roles.join(', ')}` }),
       el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
     app.statusBadge = el('span', { class: `live-status live-${app.status}`, text: statusText(app.status) }));
@@ -123,8 +123,11 @@ export function buildLegend() {
   const sample = (kind, text) => el('li', {},
     svg('svg', { width: 46, height: 24, 'aria-hidden': 'true', class: `legend-sample legend-${kind}` }, samples[kind]()),
     el('span', { text }));
-  return el('aside', { class: 'legend', 'aria-label': 'Legend' },
-    el('h2', { text: 'Legend' }),
+  // Folded on small screens unless someone opened it; the choice is remembered.
+  const remembered = localStorage.getItem('arrowmoot:legend');
+  const open = remembered ? remembered === 'open' : window.innerHeight >= 850 && window.innerWidth >= 1200;
+  const legend = el('details', { class: 'legend', 'aria-label': 'Legend', open },
+    el('summary', { text: 'Legend' }),
     el('ul', {},
       sample('measured', 'measured variable'),
       sample('latent', 'unmeasured (dashed, hatched)'),
@@ -136,6 +139,8 @@ export function buildLegend() {
       sample('proposed', 'proposed arrow (short dashes)'),
       sample('causal', 'causal path shown (solid band)'),
       sample('noncausal', 'non-causal path shown (broken band)')));
+  legend.addEventListener('toggle', () => localStorage.setItem('arrowmoot:legend', legend.open ? 'open' : 'closed'));
+  return legend;
 }
 
 export function showJoinScreen(code) {

@@ -242,7 +242,10 @@ class SessionApp {
     this.canvasHost = el('div', { class: 'canvas-host' });
     this.legend = buildLegend();
     this.banner = el('p', { class: 'stage-banner', hidden: true, role: 'status' });
-    const canvasWrap = el('section', { class: 'canvas-wrap' }, this.toolbar, this.banner, this.canvasHost, this.legend);
+    this.canvasNote = el('p', { class: 'canvas-note', hidden: true });
+    // Toolbar above, banner and legend below: the canvas between them, never under them.
+    const footer = el('div', { class: 'canvas-footer' }, this.banner, this.canvasNote, this.legend);
+    const canvasWrap = el('section', { class: 'canvas-wrap' }, this.toolbar, this.canvasHost, footer);
     this.tabs = el('nav', { class: 'tabs', role: 'tablist' });
     this.panel = el('div', { class: 'panel', role: 'tabpanel' });
     this.estimationPanel = el('div', { id: 'estimation-panel', class: 'panel', hidden: true });
@@ -256,6 +259,10 @@ class SessionApp {
       onSelect: (s) => this.select(s),
       onAddVariable: (x, y) => this.addVariableAt(x, y),
       arrowCommand: (from, to) => this.arrowCommand(from, to),
+      onFit: (cut) => {
+        this.canvasNote.hidden = !cut;
+        this.canvasNote.textContent = cut ? 'Zoomed to keep the labels readable: drag the canvas to see the rest, or zoom out (−).' : '';
+      },
     });
     this.buildToolbar();
     attachKeyboard(this);
@@ -301,7 +308,9 @@ class SessionApp {
     this.canvasHost.classList.toggle('connect-mode', this.canvas.mode === 'connect');
   }
 
-  toggleLegend() { this.legend.hidden = !this.legend.hidden; }
+  toggleLegend() {
+    this.legend.open = !this.legend.open;
+  }
 
   toggleProjector() {
     document.body.classList.toggle('projector');

@@ -160,76 +160,92 @@ function crossings(route, boxes) {
   return hits;
 }
 
+/** Spread positions along one side: in order, at least `gap` apart, centred where they were, within [lo, hi]. */
+export function spreadAlong(values, gap, lo, hi) {
+  const out = [];
+  values.forEach((v, i) => out.push(i ? Math.max(v, out[i - 1] + gap) : v));
+  const mean = (list) => list.reduce((a, b) => a + b, 0) / list.length;
+  let shift = mean(values) - mean(out);
+  if (out[0] + shift < lo) shift = lo - out[0];
+  if (out[out.length - 1] + shift > hi) shift = hi - out[out.length - 1];
+  return out.map((v) => v + shift);
+}
+
+const NORMALS = { top: [0, -1], bottom: [0, 1], left: [-1, 0], right: [1, 0] };
+
 /**
- * Where every arrow runs. Ends that meet one side of a box are spread along it (ordered
- * by where their other end lies, so they do not cross); an arrow that would cross
- * another box bends round it (a quadratic curve, the smallest detour that clears);
- * each end stops the arrow gap short of the outline actually drawn.
+ * Where every arrow runs. An arrow that would cross another box bends round it (a
+ * quadratic curve, the smallest detour that clears); then the ends that meet one side of
+ * a box are spread along that side (in the order they arrive, at most `spread` apart),
+ * and each end stops `gap` short of the outline actually drawn.
  * @param {Map<string, {x: number, y: number, width: number, height: number, treatment?: boolean, adjusted?: boolean}>} nodes
  * @param {{from: string, to: string}[]} arrows
  * @returns {({x1: number, y1: number, x2: number, y2: number, control: number[]|null, d: string}|null)[]}
  */
 export function routeArrows(nodes, arrows) {
   const spec = SPEC.arrows;
-  const ends = new Map();  // "name|side" -> [{arrow index, which end, key along the side}]
-  const anchors = arrows.map(() => ({ from: null, to: null }));
-  arrows.forEach((a, i) => {
-    const s = nodes.get(a.from), t = nodes.get(a.to);
-    if (!s || !t || a.from === a.to) return;
-    for (const [node, other, which] of [[s, t, 'from'], [t, s, 'to']]) {
-      const side = sideOf(node, other.x - node.x, other.y - node.y);
-      const group = `${which === 'from' ? a.from : a.to}|${side}`;
-      const along = side === 'top' || side === 'bottom' ? other.x : other.y;
-      if (!ends.has(group)) ends.set(group, []);
-      ends.get(group).push({ i, which, along, node, side });
-    }
-  });
-  for (const group of ends.values()) {
-    group.sort((p, q) => p.along - q.along || p.i - q.i);
-    const { node, side } = group[0];
-    const horizontal = side === 'top' || side === 'bottom';
-    const corner = SPEC.variables.measured.corner;
-    const usable = Math.max(0, horizontal ? node.width - 2 * corner : node.height - 2 * corner);
-    const spacing = group.length > 1 ? Math.min(spec.spread, usable / (group.length - 1)) : 0;
-    group.forEach((end, k) => {
-      const offset = (k - (group.length - 1) / 2) * spacing;
-      anchors[end.i][end.which] = horizontal ? [node.x + offset, node.y] : [node.x, node.y + offset];
-    });
-  }
   const names = [...nodes.keys()];
-  return arrows.map((a, i) => {
+  const controls = arrows.map((a) => {
     const s = nodes.get(a.from), t = nodes.get(a.to);
-    if (!s || !t || a.from === a.to) return null;
-    const A = anchors[i].from, B = anchors[i].to;
+    if (!s || !t || a.from === a.to) return undefined;
+    const A = [s.x, s.y], B = [t.x, t.y];
     const others = names.filter((n) => n !== a.from && n !== a.to).map((n) => footprint(nodes.get(n), spec.clearance));
-    let route = { from: A, to: B, control: null };
-    let hits = crossings(route, others);
-    if (hits) {
-      const length = Math.hypot(B[0] - A[0], B[1] - A[1]) || 1;
-      const nx = -(B[1] - A[1]) / length, ny = (B[0] - A[0]) / length;
-      const mx = (A[0] + B[0]) / 2, my = (A[1] + B[1]) / 2;
-      for (const d of spec.detour) {
-        for (const sign of [1, -1]) {
-          // A quadratic curve's middle lies halfway to its control point: bend by 2d.
-          const candidate = { from: A, to: B, control: [mx + sign * nx * 2 * d, my + sign * ny * 2 * d] };
-          const h = crossings(candidate, others);
-          if (h < hits) { route = candidate; hits = h; }
-          if (!hits) break;
-        }
-        if (!hits) break;
+    let best = null;
+    let hits = crossings({ from: A, to: B, control: null }, others);
+    if (!hits) return best;
+    const length = Math.hypot(B[0] - A[0], B[1] - A[1]) || 1;
+    const nx = -(B[1] - A[1]) / length, ny = (B[0] - A[0]) / length;
+    const mx = (A[0] + B[0]) / 2, my = (A[1] + B[1]) / 2;
+    for (const d of spec.detour) {
+      for (const sign of [1, -1]) {
+        // A quadratic curve's middle lies halfway to its control point: bend by 2d.
+        const control = [mx + sign * nx * 2 * d, my + sign * ny * 2 * d];
+        const h = crossings({ from: A, to: B, control }, others);
+        if (h < hits) { best = control; hits = h; }
+        if (!hits) return best;
       }
     }
-    const towardStart = route.control || B, towardEnd = route.control || A;
-    const cut = (node, [px, py], [qx, qy]) => {
-      const length = Math.hypot(qx - px, qy - py) || 1;
-      const ux = (qx - px) / length, uy = (qy - py) / length;
-      const reach = exitDistance(outline(node, node), px - node.x, py - node.y, ux, uy) + spec.gap;
-      return [px + ux * reach, py + uy * reach];
-    };
-    const [x1, y1] = cut(s, A, towardStart);
-    const [x2, y2] = cut(t, B, towardEnd);
-    const f = (n) => n.toFixed(1);
-    const control = route.control;
+    return best;
+  });
+  // Each end leaves its box towards the curve's control point, or the other box.
+  const groups = new Map();
+  const ends = arrows.map(() => ({}));
+  arrows.forEach((a, i) => {
+    if (controls[i] === undefined) return;
+    const s = nodes.get(a.from), t = nodes.get(a.to);
+    for (const [name, node, other, which] of [[a.from, s, t, 'from'], [a.to, t, s, 'to']]) {
+      const toward = controls[i] || [other.x, other.y];
+      const dx = toward[0] - node.x, dy = toward[1] - node.y;
+      const side = sideOf(node, dx, dy);
+      const length = Math.hypot(dx, dy) || 1;
+      const reach = exitDistance(outline(node, node), 0, 0, dx / length, dy / length);
+      const natural = side === 'top' || side === 'bottom' ? (dx / length) * reach : (dy / length) * reach;
+      const key = `${name}|${side}`;
+      if (!groups.has(key)) groups.set(key, []);
+      groups.get(key).push({ i, which, natural, node, side });
+    }
+  });
+  const corner = SPEC.variables.measured.corner;
+  for (const group of groups.values()) {
+    group.sort((p, q) => p.natural - q.natural || p.i - q.i);
+    const { node, side } = group[0];
+    const horizontal = side === 'top' || side === 'bottom';
+    const half = Math.max(0, (horizontal ? node.width : node.height) / 2 - corner);
+    const gap = group.length > 1 ? Math.min(spec.spread, (2 * half) / (group.length - 1)) : 0;
+    const placed = spreadAlong(group.map((e) => e.natural), gap, -half, half);
+    const [nx, ny] = NORMALS[side];
+    const poly = outline(node, node);
+    group.forEach((end, k) => {
+      const ox = horizontal ? placed[k] : 0, oy = horizontal ? 0 : placed[k];
+      const reach = exitDistance(poly, ox, oy, nx, ny) + spec.gap;
+      ends[end.i][end.which] = [node.x + ox + nx * reach, node.y + oy + ny * reach];
+    });
+  }
+  const f = (n) => n.toFixed(1);
+  return arrows.map((a, i) => {
+    if (controls[i] === undefined) return null;
+    const [x1, y1] = ends[i].from, [x2, y2] = ends[i].to;
+    const control = controls[i];
     const d = control ? `M${f(x1)},${f(y1)} Q${f(control[0])},${f(control[1])} ${f(x2)},${f(y2)}`
       : `M${f(x1)},${f(y1)} L${f(x2)},${f(y2)}`;
     return { x1, y1, x2, y2, control, d };
