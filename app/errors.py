@@ -116,7 +116,24 @@ def _render(request, message: str, status: int, code: str, **extra: Any):
     )
 
 
+def _describe_json_error(err: dict, body: Any) -> str:
+    """A body that is not JSON, in words: what is wrong and where (line, column)."""
+    why = str((err.get("ctx") or {}).get("error") or "it cannot be read")
+    pos = next((p for p in err.get("loc", ()) if isinstance(p, int) and not isinstance(p, bool)), None)
+    where = ""
+    if pos is not None:
+        text = body.decode("utf-8", "replace") if isinstance(body, (bytes, bytearray)) else str(body or "")
+        line = text.count("\n", 0, pos) + 1
+        column = pos - (text.rfind("\n", 0, pos) + 1) + 1
+        where = f" at line {line}, column {column}"
+    return (f"the request body is not valid JSON{where}: {why[:1].lower() + why[1:]}. "
+            "Send one JSON object, with double quotes around every name and text value")
+
+
 def _describe_validation(exc) -> str:
+    json_error = next((e for e in exc.errors() if e.get("type") == "json_invalid"), None)
+    if json_error is not None:
+        return _describe_json_error(json_error, getattr(exc, "body", None))
     parts = []
     for err in exc.errors()[:5]:
         loc = [str(p) for p in err.get("loc", ()) if p not in ("body",)]
@@ -131,7 +148,7 @@ def install_error_handlers(app) -> None:
     from starlette.exceptions import HTTPException as StarletteHTTPException
     @app.exception_handler(AppError)
     async def handle_app_error(request: Request, exc: AppError):
-        extra = {"cycle": exc.cycle} if getattr(exc, "cycle", None) else {}
+        extra = {k: getattr(exc, k) for k in ("cycle", "retry_after") if getattr(exc, k, None)}
         return _render(request, exc.message, exc.status, exc.code, **extra)
 
     @app.exception_handler(DiagramError)

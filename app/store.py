@@ -133,9 +133,12 @@ class Store:
     def save_change(
         self, *, session_id: str, state: dict, revision: int, event: dict,
         token_hash: str | None = None, member_id: str | None = None,
-        mark_undone: int | None = None,
+        mark_undone: int | None = None, replaces: int | None = None,
     ) -> None:
-        """Store the new state and its event (and a new member's token) atomically."""
+        """Store the new state and its event (and a new member's token) atomically.
+
+        ``replaces`` names the revision of an event the new one stands for (a burst of
+        moves folded into one history entry): that event is removed."""
         now = time.time()
         with self._transaction() as conn:
             cur = conn.execute(
@@ -159,6 +162,9 @@ class Store:
                     data["undone"] = True
                     conn.execute("UPDATE events SET data = ? WHERE seq = ?",
                                  (json.dumps(data), row["seq"]))
+            if replaces is not None:
+                conn.execute("DELETE FROM events WHERE session_id = ? AND revision = ?",
+                             (session_id, replaces))
             self._insert_event(conn, session_id, event)
 
     @staticmethod

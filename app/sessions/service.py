@@ -32,6 +32,7 @@ from ..workshop.models import Member, Workshop
 from . import keys
 from .analysis import AnalysisRunner
 from .data import DATA_KEY, data_info, stored_name
+from .pacing import CommandPacer, folds_into
 
 __all__ = ["Sessions", "READ_ONLY_KEY", "SOURCE_KEY", "IMPORT_MODES"]
 
@@ -56,6 +57,7 @@ class Sessions:
         self._keyed: dict[str, tuple[int, dict[str, Event]]] = {}
         self._listeners: list[Listener] = []
         self._load_lock = threading.Lock()
+        self.pacer = CommandPacer()
 
     def subscribe(self, listener: Listener) -> None:
         """Call ``listener(workshop, event)`` after every stored change."""
@@ -282,10 +284,20 @@ class Sessions:
                 earlier = self._find_keyed(session_id, f"{member.id}:{key}")
                 if earlier is not None:
                     return dict(earlier, replayed=True)  # type: ignore[return-value]
-            event = apply_command(w, w.members.get(member.id, member), command, now=time.time())
+            self.pacer.take(session_id, member.id, command)
+            now = time.time()
+            previous = w.log[-1] if w.log else None
+            event = apply_command(w, w.members.get(member.id, member), command, now=now)
             if key is not None:
                 event["key"] = f"{member.id}:{key}"
-            self._save(w, event, mark_undone=event.get("undoes"))
+            replaces = None
+            if folds_into(previous, member.id, command, now):
+                # One history entry for a burst of moves of one variable by one member.
+                replaces = previous["revision"]
+                event["keys"] = previous.get("keys", []) + ([previous["key"]] if "key" in previous else [])
+                w.log.remove(previous)
+                self._keyed.pop(session_id, None)
+            self._save(w, event, mark_undone=event.get("undoes"), replaces=replaces)
         self._changed(w, event)
         return event
 
@@ -298,6 +310,8 @@ class Sessions:
         for event in w.log[seen_len:]:
             if "key" in event:
                 table[event["key"]] = event
+            for folded in event.get("keys", ()):  # keys of moves folded into this one
+                table[folded] = event
         self._keyed[session_id] = (len(w.log), table)
         return table.get(full_key)
 

@@ -49,7 +49,8 @@ def _origin_allowed(websocket: WebSocket) -> bool:
 def _error(exc: AppError, msg_id=None) -> str:
     return json.dumps({"type": "error", "id": msg_id, "ok": False, "error": exc.message,
                        "status": exc.status, "code": exc.code,
-                       **({"cycle": exc.cycle} if getattr(exc, "cycle", None) else {})})
+                       **({"cycle": exc.cycle} if getattr(exc, "cycle", None) else {}),
+                       **({"retry_after": exc.retry_after} if getattr(exc, "retry_after", None) else {})})
 
 
 @router.websocket("/ws/sessions/{session_id}")
@@ -97,7 +98,14 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
         else:
             sessions.analysis.schedule(session_id)
         while True:
-            text = await websocket.receive_text()
+            try:
+                text = await websocket.receive_text()
+            except RuntimeError:
+                # The connection was closed from this side (its send queue overflowed,
+                # so the page reconnects and resyncs): nothing more to read.
+                if conn.closed:
+                    break
+                raise
             if len(text) > limit:
                 conn.send(_error(AppError(f"a message is limited to {limit // 1024} KB; this one "
                                           f"is {len(text) // 1024} KB and was ignored",

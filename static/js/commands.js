@@ -7,6 +7,7 @@ import { confirmStep } from './dialogs.js';
 import { disputeTitle } from './panels.js';
 
 const LOCKED = new Set(['agreed', 'estimation']);
+const NUDGE_QUIET_MS = 150;
 const arrowKey = (from, to) => JSON.stringify([from, to]);
 
 /** Drawing an arrow: a proposal for the room while debating, a plain arrow before. */
@@ -80,7 +81,14 @@ export function reverseSelection(app) {
 export function nudgeSelection(app, dx, dy) {
   const v = selectedVariable(app);
   if (!v) return false;
-  app.send({ type: 'move_variable', name: v.name, x: (v.x || 0) + dx, y: (v.y || 0) + dy }).catch(() => {});
+  // Shown at once; key repeats within a moment go out as one move of the latest position.
+  v.x = (v.x || 0) + dx;
+  v.y = (v.y || 0) + dy;
+  app.renderCanvas();
+  clearTimeout(app.nudgeTimer);
+  app.nudgeTimer = setTimeout(() => {
+    app.send({ type: 'move_variable', name: v.name, x: v.x, y: v.y }).catch(() => {});
+  }, NUDGE_QUIET_MS);
   return true;
 }
 

@@ -129,8 +129,20 @@ class SessionApp {
   }
 
   /** Send a command; show the server's message when it is refused. */
-  send(command) {
-    return this.live.send(command).catch((err) => {
+  send(command, retried = false) {
+    // After the server said "too fast", wait out its pause before sending anything.
+    const wait = (this.backoffUntil || 0) - Date.now();
+    const sent = wait > 0 ? new Promise((r) => setTimeout(r, wait)).then(() => this.live.send(command)) : this.live.send(command);
+    return sent.catch((err) => {
+      if (err.code === 'too_many_commands' && !retried) {
+        const seconds = err.retry_after ?? err.body?.retry_after ?? 1;
+        this.backoffUntil = Date.now() + seconds * 1000;
+        if (!this.backoffNoted || Date.now() - this.backoffNoted > 5000) {
+          this.backoffNoted = Date.now();
+          toast('Changes are going out faster than the room can follow; this page now sends them a little slower.', 'info');
+        }
+        return this.send(command, true);
+      }
       toast(err.message || String(err), 'error');
       throw err;
     });
