@@ -152,7 +152,9 @@ def test_disputes_default_to_the_rooms_disputed_arrows(tmp_path):
         result = client.post(f"{base}/disputes", json={}, headers=headers).json()["result"]
         assert result["disputed"][0]["pair"] == ["bike_lease", "fitness"]  # the pair, in name order
         estimates = {r["label"]: r["estimate"] for r in result["rows"]}
-        assert len(estimates) == 2 and len(set(round(v, 6) for v in estimates.values())) == 2
+        assert set(estimates) == {"fitness→bike_lease", "no bike_lease–fitness arrow"}
+        # fitness causes sick_days either way, so the most efficient set keeps it in both rows
+        assert len({tuple(r["adjustment_set"]) for r in result["rows"]}) == 1
 
 
 @pytest.mark.parametrize("method, path, body", [

@@ -116,6 +116,10 @@ def make_plan(diagram: Diagram, mapping: dict[str, str], *, adjust: list[str] | 
         if analysis["optimal_adjustment_set"] is not None:
             plan.adjustment_set = list(analysis["optimal_adjustment_set"])
             plan.notes.append("adjusting for the optimal set (smallest variance among valid sets)")
+        elif analysis.get("best_minimal_set") is not None:
+            plan.adjustment_set = list(analysis["best_minimal_set"])
+            plan.notes.append(analysis["optimal_note"])
+            plan.notes.append("adjusting for the minimal set with the smallest variance among the minimal sets")
         else:
             plan.adjustment_set = list(analysis["minimal_adjustment_sets"][0])
             if analysis.get("optimal_note"):

@@ -51,6 +51,7 @@ from dataclasses import dataclass
 from itertools import combinations
 from typing import Iterable
 
+from . import efficiency
 from .dag import Dag
 from .document import Diagram
 from .errors import BadQuestion
@@ -67,6 +68,7 @@ __all__ = [
     "is_adjustment_set",
     "minimal_adjustment_sets",
     "optimal_adjustment_set",
+    "most_efficient_minimal_set",
     "front_door_sets",
     "is_front_door_set",
     "instruments",
@@ -278,12 +280,8 @@ def optimal_adjustment_set(q: Question, any_valid: bool | None = None) -> tuple[
     if not any_valid:
         return None, "no adjustment set over measured variables exists, so there is no optimal one"
     hidden = sorted(o_set - q.observed)
-    if hidden:
-        return None, (
-            "the optimal set would contain unmeasured "
-            + ", ".join(hidden)
-            + "; use one of the minimal adjustment sets instead"
-        )
+    if hidden and q.cn:
+        return _optimal_among_measured(q, hidden)
     if not q.cn:
         return None, (
             "the diagram has no causal path from treatment to outcome, "
@@ -295,6 +293,44 @@ def optimal_adjustment_set(q: Question, any_valid: bool | None = None) -> tuple[
         "parents of the mediators and the outcome that are not themselves affected by the "
         "treatment; among valid sets it gives the smallest variance for linear estimators"
     )
+
+
+def _optimal_among_measured(q: Question, hidden: list[str]) -> tuple[list[str] | None, str]:
+    """The optimal set when pa(cn) \\ forb has unmeasured variables (:mod:`app.graph.efficiency`)."""
+    parents, extension = efficiency.measured_optimal_candidate(
+        q.dag, set(q.xs), set(q.ys), set(q.observed), set(q.cn), set(q.forb))
+    candidate = parents | extension
+    unmeasured = ", ".join(hidden)
+    why = ("the measured parents of the mediators and the outcome (through unmeasured variables too)"
+           + (f", and {q.name_set(extension)}, which share an unmeasured cause with them or with those"
+              if extension else ""))
+    if is_adjustment_set(q, candidate):
+        verdict = efficiency.is_candidate_optimal(q.dag, set(q.xs), candidate,
+                                                  lambda zs: is_adjustment_set(q, zs))
+        if verdict:
+            return sorted(candidate), (
+                f"the unmeasured {unmeasured} cannot be adjusted for; among measured variables this set "
+                f"gives the smallest variance for linear estimators: {why}"
+            )
+        if verdict is None:
+            return None, (f"the unmeasured {unmeasured} cannot be adjusted for, and the best measured set "
+                          f"was not decided: its {len(candidate)} candidates are too many to compare")
+    return None, (
+        f"the unmeasured {unmeasured} cannot be adjusted for, and no measured set has the smallest "
+        "variance in every linear model: which is best depends on the strengths of the arrows"
+    )
+
+
+def most_efficient_minimal_set(q: Question, sets: list[list[str]]) -> tuple[list[str] | None, str]:
+    """Among the minimal adjustment sets, one at least as efficient as each of the others
+    in every linear model (Henckel et al. 2022, graphical comparison), with the reason."""
+    if len(sets) < 2:
+        return (list(sets[0]), "the only minimal adjustment set") if sets else (None, "")
+    best = efficiency.most_efficient_minimal(q.dag, set(q.xs), set(q.ys), sets)
+    if best is None:
+        return None, "no minimal set is more efficient than the others in every linear model"
+    return best, ("among the minimal sets, the one with the smallest variance for linear estimators "
+                  "(it predicts the outcome at least as well and the treatment no better)")
 
 
 # ---------------------------------------------------------------------------
@@ -592,10 +628,14 @@ def _identify(q: Question, set_cap: int) -> dict:
         "more_sets_exist": more,
         "optimal_adjustment_set": optimal,
         "optimal_note": note,
+        "best_minimal_set": None,
+        "best_minimal_note": "",
         "front_door_sets": [],
         "front_door_more": False,
         "instruments": [],
     }
+    if sets and optimal is None and q.cn:
+        out["best_minimal_set"], out["best_minimal_note"] = most_efficient_minimal_set(q, sets)
     if sets:
         out["identifiable"], out["strategy"] = True, "adjustment"
         out["instruments"] = instruments(q, conditional=False)
@@ -650,6 +690,8 @@ def _summary(q: Question, out: dict) -> str:
             return lead + f"The effect of {x} on {y} is identified without adjusting for anything."
         best = out["optimal_adjustment_set"]
         tail = f" The most precise valid set is {q.name_set(best)}." if best is not None else ""
+        if best is None and out.get("best_minimal_set") is not None:
+            tail = f" Among the minimal sets, {q.name_set(out['best_minimal_set'])} is the most precise."
         return lead + (
             f"The effect of {x} on {y} is identified by adjustment; "
             f"{n} minimal adjustment set(s), e.g. {q.name_set(sets[0])}.{tail}"

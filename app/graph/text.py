@@ -27,6 +27,9 @@ def format_analysis(result: dict) -> str:
     optimal = result["optimal_adjustment_set"]
     lines.append("The most precise set to adjust for: " + (_set(optimal) if optimal is not None else "none"))
     lines.append(f"  {result['optimal_note']}")
+    if optimal is None and result.get("best_minimal_set") is not None:
+        lines.append("Most precise minimal set: " + _set(result["best_minimal_set"]))
+        lines.append(f"  {result['best_minimal_note']}")
     if result.get("front_door_sets"):
         lines.append("Through mediators (front-door criterion): " + ", ".join(_set(s) for s in result["front_door_sets"]))
     if result.get("instruments"):

@@ -65,6 +65,10 @@ export function renderAnalysis(app) {
   if (a.optimal_adjustment_set) box.append(setChips(app, [a.optimal_adjustment_set], 'the optimal set'));
   else box.append(el('p', { class: 'muted', text: 'none' }));
   if (a.optimal_note) box.append(el('p', { class: 'note', text: a.optimal_note }));
+  if (!a.optimal_adjustment_set && a.best_minimal_set) {
+    box.append(setChips(app, [a.best_minimal_set], 'the most precise minimal set'));
+    box.append(el('p', { class: 'note', text: a.best_minimal_note }));
+  }
   if (a.front_door_sets?.length) {
     box.append(el('h3', { text: 'Through mediators (front-door criterion)' }));
     box.append(el('ul', {}, a.front_door_sets.map((s) => el('li', { text: `{ ${s.join(', ')} }` }))));
