@@ -173,8 +173,9 @@ class CommonSets:
 
     ``method``: "fullest" (one fullest combination), "search" (several), "none" (every
     combination has a cycle), "too-many" (more than FULLEST_CAP fullest combinations).
-    ``reason`` for "search": "none-allowed", "none-somewhere", "exhausted", "time" or
-    "cap"; ``checked_size``: every set of at most this many variables was checked.
+    ``reason`` for "search": "verified" (found from ``consulted`` of the fullest
+    diagrams and checked in all), "none-allowed", "none-somewhere", "exhausted", "time"
+    or "cap"; ``checked_size``: every set of at most this many variables was checked.
     """
 
     sets: list[list[str]]
@@ -188,6 +189,7 @@ class CommonSets:
     pool_size: int = 0
     checked_size: int = -1
     shrunk: list[str] | None = None
+    consulted: int = 0
 
 
 @dataclass
@@ -377,22 +379,61 @@ def common_adjustment_sets(fixed_dag: Dag, disputes: list[Dispute], xs: set[str]
         return CommonSets(sets, not more, "fullest", drawn=len(fullest[0]),
                           dispute_count=len(disputes), more=more)
     questions = [Question.on_dag(fixed_dag.with_edges(edges), xs, ys, observed) for edges in fullest]
-    return _CommonSearch(fixed_dag, questions, xs, ys, observed).run()
+    return _common_by_refinement(fixed_dag, questions, xs, ys, observed)
+
+
+def _common_by_refinement(fixed_dag: Dag, questions: list[Question], xs: set[str], ys: set[str],
+                          observed: set[str]) -> CommonSets:
+    """The sets valid in every fullest diagram, found from a few of them.
+
+    Let M(D) be the minimal sets (over variables allowed in every diagram) valid in
+    each diagram of D. If every set of M(D) is valid in all diagrams, M(D) is the
+    answer: a set S minimal among those valid everywhere is valid in D, so it contains
+    some T in M(D); T is valid everywhere, so S = T; and T is minimal everywhere since
+    a smaller set valid everywhere would be valid in D. If M(D) is empty, no set is
+    valid everywhere. Otherwise a diagram in which a set of M(D) fails joins D, and the
+    search repeats (at most once per diagram). This proof replaces a time budget
+    whenever each M(D) is found exactly; if not, the search over all diagrams decides.
+    """
+    forbidden = set().union(*(q.forb for q in questions))
+    started = time.perf_counter()
+    chosen = [questions[0]]
+    while True:
+        result = _CommonSearch(fixed_dag, list(chosen), xs, ys, observed, forbidden, started,
+                               COMMON_SEARCH_BUDGET_S / 2).run()
+        if not result.complete:
+            break
+        failing = []
+        for zs in result.sets:
+            bad = next((q for q in questions if not is_adjustment_set(q, zs)), None)
+            if bad is not None and all(bad is not c for c in chosen + failing):
+                failing.append(bad)
+        if not failing:
+            result.fullest_count, result.consulted = len(questions), len(chosen)
+            if result.sets or result.reason == "exhausted":
+                result.reason = "verified"
+            return result
+        chosen.extend(failing)
+    return _CommonSearch(fixed_dag, questions, xs, ys, observed, forbidden).run()
 
 
 class _CommonSearch:
     """The sets valid in each of several fullest diagrams, searched by size."""
 
     def __init__(self, fixed_dag: Dag, questions: list[Question], xs: set[str],
-                 ys: set[str], observed: set[str]):
+                 ys: set[str], observed: set[str], forbidden: set[str] | None = None,
+                 started: float | None = None, budget: float = COMMON_SEARCH_BUDGET_S):
         self.questions, self.xs, self.ys = questions, xs, ys
-        self.pool = self._pool(fixed_dag, observed)
+        if forbidden is None:
+            forbidden = set().union(*(q.forb for q in questions))
+        self.pool = self._pool(fixed_dag, observed, forbidden)
         self.found: list[frozenset] = []
-        self.started = time.perf_counter()
+        self.started = time.perf_counter() if started is None else started
+        self.budget = budget
 
-    def _pool(self, fixed_dag: Dag, observed: set[str]) -> list[str]:
-        """Measured variables connected to X u Y in some diagram and allowed in all."""
-        forbidden = set().union(*(q.forb for q in self.questions))
+    def _pool(self, fixed_dag: Dag, observed: set[str], forbidden: set[str]) -> list[str]:
+        """Measured variables connected to X u Y in some diagram and allowed in all
+        (``forbidden``: forbidden in at least one fullest diagram)."""
         neighbours: dict[str, set[str]] = {n: set() for n in fixed_dag.children}
         for q in self.questions:
             for a, cs in q.dag.children.items():
@@ -422,14 +463,14 @@ class _CommonSearch:
         return True
 
     def _out_of_time(self) -> bool:
-        return time.perf_counter() - self.started > COMMON_SEARCH_BUDGET_S
+        return time.perf_counter() - self.started > self.budget
 
     def _guides(self) -> tuple[list[frozenset], list[list[frozenset]]] | None:
         """Anchors to grow and the other diagrams' complete minimal-set lists; None when
         some diagram has no adjustment set at all."""
         lists: list[list[frozenset]] = []
         for q in self.questions[:ANCHOR_DIAGRAMS]:
-            if time.perf_counter() - self.started > COMMON_SEARCH_BUDGET_S / 2:
+            if time.perf_counter() - self.started > self.budget / 2:
                 break
             sets, more = minimal_adjustment_sets(q)
             if not more:

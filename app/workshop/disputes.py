@@ -107,6 +107,12 @@ def _search_note(c: CommonSets) -> str:
     base = (f"Adding an arrow never makes an invalid adjustment set valid, so a set is valid in every "
             f"combination exactly when it is valid in each of the {c.fullest_count} fullest ones (the "
             f"disputed directions combined). ")
+    if c.reason == "verified":
+        if not c.sets:
+            return base + (f"Exact: no set is valid even in {c.consulted} of them, so none is valid in all.")
+        return base + (f"Exact: these are the minimal sets valid in {c.consulted} of them, chosen where "
+                       "earlier candidates failed, and each is valid in all of them; any set valid in all "
+                       "contains one of these.")
     if c.complete:
         return base + ("The search reached every candidate among the "
                        f"{c.pool_size} variables allowed in all of them: the list is exact.")
