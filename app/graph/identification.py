@@ -280,8 +280,14 @@ def optimal_adjustment_set(q: Question, any_valid: bool | None = None) -> tuple[
     if not any_valid:
         return None, "no adjustment set over measured variables exists, so there is no optimal one"
     hidden = sorted(o_set - q.observed)
-    if hidden and q.cn:
+    if hidden and q.cn and len(q.xs) == 1 and len(q.ys) == 1:
         return _optimal_among_measured(q, hidden)
+    if hidden:
+        return None, (
+            "the optimal set would contain unmeasured "
+            + ", ".join(hidden)
+            + "; with several treatments or outcomes use one of the minimal adjustment sets"
+        )
     if not q.cn:
         return None, (
             "the diagram has no causal path from treatment to outcome, "
@@ -679,6 +685,8 @@ def analyze(
 
 def _summary(q: Question, out: dict) -> str:
     x, y = ", ".join(sorted(q.xs)), ", ".join(sorted(q.ys))
+    if len(q.xs) > 1:
+        x = f"{q.name_set(q.xs)} (jointly)"
     if not q.cn:
         lead = f"The diagram has no causal path from {x} to {y}: it says the effect is zero. "
     else:
