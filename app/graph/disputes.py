@@ -99,6 +99,7 @@ class Dispute:
         return cls(cast("tuple[str, str]", tuple(pair)), opts, current)
 
     def arrows(self) -> list[Edge]:
+        """The arrows this dispute offers (its options other than "no arrow")."""
         return [o for o in self.options if o is not None]
 
 
@@ -143,6 +144,8 @@ class OptionEffect:
 
 @dataclass
 class DisputeEffects:
+    """One dispute and what each of its options does, the other disputes as drawn."""
+
     dispute: Dispute
     effects: list[OptionEffect]
 
@@ -194,6 +197,8 @@ class CommonSets:
 
 @dataclass
 class DisputeAnalysis:
+    """Everything :func:`analyse_disputes` finds."""
+
     items: list[DisputeEffects]
     combinations: CombinationCheck
     common: CommonSets
@@ -454,6 +459,7 @@ class _CommonSearch:
                           pool_size=len(self.pool), checked_size=checked_size)
 
     def valid_everywhere(self, zs: set[str]) -> bool:
+        """Is ``zs`` an adjustment set in every diagram of the search?"""
         # Most sets fail somewhere; ask the diagram that refused the last one first.
         for i, q in enumerate(self.questions):
             if not is_adjustment_set(q, zs):
@@ -490,6 +496,7 @@ class _CommonSearch:
         return anchors, others
 
     def run(self) -> CommonSets:
+        """The search: emptiness checks, then growth by size, then shrinking beyond it."""
         # Within the variables allowed everywhere, a diagram has a valid set only if its
         # ancestors of X u Y among them form one (van der Zander et al. 2019, with the
         # allowed variables restricted): if one diagram has none, none is valid everywhere.
@@ -781,6 +788,7 @@ class _InstrumentCheck:
         self.watch = set(self.old) | {z for z in instrument_candidates(q)
                                       if z not in self.old and is_separable_from_outcome(q, z)}
         self.outcome_ancestors = q.dag.ancestors(q.ys)
+        self.fragile = {z: _Fragility(q, z, set(given), set(q.ys)) for z, given in self.old.items()}
 
     def affected(self, dag: Dag, v: str) -> set[str] | None:
         """Variables whose status an arrow into v may change (None: all of them)."""
@@ -788,19 +796,28 @@ class _InstrumentCheck:
             return None
         return set(self.watch) if v in self.outcome_ancestors else self.watch & dag.descendants([v])
 
+    def _untouched(self, z: str, u: str, v: str) -> bool:
+        """Is z surely still an instrument given its listed set after adding u -> v?"""
+        return not self.fragile[z].may_break(u, v)
+
     def change(self, q: Question, u: str, v: str, affected: set[str] | None) -> AbsentArrow | None:
         if affected is None:
             new = {i["instrument"]: i["given"] for i in instruments(q)}
-            affected = set(new) | set(self.old)
+            affected = rechecked = set(new) | set(self.old)
         else:
             new = {z: g for z, g in self.old.items() if z not in affected}
+            rechecked = set()
             for z in affected:
+                if z in self.old and (self._untouched(z, u, v) or is_instrument(q, z, self.old[z])):
+                    new[z] = self.old[z]  # still an instrument given the same set
+                    continue
+                rechecked.add(z)
                 entry = instrument_for(q, z)
                 if entry is not None:
                     new[z] = entry["given"]
         lost = [[z, *self.old[z]] for z in sorted(affected) if z in self.old and z not in new]
         regiven = [(z, self.old[z], new[z]) for z in sorted(affected) if z in self.old and z in new
-                   and not is_instrument(q, z, self.old[z])]
+                   and z in rechecked and not is_instrument(q, z, self.old[z])]
         gained = [[z, *new[z]] for z in sorted(new) if z not in self.old]
         if not (lost or regiven or gained):
             return None
@@ -810,6 +827,61 @@ class _InstrumentCheck:
         if not new:
             return AbsentArrow(u, v, broken, "none-left", None)
         return AbsentArrow(u, v, broken, "instruments", regiven=regiven, gained=gained)
+
+
+def _ball(dag: Dag, sources: set[str], given: set[str]) -> set[tuple[str, bool]]:
+    """The states (node, arrived from a child) of the d-separation search from ``sources``
+    given ``given`` (as in :meth:`Dag.d_connected`)."""
+    opened = dag.ancestors(given)
+    stack = [(s, True) for s in sources]
+    seen: set[tuple[str, bool]] = set()
+    while stack:
+        state = stack.pop()
+        if state in seen:
+            continue
+        seen.add(state)
+        v, upward = state
+        if v not in given:
+            stack.extend((c, False) for c in dag.children[v])
+            if upward:
+                stack.extend((p, True) for p in dag.parents[v])
+        elif not upward:
+            stack.extend((p, True) for p in dag.parents[v])
+        if not upward and v not in given and v in opened:
+            stack.extend((p, True) for p in dag.parents[v])
+    return seen
+
+
+class _Fragility:
+    """Which added arrows could break "z is an instrument given W".
+
+    After adding u -> v: z stays d-connected to x given W (extra arrows never block a
+    path); W and z stay non-descendants of x unless v is an ancestor of one of them;
+    the new proper back-door graph is a subgraph of the old one plus the arrow. So z
+    stays d-separated from Y given W unless v is in an(W u {z}) (new ancestors of W
+    open colliders) or a new path runs through the arrow: z reaches u and Y reaches v
+    from one of v's children (z ... u -> v ... Y), or z reaches v from a child and Y
+    reaches u (z ... v <- u ... Y), each outside W. One search from z and one from Y,
+    then O(1) per arrow.
+    """
+
+    def __init__(self, q: Question, z: str, given: set[str], ys: set[str]):
+        self.given, self.z, self.ys = given, z, ys
+        self.up_of_w = q.dag.ancestors(given | {z})
+        self.from_z = _ball(q.pbd, {z}, given)
+        self.from_y = _ball(q.pbd, ys, given)
+        self.z_nodes = {n for n, _ in self.from_z}
+        self.y_nodes = {n for n, _ in self.from_y} | ys
+
+    def may_break(self, u: str, v: str) -> bool:
+        """Could adding u -> v break the instrument (class notes)? False is a proof."""
+        if v in self.up_of_w:
+            return True
+        if u in self.given or v in self.given:
+            return False
+        forward = u in self.z_nodes and (v in self.ys or (v, True) in self.from_y)
+        backward = ((v, True) in self.from_z or v == self.z) and u in self.y_nodes
+        return forward or backward
 
 
 def find_absent_arrows(dag: Dag, xs: Iterable[str], ys: Iterable[str], observed: Iterable[str],

@@ -28,9 +28,9 @@ candidate O        the projected parents of the measured mediators and outcome
                    of those (after the collider-path extension of Runge 2021,
                    definition recalled from memory).
 
-The candidate is optimal exactly when no valid subset Z of it loses nothing
-that matters for X (checked by the comparison's second condition over the
-subsets); the tests hold every claim to brute force over all valid sets in
+The candidate is called optimal when no valid set between its projected parents
+and itself drops a variable that matters for X (the comparison's second
+condition); the tests hold every claim to brute force over all valid sets in
 random linear Gaussian models with unmeasured variables.
 
 References
@@ -136,18 +136,23 @@ def is_at_least_as_efficient(dag: Dag, xs: set[str], ys: set[str], z1: set[str],
     return not extra1 or dag.is_d_separated(xs, extra1, set(z2))
 
 
-def is_candidate_optimal(dag: Dag, xs: set[str], candidate: set[str],
+def is_candidate_optimal(dag: Dag, xs: set[str], parents: set[str], extension: set[str],
                          is_valid: Callable[[set[str]], bool]) -> bool | None:
-    """Is the candidate at least as efficient as each of its valid subsets by the
-    comparison's second condition (the first holds for subsets)? A subset Z for which X
-    is not d-separated from the dropped variables given Z can be made more efficient by
-    weakening their links to Y. None when the candidate has more than SUBSET_LIMIT
-    variables (not decided)."""
-    if len(candidate) > SUBSET_LIMIT:
+    """Is the candidate O = parents u extension at least as efficient as each valid set
+    that keeps its projected parents and drops some of the extension?
+
+    A valid Z for which X is not d-separated from the dropped variables given Z can be
+    made more efficient than O by weakening their links to Y (the comparison's second
+    condition fails). Only the extension is varied: the projected parents play the part
+    of Henckel et al.'s O-set, which no subset improves on. 2^|extension| checks; None
+    when the extension has more than SUBSET_LIMIT variables (not decided).
+    """
+    if len(extension) > SUBSET_LIMIT:
         return None
-    for size in range(len(candidate)):
-        for kept in itertools.combinations(sorted(candidate), size):
-            zs = set(kept)
+    candidate = parents | extension
+    for size in range(len(extension)):
+        for kept in itertools.combinations(sorted(extension), size):
+            zs = parents | set(kept)
             if is_valid(zs) and not dag.is_d_separated(xs, candidate - zs, zs):
                 return False
     return True

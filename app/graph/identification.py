@@ -311,7 +311,7 @@ def _optimal_among_measured(q: Question, hidden: list[str]) -> tuple[list[str] |
            + (f", and {q.name_set(extension)}, which share an unmeasured cause with them or with those"
               if extension else ""))
     if is_adjustment_set(q, candidate):
-        verdict = efficiency.is_candidate_optimal(q.dag, set(q.xs), candidate,
+        verdict = efficiency.is_candidate_optimal(q.dag, set(q.xs), parents, extension,
                                                   lambda zs: is_adjustment_set(q, zs))
         if verdict:
             return sorted(candidate), (
@@ -320,7 +320,7 @@ def _optimal_among_measured(q: Question, hidden: list[str]) -> tuple[list[str] |
             )
         if verdict is None:
             return None, (f"the unmeasured {unmeasured} cannot be adjusted for, and the best measured set "
-                          f"was not decided: its {len(candidate)} candidates are too many to compare")
+                          f"was not decided: {len(extension)} variables share unmeasured causes, too many to compare")
     return None, (
         f"the unmeasured {unmeasured} cannot be adjusted for, and no measured set has the smallest "
         "variance in every linear model: which is best depends on the strengths of the arrows"
