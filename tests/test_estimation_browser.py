@@ -93,6 +93,16 @@ def test_estimation_panel_shows_results_and_charts(server):
         assert page.locator(".am-verdict").inner_text().startswith("Checks against the data: contradicted")
         page.wait_for_selector("table.am-validation")
         page.locator("section[aria-label='Checks against the data']").screenshot(path=str(ARTIFACTS / "estimation_checks_verdict.png"))
+        # the facilitator sends one arrow the data point to back to the debate, evidence attached
+        repair = page.locator("details[data-repairs='implications-each'] button[data-action='propose-repair']")
+        assert repair.count() >= 1
+        kind, source, target = repair.first.get_attribute("data-repair").split(":")
+        repair.first.click()
+        page.wait_for_selector("text=Proposed in the debate")
+        state = httpx.get(f"{server}/api/sessions/{sid}", headers={"X-Arrowmoot-Token": token}).json()
+        assert state["state"]["session"]["stage"] == "debating"
+        sent = [q for q in state["state"]["proposals"] if (q["from"], q["to"]) == (source, target)]
+        assert sent and "contradict" in sent[0]["reason"]
         page.locator("section[aria-label='Sensitivity']").screenshot(path=str(ARTIFACTS / "estimation_sensitivity.png"))
         page.locator("section[aria-label='Diagram against the data']").screenshot(path=str(ARTIFACTS / "estimation_checks.png"))
         forest_rows = page.locator("svg.am-forest .am-point").count()

@@ -306,3 +306,27 @@ def test_diagram_labels_pending_proposals_and_tallies_as_the_canvas_does(reporte
     assert "#1 add? +1 −1 ?0" in badges
     assert "disputed  #2 drop? +0 −1 ?0" in badges  # the drawn arrow is now under a pending removal
     assert "+0 −0 ?1" in badges  # the vote on voucher_draw → bike_lease
+
+
+def test_report_puts_the_verdict_and_a_caution_under_the_headline(reported):
+    _, response, bundle = reported
+    verdict = bundle["estimation"]["validation"]
+    html = response.text
+    estimate = html.split('<section id="estimate"', 1)[1].split("</section>", 1)[0]
+    after_headline = estimate.split('class="headline"', 1)[1]
+    first_lines = after_headline.split("<p", 4)[1:4]
+    assert any(f"Checks against the data: {verdict['verdict']}" in line for line in first_lines)
+    assert any("Caution." in line for line in first_lines)
+    checks = parse(html.split('<section id="validation"', 1)[1].split("</section>", 1)[0]).full_text
+    for item in verdict["items"]:
+        assert item["label"] in checks and item["why"] in checks
+
+
+def test_report_says_when_the_data_are_the_shipped_demo_data(reported):
+    _, response, bundle = reported
+    assert "Demo data." in parse(response.text).full_text
+    changed = json.loads(json.dumps(bundle))
+    changed["data"]["sha256"] = "0" * 64
+    from app.reporting.report import render_report
+
+    assert "Demo data." not in parse(render_report(changed)).full_text

@@ -46,3 +46,19 @@ def detour_frame(seed: int, n: int = ROWS) -> pd.DataFrame:
     t = 0.5 * a + 0.5 * d + rng.standard_normal(n)
     y = 1.0 * t + a + 0.8 * b + rng.standard_normal(n)
     return pd.DataFrame({"a": a, "b": b, "d": d, "t": t, "y": y})
+
+
+# -- a shared cause the wrong diagram keeps away from treatment and outcome -----------
+# truth: a and b each cause t, y and n; t -> y
+SHARED_RIGHT = ["a->t", "a->y", "a->n", "b->t", "b->y", "b->n", "t->y"]
+# wrong: b drawn as a cause of n only (b -> t and b -> y left out)
+SHARED_WRONG = ["a->t", "a->y", "a->n", "b->n", "t->y"]
+
+
+def shared_frame(seed: int, n: int = ROWS) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    a, b = rng.standard_normal(n), rng.standard_normal(n)
+    t = 0.5 * a + 0.4 * b + rng.standard_normal(n)
+    y = 1.0 * t + 0.5 * a + 0.4 * b + rng.standard_normal(n)
+    c = 0.5 * a + 0.5 * b + rng.standard_normal(n)
+    return pd.DataFrame({"a": a, "b": b, "t": t, "y": y, "n": c})

@@ -55,6 +55,7 @@ from app.graph.controls import control_exposures, control_outcomes
 from app.graph.dag import Dag
 from app.graph.document import Arrow, Diagram
 from app.graph.identification import Question, check_adjustment
+from app.graph.implications import independence_text
 from app.graph.paths import arrow_text
 from app.graph.repairs import arrows_linking, arrows_splitting_sets
 
@@ -82,6 +83,7 @@ CONTROL_CAP = 6
 RESAMPLES = 200
 SEED = 20_260
 CHUNK = 8192
+EVIDENCE_LIMIT = 200  # a proposal's reason holds at most this many characters
 # Poisson(1) counts by table look-up of the inverse CDF at 2^20 evenly spaced levels (each
 # probability exact to 1e-6; counts above 9, of probability 1e-7, are not drawn).
 _LEVELS = 1 << 20
@@ -280,8 +282,19 @@ def set_agreement(frame: pd.DataFrame, mapping: dict, *, treatment: str, outcome
             disagreements.append({"sets": [kept[0], s], "only_in_use": only_ref, "only_other": only_other,
                                   "difference": row["difference"], "p_adjusted": p_adj,
                                   "explained_by": explain(kept[0], s) if explain else []})
+    repairs = []
+    for d in disagreements:
+        for e in d["explained_by"]:
+            u, v = e["arrow"]
+            source, target = (u, v) if e["change"] == "added" else (v, u)
+            repairs.append(_repair(
+                "add" if e["change"] == "added" else "reverse", source, target,
+                f"Data check: adjusting for {_name(d['sets'][1])} and {_name(d['sets'][0])} gives estimates "
+                f"{d['difference']:+.3g} apart (adjusted p = {d['p_adjusted']:.2g}); with {u} → {v} only one "
+                "of them stays valid."))
     out = _item(check, "contradicted" if disagreements else "holds", "", sets=table + entries,
-                rows=int(len(rows)), resamples=resamples, seed=seed, cap=cap, disagreements=disagreements)
+                rows=int(len(rows)), resamples=resamples, seed=seed, cap=cap, disagreements=disagreements,
+                repairs=_unique(repairs))
     out["p_value"] = worst
     if disagreements:
         d = disagreements[0]
@@ -358,7 +371,16 @@ def controls_check(kind: str, frame: pd.DataFrame, mapping: dict, *, treatment: 
         if r["status"] == "contradicted" and explain:
             r["explained_by"] = explain(r["variable"])
     bad = [r for r in fitted if r["status"] == "contradicted"]
-    out = _item(check, "contradicted" if bad else "holds", "", controls=rows)
+    repairs = []
+    for r in bad:
+        shown = (f"{treatment}'s 'effect' on {r['variable']}" if kind == "outcome"
+                 else f"{r['variable']}'s 'effect' on {outcome}")
+        repairs += [_repair("add", e["arrow"][0], e["arrow"][1],
+                            f"Data check: {shown} is {r['estimate']:.3g} (adjusted p = {r['p_adjusted']:.2g}), "
+                            "where the diagram says zero; this arrow would explain it"
+                            + (f" and open {e['opens']}." if e.get("opens") else "."))
+                    for e in r.get("explained_by") or []]
+    out = _item(check, "contradicted" if bad else "holds", "", controls=rows, repairs=_unique(repairs))
     out["p_value"] = min(r["p_adjusted"] for r in fitted)
     if bad:
         r = bad[0]
@@ -398,8 +420,27 @@ def fisher_c(p_values) -> dict:
     return {"statistic": c, "df": df, "p_value": float(stats.chi2.sf(c, df))}
 
 
-def implication_items(checks: dict | None, alpha: float = 0.05) -> list[dict]:
-    """The two implication items of the verdict from :func:`~.implications.test_implications` output."""
+def _repair(kind: str, source: str, target: str, evidence: str) -> dict:
+    """A change the facilitator can send to the debate as a proposal (``evidence`` is its reason)."""
+    if len(evidence) > EVIDENCE_LIMIT:
+        evidence = evidence[:EVIDENCE_LIMIT - 1].rstrip() + "…"
+    return {"kind": kind, "from": source, "to": target, "evidence": evidence}
+
+
+def _unique(repairs: list[dict]) -> list[dict]:
+    seen, out = set(), []
+    for r in repairs:
+        if (r["kind"], r["from"], r["to"]) not in seen:
+            seen.add((r["kind"], r["from"], r["to"]))
+            out.append(r)
+    return out
+
+
+def implication_items(checks: dict | None, alpha: float = 0.05, dag: Dag | None = None) -> list[dict]:
+    """The two implication items of the verdict from :func:`~.implications.test_implications` output.
+
+    With ``dag``, each failing implication lists the single added arrows after which the
+    diagram no longer implies it (:func:`~app.graph.repairs.arrows_linking`)."""
     if not checks or not checks.get("tested"):
         why = (checks or {}).get("summary") or "the implication tests were not run"
         if checks and not checks.get("listed"):
@@ -407,8 +448,15 @@ def implication_items(checks: dict | None, alpha: float = 0.05) -> list[dict]:
         return [_item("implications-each", "not run", why), _item("implications-together", "not run", why)]
     tested = [t for t in checks["tests"] if t["p_value"] is not None]
     failing = [t for t in tested if t["verdict"] == "fails"]
+    repairs = []
+    for t in failing:
+        t["repairs"] = [[u, v] for u, v in arrows_linking(dag, t["x"], t["y"], t["given"])] if dag else []
+        claim = t.get("text") or independence_text(t["x"], t["y"], t["given"])
+        repairs += [_repair("add", u, v, f"Data contradict '{claim}' (adjusted p = {t['p_adjusted']:.2g}); "
+                                          f"the arrow {u} → {v} would remove that claim.")
+                    for u, v in t["repairs"]]
     each = _item("implications-each", "contradicted" if failing else "holds", checks["summary"],
-                 tested=len(tested), failing=len(failing))
+                 tested=len(tested), failing=len(failing), repairs=_unique(repairs))
     each["p_value"] = min(t["p_adjusted"] for t in tested)
     combined = fisher_c([t["p_value"] for t in tested])
     basis = "" if checks.get("total", 0) <= checks.get("listed", 0) else (
@@ -497,7 +545,7 @@ def run_checks(diagram: Diagram, frame: pd.DataFrame, mapping: dict, *, treatmen
         if progress:
             progress(min(total, state["base"] + done), total, step)
 
-    items = implication_items(implication_checks, alpha)
+    items = implication_items(implication_checks, alpha, Dag.from_diagram(diagram))
     report(1, "implications")
     state["base"] = 1
     if adjustment_set is None:

@@ -5,6 +5,7 @@
 import { el, clear, independenceText } from './dom.js';
 import {
   fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation, readValidationRun, stopValidation,
+  postCommand,
 } from './api.js';
 
 const METHODS = [
@@ -189,6 +190,44 @@ class EstimationPanel {
     this.polling = false;
     if (this.checking?.state === 'finished') await this.load();
     else this.render();
+  }
+
+  get isFacilitator() {
+    const id = this.context.member?.id;
+    const me = this.context.state?.()?.members?.find((m) => m.id === id) || this.context.member;
+    return me?.role === 'facilitator';
+  }
+
+  /**
+   * Send one change the data point to back to the debate as a proposal, its evidence as the
+   * reason; a locked diagram is reopened first, with that evidence as the recorded reason.
+   */
+  sendRepair(repair) {
+    return this.act('repair', async () => {
+      const send = (command) => postCommand(this.context.sessionId, this.context.token, command);
+      if (this.stage !== 'debating') {
+        await send({ type: 'set_stage', stage: 'debating', reason: `Reopened to weigh a check against the data. ${repair.evidence}` });
+      }
+      await send({ type: 'propose', kind: repair.kind, from: repair.from, to: repair.to, reason: repair.evidence });
+      this.sent = new Set([...(this.sent || []), `${repair.kind}:${repair.from}:${repair.to}`]);
+      this.message = { kind: 'ok', text: `Proposed in the debate: ${repair.kind === 'reverse' ? `reverse ${repair.from} → ${repair.to}` : `add ${repair.from} → ${repair.to}`}, with the evidence as its reason.` };
+    });
+  }
+
+  repairList(item) {
+    if (!item.repairs?.length) return null;
+    const rows = item.repairs.slice(0, 12).map((r) => {
+      const key = `${r.kind}:${r.from}:${r.to}`;
+      const done = this.sent?.has(key);
+      return el('li', { title: r.evidence },
+        el('span', { text: `${r.kind === 'reverse' ? 'reverse' : 'add'} ${r.from} → ${r.to} ` }),
+        this.isFacilitator ? el('button', {
+          type: 'button', class: 'quiet', text: done ? 'proposed' : 'Propose in the debate', disabled: done || !!this.busy,
+          dataset: { action: 'propose-repair', repair: key }, on: { click: () => this.sendRepair(r) } }) : null);
+    });
+    return el('div', { class: 'am-repairs' },
+      el('p', { class: 'note', text: 'One arrow each that would reconcile the diagram with this result (the facilitator can send one back to the debate, with the evidence as its reason):' }),
+      el('ul', {}, ...rows));
   }
 
   async stopChecks() {
@@ -434,6 +473,9 @@ class EstimationPanel {
     const rows = v.items.map((i) => el('tr', { class: i.status === 'contradicted' ? 'am-fail' : '', dataset: { check: i.check } },
       el('th', { text: i.label }), el('td', { class: `am-status am-status-${i.status.replaceAll(' ', '-')}`, text: i.status }), el('td', { text: i.why })));
     box.append(table(['check', 'result', 'why'], rows, 'am-validation'));
+    for (const item of v.items.filter((i) => i.status === 'contradicted' && i.repairs?.length)) {
+      box.append(el('details', { open: true, dataset: { repairs: item.check } }, el('summary', { text: `${item.label}: what would explain it` }), this.repairList(item)));
+    }
     const sets = v.items.find((i) => i.check === 'set-agreement');
     if (sets?.sets?.length) {
       const setRows = sets.sets.map((s) => el('tr', { class: s.status === 'differs' ? 'am-fail' : '' },
