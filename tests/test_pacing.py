@@ -4,7 +4,6 @@ traceback, and a body that is not JSON is answered in words."""
 
 from __future__ import annotations
 
-import asyncio
 import json
 import time
 
