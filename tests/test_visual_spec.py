@@ -22,6 +22,13 @@ def _inside(x, y, points):
     return inside
 
 
+def _distance_to_segment(x, y, p, q):
+    (px, py), (qx, qy) = p, q
+    dx, dy = qx - px, qy - py
+    t = max(0.0, min(1.0, ((x - px) * dx + (y - py) * dy) / (dx * dx + dy * dy or 1.0)))
+    return ((x - px - t * dx) ** 2 + (y - py - t * dy) ** 2) ** 0.5
+
+
 def _node(x, y, label, **flags):
     width, height, _ = box_size(label)
     return Node(x, y, width, height, **flags)
@@ -36,16 +43,28 @@ def test_an_arrow_into_the_pointed_end_stops_outside_the_tip():
     assert not _inside(route.x2 - lease.x, route.y2 - lease.y, hexagon(lease.width / 2, lease.height / 2))
 
 
-def test_an_arrow_into_an_adjusted_variable_stops_outside_its_ring():
-    nodes = {"a": _node(0, 0, "a"), "b": _node(300, 150, "b", adjusted=True)}
-    (route,) = route_arrows(nodes, [("a", "b")])
-    assert not _inside(route.x2 - 300, route.y2 - 150, outline(nodes["b"]))
+def test_every_arrow_end_touches_the_outline_it_leaves_or_enters():
+    """Ends stop the gap away from the outline: never inside it, never left hanging beyond it."""
+    diagram = parse_document(json.loads(SAMPLE.read_text()))
+    adjusted = {"age", "commute_km", "department", "fitness"}
+    nodes = {v.name: _node(v.x, v.y, v.label or v.name, treatment=v.name in diagram.treatment, adjusted=v.name in adjusted)
+             for v in diagram.variables}
+    arrows = [(a.source, a.target) for a in diagram.arrows] + [(diagram.outcome[0], "fitness")]
+    gap = SPEC["arrows"]["gap"]
+    for (a, b), route in zip(arrows, route_arrows(nodes, arrows)):
+        for name, (x, y) in ((a, (route.x1, route.y1)), (b, (route.x2, route.y2))):
+            n = nodes[name]
+            poly = outline(n)
+            assert not _inside(x - n.x, y - n.y, poly), (a, b, name)
+            nearest = min(_distance_to_segment(x - n.x, y - n.y, poly[i - 1], poly[i]) for i in range(len(poly)))
+            assert nearest <= gap + 0.01, (a, b, name, nearest)
 
 
 def test_spread_keeps_order_gap_and_bounds():
     assert spread_along([0, 0, 0], 16, -50, 50) == [-16, 0, 16]
     assert spread_along([40, 45], 16, -50, 50) == [34, 50]
     assert spread_along([-3], 16, -50, 50) == [-3]
+    assert spread_along([-80, 0, 80], 16, -50, 50) == [-50, 0, 50]  # never beyond the side's straight run
 
 
 def test_tidied_demo_arrows_keep_apart_and_off_boxes():

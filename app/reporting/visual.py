@@ -197,6 +197,7 @@ def _crossings(a, b, c, boxes) -> int:
 
 def spread_along(values: list[float], gap: float, lo: float, hi: float) -> list[float]:
     """Spread positions along one side: in order, at least ``gap`` apart, centred where they were, within [lo, hi]."""
+    values = [min(hi, max(lo, v)) for v in values]
     out: list[float] = []
     for i, v in enumerate(values):
         out.append(max(v, out[i - 1] + gap) if i else v)

@@ -4,7 +4,7 @@
 
 import { svg, clear, ROLE_WORDS } from './dom.js';
 import {
-  SPEC, boxSize, routeArrows, placeBadge, ringRectangle, hexagon, arrowAttributes, shapeAttributes,
+  SPEC, boxSize, textWidth, routeArrows, placeBadge, ringRectangle, hexagon, arrowAttributes, shapeAttributes,
 } from './visual.js';
 
 const HATCH = 'url(#hatch-latent)';
@@ -93,7 +93,7 @@ export class Canvas {
   /** The smallest and largest zoom Fit uses: labels never drawn smaller than a readable size. */
   zoomLimits() {
     const big = document.body.classList.contains('projector');
-    const readable = big ? 15 : 11;  // px on screen for a 15 px label
+    const readable = big ? 14 : 10;  // px on screen for a 15 px label
     return { min: readable / SPEC.label.size, max: big ? 1.6 : 1.15 };
   }
 
@@ -103,7 +103,7 @@ export class Canvas {
     for (const v of this.model?.document?.variables || []) {
       const p = this.position(v);
       const { width, height } = this.size(v);
-      const half = width / 2 + 40;  // room for the role caption under the box
+      const half = Math.max(width / 2 + SPEC.variables.treatment.tip, textWidth(this.roleCaption(v), SPEC.role.size) / 2) + 8;
       minX = Math.min(minX, p.x - half); maxX = Math.max(maxX, p.x + half);
       minY = Math.min(minY, p.y - height / 2 - 24); maxY = Math.max(maxY, p.y + height / 2 + 30);
     }
@@ -285,6 +285,12 @@ export class Canvas {
     return group;
   }
 
+  /** The words under a box: the variable's roles for the question, beyond treatment and outcome. */
+  roleCaption(v) {
+    const roles = (this.model?.roles?.[v.name] || []).filter((r) => !['treatment', 'outcome', 'unrelated'].includes(r));
+    return roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ');
+  }
+
   drawNode(v, flags) {
     const p = this.position(v);
     const { width, height, lines } = this.size(v);
@@ -334,11 +340,11 @@ export class Canvas {
       group.append(svg('text', { class: 'tag', x: 0, y: -hh - (flags.adjusted ? tag.gap_adjusted : tag.gap), 'text-anchor': 'middle',
         'font-size': tag.size, 'font-weight': tag.weight, 'letter-spacing': tag.letter_spacing, fill: tag.fill, text: tags.join(' · ') }));
     }
-    const roles = (this.model.roles?.[v.name] || []).filter((r) => !['treatment', 'outcome', 'unrelated'].includes(r));
-    if (roles.length) {
+    const caption = this.roleCaption(v);
+    if (caption) {
       const role = SPEC.role;
       group.append(svg('text', { class: 'role', x: 0, y: hh + (flags.adjusted ? role.gap_adjusted : role.gap), 'text-anchor': 'middle',
-        'font-size': role.size, 'font-style': role.style, fill: role.fill, text: roles.map((r) => ROLE_WORDS[r] || r.replaceAll('_', ' ')).join(', ') }));
+        'font-size': role.size, 'font-style': role.style, fill: role.fill, text: caption }));
     }
     if (!this.model.locked) group.append(svg('circle', { class: 'port', cx: hw + (flags.treatment ? SPEC.variables.treatment.tip : 0), cy: 0, r: 7 }));
     const title = svg('title', { text: v.description ? `${v.name}: ${v.description}` : v.name });

@@ -162,6 +162,7 @@ function crossings(route, boxes) {
 
 /** Spread positions along one side: in order, at least `gap` apart, centred where they were, within [lo, hi]. */
 export function spreadAlong(values, gap, lo, hi) {
+  values = values.map((v) => Math.min(hi, Math.max(lo, v)));
   const out = [];
   values.forEach((v, i) => out.push(i ? Math.max(v, out[i - 1] + gap) : v));
   const mean = (list) => list.reduce((a, b) => a + b, 0) / list.length;
