@@ -72,6 +72,8 @@ def run_serve(args: argparse.Namespace) -> int:
     if args.host in ("0.0.0.0", "::"):
         shown_host = "127.0.0.1"
     os.environ.setdefault("ARROWMOOT_PUBLIC_URL", f"http://{shown_host}:{args.port}")
+    # what the join screen needs to tell the room an address it can reach
+    os.environ["ARROWMOOT_LISTEN_HOST"], os.environ["ARROWMOOT_LISTEN_PORT"] = args.host, str(args.port)
     app = create_app(db_path=args.db)
     if args.host not in ("127.0.0.1", "localhost", "::1"):
         print(

@@ -18,7 +18,7 @@ from .errors import install_error_handlers
 from .resources import resource_dir
 from .settings import Settings
 from .store import Store
-from .web import pages, ws
+from .web import joining, pages, ws
 from .web.guards import BodyLimit, JoinLimiter, OriginGuard
 from .sessions import Sessions
 from .web.live import Hub
@@ -84,6 +84,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     app.include_router(identify.router)
     app.include_router(session_routes.router)
     app.include_router(ws.router)
+    app.include_router(joining.router)
     app.include_router(pages.router)
     try:
         # built by the estimation stage; absent until then

@@ -427,3 +427,35 @@ def test_a_wrong_join_code_is_answered_on_the_home_form(room):
     page.click("#join-code-form button[type=submit]")
     page.wait_for_url(f"{room.base}/join/{room.code}")
     assert page.locator("#join-form").count() == 1
+
+
+@pytest.mark.parametrize("listen", ["", "192.0.2.10"])
+def test_the_join_screen_shows_a_reachable_address_or_the_host_advice(tmp_path, monkeypatch, listen):
+    """192.0.2.10 is a documentation address (RFC 5737): shown, never contacted."""
+    from playwright.sync_api import sync_playwright
+
+    if listen:
+        monkeypatch.setenv("ARROWMOOT_LISTEN_HOST", listen)
+    errors: list[str] = []
+    with running_server(tmp_path) as base, httpx.Client(base_url=base, timeout=30) as http, \
+            sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        try:
+            room = Room(http, browser, base, errors)
+            for size in ((1280, 720), (390, 844)):
+                page = _fac_page(room, size)
+                page.locator(".join-code").click()
+                dialog = page.locator("dialog.join-screen")
+                wait(page, "!document.querySelector('dialog.join-screen')?.textContent.includes('Finding')", "the address")
+                if listen:
+                    port = base.rsplit(":", 1)[1]
+                    assert dialog.locator(".join-url").inner_text() == f"http://{listen}:{port}/join/{room.code}"
+                    assert dialog.locator("img.join-qr").get_attribute("src").startswith("data:image/svg+xml")
+                else:
+                    assert "arrowmoot serve --host 0.0.0.0" in dialog.locator(".join-advice").inner_text()
+                    assert dialog.locator("img.join-qr").count() == 0
+                page.screenshot(path=str(ARTIFACTS / f"room-join-{'network' if listen else 'loopback'}-{size[0]}.png"))
+                page.context.close()
+        finally:
+            browser.close()
+    assert errors == []

@@ -67,6 +67,11 @@ export function fetchSession(sessionId, token) {
 }
 
 /** The session's history of events. */
+/** The join link the room can reach (with its QR code), or how to make one. */
+export function fetchJoinAddress(sessionId, token) {
+  return callApi('GET', `${sessionPath(sessionId)}/join-address`, undefined, token);
+}
+
 export function fetchHistory(sessionId, token) {
   return callApi('GET', `${sessionPath(sessionId)}/history`, undefined, token);
 }

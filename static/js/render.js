@@ -2,6 +2,7 @@
 // the tab row, the legend and the model the canvas draws. Nothing here changes state.
 
 import { el, svg, clear } from './dom.js';
+import { fetchJoinAddress } from './api.js';
 import { SPEC, shapeAttributes, arrowAttributes } from './visual.js';
 
 export const STAGE_NAMES = { drafting: 'Drafting', debating: 'Debating', agreed: 'Agreed', estimation: 'Estimation' };
@@ -32,7 +33,7 @@ export function renderBar(app) {
       : el('h1', { class: 'session-title', text: s.session.title }),
     stepper,
     el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
-      on: { click: () => showJoinScreen(s.session.join_code) } },
+      on: { click: () => showJoinScreen(app) } },
       el('span', { class: 'muted join-where', text: `${location.host}/join · ` }), el('span', { class: 'muted', text: 'code ' }), el('strong', { text: s.session.join_code })),
     el('div', { class: 'who' }, el('span', { text: `${app.me.name} · ${app.me.roles.join(', ')}` }),
       el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
@@ -143,13 +144,28 @@ export function buildLegend() {
   return legend;
 }
 
-export function showJoinScreen(code) {
-  const dialog = el('dialog', { class: 'join-screen' },
-    el('p', { text: 'Join this session at' }),
-    el('p', { class: 'join-url', text: `${location.origin}/join` }),
+export function showJoinScreen(app) {
+  const code = app.state.session.join_code;
+  const where = el('div', { class: 'join-address' }, el('p', { class: 'muted', text: 'Finding the address the room can reach…' }));
+  const dialog = el('dialog', { class: 'join-screen', 'aria-label': 'How to join this session' },
+    where,
     el('p', { text: 'with the code' }),
     el('p', { class: 'join-big', text: code }),
     el('button', { type: 'button', class: 'primary', text: 'Close', on: { click: () => { dialog.close(); dialog.remove(); } } }));
   document.body.append(dialog);
   dialog.showModal();
+  fetchJoinAddress(app.sessionId, app.token).then((data) => {
+    const parts = [];
+    if (data.url) {
+      parts.push(el('p', { text: 'Join this session at' }), el('p', { class: 'join-url', text: data.url }));
+      if (data.qr) parts.push(el('img', { class: 'join-qr', src: data.qr, width: 220, height: 220, alt: `QR code of ${data.url}` }));
+    } else {
+      parts.push(el('p', { class: 'notice join-advice', text: data.advice }),
+        el('p', { class: 'muted', text: `On this computer only: ${location.origin}${data.path}` }));
+    }
+    clear(where).append(...parts);
+  }).catch((err) => {
+    clear(where).append(el('p', { text: 'Join this session at' }), el('p', { class: 'join-url', text: `${location.origin}/join` }),
+      el('p', { class: 'muted', text: err.message }));
+  });
 }
