@@ -149,3 +149,31 @@ def test_bad_file_message_and_participant_view(server, tmp_path):
         assert other.locator("input[name='data-file']").count() == 0
         other.screenshot(path=str(ARTIFACTS / "estimation_participant.png"))
         browser.close()
+
+
+def test_open_panel_shows_data_attached_by_someone_else_without_polling(server):
+    """An upload by the facilitator appears on a participant's open panel without a reload
+    (the panel listens to the live session), and a quiet session asks the server for nothing."""
+    from playwright.sync_api import expect, sync_playwright
+
+    sid, token = _prepare_session(server)
+    code = httpx.get(f"{server}/api/sessions/{sid}", headers={"X-Arrowmoot-Token": token}).json()["state"]["session"]["join_code"]
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1440, "height": 900})
+        requests: list[str] = []
+        page.on("request", lambda r: requests.append(r.url) if r.url.endswith("/estimation") else None)
+        page.goto(f"{server}/join/{code}")
+        page.fill("input[name=name]", "Sam")
+        page.click("#join-form button[type=submit]")
+        page.click(".tab[data-tab=estimation]")
+        expect(page.locator("#estimation-panel")).to_contain_text("No data attached yet")
+        page.wait_for_timeout(4000)  # quiet: no edit, so no further request
+        quiet = len(requests)
+        assert quiet <= 1, requests
+        r = httpx.put(f"{server}/api/sessions/{sid}/estimation/data?name=cycle_to_work.csv",
+                      content=(SAMPLE / "cycle_to_work.csv").read_bytes(), headers={"X-Arrowmoot-Token": token})
+        assert r.status_code == 200, r.text
+        expect(page.locator("#estimation-panel")).to_contain_text("cycle_to_work.csv", timeout=10_000)
+        assert len(requests) > quiet
+        browser.close()
