@@ -23,7 +23,7 @@ from app.graph.document import parse_document
 from app.graph.errors import DiagramError
 
 from .errors import DataError
-from .planning import METHOD_LABELS
+from .methods import AUTO, method_names
 from .service import estimate, json_ready, sensitivity, validate
 from .validation import RESAMPLES, SET_CAP
 from .tables import DEFAULT_MAX_BYTES, load_table
@@ -42,7 +42,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--map", action="append", default=[], metavar="VARIABLE=COLUMN",
                         help="measure a variable by a column (repeatable); unnamed variables use a column "
                              "of the same name if there is one; VARIABLE= marks it unmeasured")
-    parser.add_argument("--method", default="auto", choices=["auto", *METHOD_LABELS],
+    parser.add_argument("--method", default="auto", choices=[AUTO, *method_names()],
                         help="estimator (default: chosen from the identification and the column types)")
     parser.add_argument("--adjust", default=None, metavar="A,B,...",
                         help="use this adjustment set instead of the default (must be valid)")

@@ -24,10 +24,12 @@ from scipy import stats
 
 from .design import Design
 from .errors import FitFailed
+from .methods import method_names as _method_names
 
 __all__ = [
-    "METHODS", "regression", "standardization", "weighting", "doubly_robust",
-    "two_stage", "front_door", "point_function", "ROBUST_COV",
+    "regression", "standardization", "weighting", "doubly_robust", "two_stage", "front_door",
+    "point_regression", "point_standardization", "point_weighting", "point_doubly_robust",
+    "point_two_stage", "point_front_door", "point_function", "fit_function", "METHODS", "ROBUST_COV",
 ]
 
 ROBUST_COV = "HC1"
@@ -488,14 +490,14 @@ def doubly_robust(design: Design) -> dict:
     return _treatment_effect(design, "aipw")
 
 
-def _point_ipw(design: Design) -> float:
+def point_weighting(design: Design) -> float:
     x, fit = _propensity(design)
     p = fit.predict(x)
     tr = design.t == 1
     return float(np.average(design.y[tr], weights=1 / p[tr]) - np.average(design.y[~tr], weights=1 / (1 - p[~tr])))
 
 
-def _point_aipw(design: Design) -> float:
+def point_doubly_robust(design: Design) -> float:
     x, fit = _propensity(design)
     p = fit.predict(x)
     tr = design.t == 1
@@ -584,24 +586,19 @@ def front_door(design: Design, *, resamples: int = 500, seed: int = 11) -> dict:
     }
 
 
-METHODS: dict[str, Callable[[Design], dict]] = {
-    "regression": regression,
-    "standardization": standardization,
-    "weighting": weighting,
-    "doubly-robust": doubly_robust,
-    "two-stage": two_stage,
-    "front-door": front_door,
-}
-
-_POINTS: dict[str, Callable[[Design], float]] = {
-    "regression": point_regression,
-    "standardization": point_standardization,
-    "weighting": _point_ipw,
-    "doubly-robust": _point_aipw,
-    "two-stage": point_two_stage,
-    "front-door": point_front_door,
-}
-
-
 def point_function(method: str) -> Callable[[Design], float]:
-    return _POINTS[method]
+    """The point-estimate function of the method called ``method`` (see :mod:`.methods`)."""
+    from .methods import find_method
+
+    return find_method(method).point
+
+
+def fit_function(method: str) -> Callable[[Design], dict]:
+    """The fitting function of the method called ``method`` (see :mod:`.methods`)."""
+    from .methods import find_method
+
+    return find_method(method).fit
+
+
+# Fit functions by method name, read from the registry (for callers that loop over methods).
+METHODS: dict[str, Callable[[Design], dict]] = {name: fit_function(name) for name in _method_names()}

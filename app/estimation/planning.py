@@ -16,18 +16,11 @@ from app.graph.document import Diagram
 from app.graph.identification import analyze
 
 from .errors import BadMapping, BadMethod
+from .methods import AUTO, METHODS, default_method, find_method, method_names
 
 __all__ = ["Plan", "make_plan", "find_fixing_groups", "METHOD_LABELS", "choose_method"]
 
-METHOD_LABELS = {
-    "regression": "Linear regression with robust standard errors",
-    "standardization": "Standardization over the sample (outcome model per arm)",
-    "weighting": "Inverse probability weighting",
-    "doubly-robust": "Augmented inverse probability weighting (doubly robust)",
-    "two-stage": "Two-stage least squares with an instrument",
-    "front-door": "Front-door product of coefficients",
-}
-ADJUSTMENT_METHODS = ("regression", "standardization", "weighting", "doubly-robust")
+METHOD_LABELS = {m.name: m.label for m in METHODS}  # the registry's labels by name
 
 
 @dataclass
@@ -139,17 +132,15 @@ def make_plan(diagram: Diagram, mapping: dict[str, str], *, adjust: list[str] | 
 
 def choose_method(plan: Plan, *, t_binary: bool, y_binary: bool, method: str | None) -> str:
     """The default method for the plan and the column types, or check the requested one."""
-    if method in (None, "", "auto"):
-        if plan.strategy == "adjustment":
-            return "standardization" if (t_binary and y_binary) else "regression"
-        return {"instrument": "two-stage", "front-door": "front-door"}[plan.strategy]
-    if method not in METHOD_LABELS:
-        raise BadMethod(f"unknown method {method!r}; choose one of: auto, {', '.join(METHOD_LABELS)}", item=method)
-    needs = {"two-stage": "instrument", "front-door": "front-door"}.get(method, "adjustment")
-    if needs != plan.strategy:
-        raise BadMethod(f"method {method!r} needs the {needs} strategy, but this estimate uses {plan.strategy}", item=method)
-    if method in ("weighting", "doubly-robust", "standardization") and not t_binary:
-        raise BadMethod(f"method {method!r} needs a binary (0/1) treatment column", item=method)
-    if method == "standardization" and not y_binary:
-        raise BadMethod("method 'standardization' needs a binary (0/1) outcome; use 'regression'", item=method)
+    if method in (None, "", AUTO):
+        return default_method(plan.strategy, t_binary=t_binary, y_binary=y_binary).name
+    entry = find_method(method)
+    if entry is None:
+        raise BadMethod(f"unknown method {method!r}; choose one of: {AUTO}, {', '.join(method_names())}", item=method)
+    if entry.strategy != plan.strategy:
+        raise BadMethod(f"method {method!r} needs the {entry.strategy} strategy, but this estimate uses {plan.strategy}",
+                        item=method)
+    unmet = entry.unmet_needs(t_binary=t_binary, y_binary=y_binary)
+    if unmet:
+        raise BadMethod(f"method {method!r} needs {unmet[0]}", item=method)
     return method

@@ -23,7 +23,8 @@ from . import estimators, validation
 from .design import build_design, check_mapping, propose_mapping
 from .errors import BadMapping, BadMethod, DataError, NotIdentified
 from .implications import test_implications
-from .planning import METHOD_LABELS, Plan, _observed_except, choose_method, make_plan
+from .methods import AUTO, find_method
+from .planning import Plan, _observed_except, choose_method, make_plan
 from .sensitivity import e_value, regression_sensitivity, standardized_e_value
 
 __all__ = ["CAUTIONS", "resolve_mapping", "estimate", "validate", "sensitivity", "disputed_estimates", "MAX_DISPUTES"]
@@ -36,7 +37,6 @@ CAUTIONS = [
     "about people's health or livelihood need both.",
 ]
 MAX_DISPUTES = 6
-STRATEGY_FOR_METHOD = {"two-stage": "instrument", "front-door": "front-door"}
 
 
 def resolve_mapping(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None) -> dict[str, str]:
@@ -48,7 +48,8 @@ def resolve_mapping(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None)
 def _prepare(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, method: str | None,
              adjust: list[str] | None):
     mapping = resolve_mapping(diagram, frame, mapping)
-    strategy = STRATEGY_FOR_METHOD.get(method or "", "adjustment" if method not in (None, "", "auto") else None)
+    entry = find_method(method)
+    strategy = entry.strategy if entry else ("adjustment" if method not in (None, "", AUTO) else None)
     plan = make_plan(diagram, mapping, adjust=adjust, strategy=strategy)
     if not plan.identifiable:
         fixes = "; ".join("{" + ", ".join(g) + "}" for g in plan.fixes)
@@ -75,7 +76,7 @@ def prepare(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None, method:
 
 
 def _fit(design, method: str) -> dict:
-    result = estimators.METHODS[method](design)
+    result = find_method(method).fit(design)
     for key in ("estimate", "std_error"):
         if not math.isfinite(result[key]):
             raise DataError(f"the {method} estimate is not a finite number; the data cannot support it")
@@ -94,7 +95,7 @@ def _contrast(column, t_col: str) -> str:
 def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[str]]:
     t_col, y_col = plan.mapping[plan.treatment], plan.mapping[plan.outcome]
     unit = _contrast(design.columns.get(plan.treatment), t_col) if design.t_binary else f"one unit more of {t_col}"
-    scale = "risk difference" if method == "standardization" else ("difference in the mean of " + y_col)
+    scale = result.get("scale") or ("difference in the mean of " + y_col)
     if plan.strategy == "adjustment":
         how = ("adjusting for " + ", ".join(plan.adjustment_set)) if plan.adjustment_set else "with no adjustment (none is needed)"
     elif plan.strategy == "instrument":
@@ -103,7 +104,7 @@ def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[
         how = "through the mediator(s) " + ", ".join(plan.mediators) + " (front-door)"
     text = (
         f"Average effect of {plan.treatment} on {plan.outcome}: the {scale} for {unit}, "
-        f"estimated by {METHOD_LABELS[method].lower()}, {how}, on {design.n} rows "
+        f"estimated by {find_method(method).label.lower()}, {how}, on {design.n} rows "
         f"({design.n_dropped} dropped for missing values)."
     )
     assumptions = {
@@ -123,14 +124,7 @@ def _describe(plan: Plan, design, method: str, result: dict) -> tuple[str, list[
             "The relations are linear (product of coefficients).",
         ],
     }[plan.strategy]
-    model = {
-        "regression": "The outcome is linear in the treatment and the adjustment columns; errors may be heteroskedastic (robust HC1 standard errors).",
-        "standardization": "A logistic model of the outcome within each arm is correctly specified.",
-        "weighting": "The logistic model of the treatment (propensity score) is correctly specified.",
-        "doubly-robust": "Either the propensity model or the linear outcome model per arm is correctly specified.",
-        "two-stage": "Linear first and second stage; robust standard errors.",
-        "front-door": "Linear models for mediator and outcome; bootstrap interval.",
-    }[method]
+    model = find_method(method).model
     return text, assumptions + [model]
 
 
@@ -159,7 +153,7 @@ def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
         "ci": result["ci"],
         "ci_level": 0.95,
         "method": chosen,
-        "method_label": METHOD_LABELS[chosen],
+        "method_label": find_method(chosen).label,
         "strategy": plan.strategy,
         "adjustment_set": plan.adjustment_set if plan.strategy == "adjustment" else None,
         "instrument": plan.instrument,
@@ -184,7 +178,7 @@ def estimate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
                     if k not in ("estimate", "std_error", "ci", "method", "warnings")},
         "checks": None,
     }
-    if design.y_binary and chosen in ("regression", "two-stage", "front-door", "weighting", "doubly-robust"):
+    if design.y_binary and find_method(chosen).linear_outcome:
         out["warnings"].append(
             "the outcome is binary and this method fits it linearly: read the estimate as a difference "
             "in risk" + ("" if design.t_binary else " per unit of treatment (a linear probability model)"))
@@ -229,17 +223,19 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
     ones (``[{"by", "variable", "times"}]``) would do to the estimate."""
     mapping, plan, design, chosen = _prepare(diagram, frame, mapping, method, adjust)
     out: dict = {"method": chosen, "regression": None, "e_value": None, "not_applicable": {}}
-    if chosen in ("weighting", "doubly-robust"):
-        chosen = out["method"] = "regression"
+    kind = find_method(chosen).sensitivity
+    if kind == "partial-r2-of-regression":
+        chosen, kind = "regression", "partial-r2"
+        out["method"] = chosen
         out["note"] = ("the partial R-squared sensitivity is defined for the regression estimate; "
                        "it is shown for the regression with the same adjustment set")
-    if chosen == "regression":
+    if kind == "partial-r2":
         fit = estimators.regression(design)
         out["regression"] = regression_sensitivity(design, q=q, alpha=alpha, statements=statements)
         sd = float(np.std(design.y, ddof=1))
         out["e_value"] = standardized_e_value(fit["estimate"], fit["ci"][0], fit["ci"][1], sd)
-    elif chosen == "standardization":
-        fit = estimators.standardization(design)
+    elif kind == "risk-ratio-e-value":
+        fit = find_method(chosen).fit(design)
         out["e_value"] = e_value(fit["risk_ratio"], *fit["risk_ratio_ci"])
         out["not_applicable"]["regression"] = (
             "the partial R-squared bounds are identities of a linear regression; this estimate "
