@@ -140,3 +140,19 @@ def test_arrows_splitting_sets_names_the_missing_arrow():
         e for e in found if e["arrow"] == ["d", "t"]).items()
     q = Question.of(dg)
     assert answer_question(q)["minimal_adjustment_sets"] == [["a"]]
+
+
+def test_continuous_likelihood_ratio_matches_statsmodels():
+    """The linear-regression LR statistic n log(RSS_small / RSS_big) is statsmodels' compare_lr_test."""
+    import statsmodels.api as sm
+
+    from app.estimation.implications import likelihood_ratio_test
+
+    frame = shared_frame(4, n=800)
+    given = frame[["a"]].to_numpy()
+    small = sm.OLS(frame["y"], sm.add_constant(given)).fit()
+    big = sm.OLS(frame["y"], sm.add_constant(np.column_stack([given, frame[["b", "n"]].to_numpy()]))).fit()
+    statistic, p, df = big.compare_lr_test(small)
+    ours = likelihood_ratio_test(frame["y"].to_numpy(), "continuous", frame[["b", "n"]].to_numpy(), given)
+    assert ours["statistic"] == pytest.approx(statistic, rel=1e-9)
+    assert ours["p_value"] == pytest.approx(p, rel=1e-6) and ours["df"] == df == 2

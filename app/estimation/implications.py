@@ -30,11 +30,14 @@ CORRECTIONS = {"holm": "holm", "bh": "fdr_bh", "none": None}
 
 
 def _kind(series: pd.Series) -> str:
-    values = series.dropna()
     if pd.api.types.is_bool_dtype(series):
         return "binary"
     if pd.api.types.is_numeric_dtype(series):
-        return "binary" if values.nunique() <= 2 else "continuous"
+        head = series.iloc[:1000].dropna()
+        if head.nunique() > 2:  # cheap answer for an ordinary numeric column
+            return "continuous"
+        return "binary" if series.dropna().nunique() <= 2 else "continuous"
+    values = series.dropna()
     n = values.nunique()
     if n <= 2:
         return "binary"
@@ -79,9 +82,12 @@ def likelihood_ratio_test(response: np.ndarray, response_kind: str, predictor: n
     full = np.hstack([base, predictor])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        if response_kind == "continuous":
-            small, big = sm.OLS(response, base).fit(), sm.OLS(response, full).fit()
+        if response_kind == "continuous":  # Gaussian log-likelihood ratio: n log(RSS_small / RSS_big)
             extra = predictor.shape[1]
+            rss = [float(np.sum((response - m @ _least_squares(m, response)[0]) ** 2)) for m in (base, full)]
+            stat = max(0.0, n * math.log(rss[0] / rss[1])) if rss[1] > 0 else math.inf
+            return {"test": "likelihood ratio (linear regression)", "partial_correlation": None,
+                    "statistic": float(stat), "df": int(extra), "p_value": float(stats.chi2.sf(stat, extra))}
         elif response_kind == "binary":
             small = sm.Logit(response, base).fit(disp=0, maxiter=100)
             big = sm.Logit(response, full).fit(disp=0, maxiter=100)
@@ -120,6 +126,7 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
     if correction not in CORRECTIONS:
         raise ValueError(f"unknown correction {correction!r}; use holm, bh or none")
     results = []
+    whole: dict[str, str] = {}  # kind of each column on all rows, reused when a test drops none
     for imp in implications:
         names = [imp["x"], imp["y"], *imp["given"]]
         entry = {"x": imp["x"], "y": imp["y"], "given": list(imp["given"]), "text": imp.get("text"),
@@ -133,7 +140,13 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
         cols = [mapping[v] for v in names]
         sub = frame[list(dict.fromkeys(cols))].dropna()
         entry["n"] = int(len(sub))
-        kinds = {v: _kind(sub[mapping[v]]) for v in names}
+        if len(sub) == len(frame):
+            for col in cols:
+                if col not in whole:
+                    whole[col] = _kind(sub[col])
+            kinds = {v: whole[mapping[v]] for v in names}
+        else:
+            kinds = {v: _kind(sub[mapping[v]]) for v in names}
         if "unusable" in kinds.values() or len(sub) < len(names) + 5:
             entry["reason"] = "too few complete rows" if len(sub) < len(names) + 5 else "a text column has too many categories"
             results.append(entry)
