@@ -42,12 +42,28 @@ SECTIONS = [
     ("cautions", "Cautions"),
 ]
 DEFAULT_CAUTIONS = [
-    "This is an observational estimate: it is causal only if the agreed diagram is right, in particular "
+    "This is an observational estimate: it is causal only if the diagram is right, in particular "
     "if no unmeasured common cause of treatment and outcome is missing from it.",
     "The statistical model's assumptions (listed with the result) must also hold.",
     "It is not a substitute for a randomised trial or for professional judgement; decisions about "
     "people's health or livelihood need both.",
 ]
+
+# What the diagram is called follows the stage the session was in: only a locked
+# diagram was agreed by the room.
+DIAGRAM_WORDS = {
+    "drafting": {"heading": "The diagram in draft (not yet agreed)", "as": "the diagram as drafted",
+                 "note": "The session was still in drafting: the room had not agreed this diagram."},
+    "debating": {"heading": "The diagram under debate (not yet agreed)", "as": "the diagram as it stood",
+                 "note": "The session was still debating: the room had not agreed this diagram."},
+    "agreed": {"heading": "The agreed diagram", "as": "the diagram as agreed", "note": None},
+    "estimation": {"heading": "The agreed diagram", "as": "the diagram as agreed", "note": None},
+}
+
+
+def diagram_words(stage: str | None) -> dict[str, str | None]:
+    return DIAGRAM_WORDS.get(stage or "", DIAGRAM_WORDS["drafting"])
+
 
 _env: jinja2.Environment | None = None
 
@@ -254,7 +270,8 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
     adjustment = _adjustment(diagram, ident, est)
     roles = (ident or {}).get("roles") or {}
     figure = diagram_svg(diagram, adjusted=adjustment["set"] or (), roles=roles, disputed=disputed_arrows,
-                         proposed=proposed, badges=badges)
+                         proposed=proposed, badges=badges,
+                         title=diagram_words(bundle["session"].get("stage"))["heading"])
     mapping = ((bundle.get("data") or {}).get("mapping") or (est or {}).get("mapping") or {})
     unmeasured = []
     for v in diagram.variables:
@@ -278,7 +295,9 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
         "software": bundle.get("software") or {},
         "rendered_with": __version__,
         "exported": when(bundle.get("exported_at")),
-        "sections": SECTIONS,
+        "sections": [(key, diagram_words(bundle["session"].get("stage"))["heading"] if key == "diagram" else text)
+                     for key, text in SECTIONS],
+        "diagram_words": diagram_words(bundle["session"].get("stage")),
         "question": question,
         "diagram": diagram,
         "variables": bundle.get("variables") or [],
