@@ -4,7 +4,6 @@ make one when the server listens on this computer only."""
 from __future__ import annotations
 
 import base64
-import os
 import urllib.parse
 
 import pytest
