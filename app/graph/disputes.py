@@ -408,7 +408,7 @@ def _common_by_refinement(fixed_dag: Dag, questions: list[Question], xs: set[str
                                COMMON_SEARCH_BUDGET_S / 2).run()
         if not result.complete:
             break
-        failing = []
+        failing: list[Question] = []
         for zs in result.sets:
             bad = next((q for q in questions if not is_adjustment_set(q, zs)), None)
             if bad is not None and all(bad is not c for c in chosen + failing):
