@@ -17,10 +17,13 @@ import argparse
 import json
 import os
 import sys
+from typing import TYPE_CHECKING
 
 from . import __version__
-from .graph.document import Diagram
 from .graph.errors import DiagramError
+
+if TYPE_CHECKING:
+    from .graph.document import Diagram
 
 EXIT_BAD_INPUT = 2
 
@@ -29,7 +32,7 @@ class InputProblem(Exception):
     """A problem with what the user gave the command; printed without a traceback."""
 
 
-def read_diagram(path: str) -> Diagram:
+def read_diagram(path: str) -> "Diagram":
     """Read a graph file in any supported format, judged by its extension."""
     from .graph.formats import read_graph_file
 

@@ -15,20 +15,35 @@ identify with the measured variables), with the message on stderr.
 from __future__ import annotations
 
 import argparse
+import importlib
 import json
 import sys
 from pathlib import Path
 
-from app.graph.document import parse_document
 from app.graph.errors import DiagramError
 
 from .errors import DataError
 from .methods import AUTO, method_names
-from .service import estimate, json_ready, sensitivity, validate
-from .validation import RESAMPLES, SET_CAP
-from .tables import DEFAULT_MAX_BYTES, load_table
 
 __all__ = ["add_parser", "run"]
+
+
+class _Default:
+    """An option's default kept in a module of the estimation stack, read only when the
+    help shows it or the command runs, so that building the parser imports nothing heavy."""
+
+    def __init__(self, module: str, name: str):
+        self.module, self.name = module, name
+
+    def value(self):
+        return getattr(importlib.import_module(self.module, __package__), self.name)
+
+    def __str__(self) -> str:
+        return str(self.value())
+
+
+def _value(option):
+    return option.value() if isinstance(option, _Default) else option
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -51,13 +66,17 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--room", default=None, metavar="FILE",
                         help="the room's stated hidden causes: a record bundle or a JSON list of "
                              '{"by", "variable", "times"} (default: none)')
-    parser.add_argument("--resamples", type=int, default=RESAMPLES, metavar="N",
-                        help=f"paired resamples for comparing adjustment sets (default {RESAMPLES})")
-    parser.add_argument("--set-cap", type=int, default=SET_CAP, metavar="N",
-                        help=f"compare at most N valid adjustment sets (default {SET_CAP})")
+    parser.add_argument("--resamples", type=int, default=_Default(".validation", "RESAMPLES"), metavar="N",
+                        help="paired resamples for comparing adjustment sets (default %(default)s)")
+    parser.add_argument("--set-cap", type=int, default=_Default(".validation", "SET_CAP"), metavar="N",
+                        help="compare at most N valid adjustment sets (default %(default)s)")
     parser.add_argument("--no-validation", action="store_true",
                         help="skip the checks against the data (validation is then null)")
-    parser.add_argument("--max-bytes", type=int, default=DEFAULT_MAX_BYTES, help=argparse.SUPPRESS)
+    parser.add_argument("--no-implication-tests", action="store_true",
+                        help="do not test the diagram's independences against the data with the estimate "
+                             "(checks is then null; the validation still tests them unless --no-validation)")
+    parser.add_argument("--max-bytes", type=int, default=_Default(".tables", "DEFAULT_MAX_BYTES"),
+                        help=argparse.SUPPRESS)
     parser.set_defaults(handler=run)
     return parser
 
@@ -99,6 +118,12 @@ def run(args) -> int:
         return _fail(f"{args.graph}: no such file")
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         return _fail(f"{args.graph} is not a JSON graph document ({exc})")
+    from app.graph.document import parse_document
+
+    from .service import estimate, json_ready, sensitivity, validate
+    from .tables import load_table
+
+    args.resamples, args.set_cap, args.max_bytes = map(_value, (args.resamples, args.set_cap, args.max_bytes))
     try:
         diagram = parse_document(raw)
         frame = load_table(args.data, max_bytes=args.max_bytes)
@@ -120,10 +145,10 @@ def run(args) -> int:
         if not 1 <= args.set_cap <= 20:
             return _fail("--set-cap must be from 1 to 20")
         result = estimate(diagram, frame, mapping, method=args.method, adjust=adjust,
-                          correction=args.correction)
+                          correction=args.correction, checks=not getattr(args, "no_implication_tests", False))
         result["validation"] = None if args.no_validation else validate(
             diagram, frame, mapping, method=args.method, adjust=adjust, correction=args.correction,
-            resamples=args.resamples, set_cap=args.set_cap, implication_checks=result["checks"])
+            resamples=args.resamples, set_cap=args.set_cap, implication_checks=result["checks"] or None)
         result["sensitivity"] = sensitivity(diagram, frame, mapping, method=args.method, adjust=adjust,
                                             statements=_room(getattr(args, "room", None)))
     except (DataError, DiagramError) as exc:

@@ -16,7 +16,6 @@ import sys
 from pathlib import Path
 
 from ..graph.errors import DiagramError
-from .bundle import BUNDLE_FORMAT, BundleError
 
 __all__ = ["add_parsers", "run_report", "run_export"]
 
@@ -30,11 +29,14 @@ def _fail(message: str) -> int:
 
 def _read_json(path: str) -> object:
     from ..graph.formats import parse_json_bytes, read_file_bytes
+    from .bundle import BundleError  # imported when the command runs: the parser stays quick
 
     return parse_json_bytes(read_file_bytes(path, BundleError), path, BundleError)
 
 
 def _write(text: str, output: str | None) -> None:
+    from .bundle import BundleError  # imported when the command runs: the parser stays quick
+
     if output in (None, "-"):
         sys.stdout.write(text)
         if not text.endswith("\n"):
@@ -47,6 +49,7 @@ def _write(text: str, output: str | None) -> None:
 
 
 def run_report(args: argparse.Namespace) -> int:
+    from .bundle import BundleError  # imported when the command runs: the parser stays quick
     from .report import render_report
 
     try:
@@ -69,6 +72,8 @@ def run_report(args: argparse.Namespace) -> int:
 
 
 def run_export(args: argparse.Namespace) -> int:
+    from .bundle import BUNDLE_FORMAT, BundleError  # imported when the command runs: the parser stays quick
+
     from ..graph.document import parse_document
     from ..graph.formats import read_graph_file, to_dot, to_graphml
 
