@@ -84,14 +84,20 @@ def projected_parents(dag: Dag, v: str, observed: Iterable[str]) -> set[str]:
 
 
 def _sibling_chain(starts: set[str], pool: set[str], hidden_of: dict[str, set[str]]) -> set[str]:
-    """Variables of ``pool`` joined to ``starts`` by chains of siblings inside ``pool``."""
-    found, frontier = set(), list(starts)
+    """Variables of ``pool`` joined to ``starts`` by chains of siblings inside ``pool``
+    (through an index from each unmeasured variable to the measured ones it reaches)."""
+    members: dict[str, list[str]] = {}
+    for b in pool:
+        for h in hidden_of[b]:
+            members.setdefault(h, []).append(b)
+    found, frontier, used = set(), list(starts), set()
     while frontier:
-        a = frontier.pop()
-        for b in pool:
-            if b not in found and b not in starts and hidden_of[a] & hidden_of[b]:
-                found.add(b)
-                frontier.append(b)
+        for h in hidden_of[frontier.pop()] - used:
+            used.add(h)
+            for b in members.get(h, ()):
+                if b not in found and b not in starts:
+                    found.add(b)
+                    frontier.append(b)
     return found
 
 
