@@ -166,10 +166,17 @@ def is_candidate_optimal(dag: Dag, xs: set[str], parents: set[str], extension: s
 
 def most_efficient_minimal(dag: Dag, xs: set[str], ys: set[str],
                            minimal_sets: list[list[str]]) -> list[str] | None:
-    """The minimal set at least as efficient as every other listed minimal set by the
-    comparison (Henckel et al. 2022), or None when none is."""
-    for candidate in minimal_sets:
-        c = set(candidate)
-        if all(is_at_least_as_efficient(dag, xs, ys, c, set(other)) for other in minimal_sets):
-            return list(candidate)
+    """A minimal set at least as efficient as every other listed minimal set by the
+    comparison (Henckel et al. 2022), or None when none is shown to be.
+
+    One pass keeps the set that the comparison favours, then the survivor is checked
+    against every other: 2k comparisons for k sets instead of k^2.
+    """
+    best = set(minimal_sets[0]) if minimal_sets else set()
+    for other in minimal_sets[1:]:
+        o = set(other)
+        if not is_at_least_as_efficient(dag, xs, ys, best, o) and is_at_least_as_efficient(dag, xs, ys, o, best):
+            best = o
+    if all(is_at_least_as_efficient(dag, xs, ys, best, set(other)) for other in minimal_sets):
+        return sorted(best)
     return None
