@@ -1,16 +1,19 @@
 """Long analyses that run beside the server: one at a time per session and kind,
 with progress the page can poll and a stop it can press.
 
-The work runs in a worker thread (numpy releases the interpreter lock in its
-inner loops, and the work yields it between steps), so the event loop keeps
-serving edits and pushes meanwhile. The work calls ``run.progress(done,
-total, step)``; when the analyst stops it, ``run.stopped()`` turns true and the
-work ends itself at its next step.
+Where the system can fork (Linux), the work runs in a child process forked from
+the server, so it shares the table already in memory without copying it, runs at
+a lower priority, and never holds the server's interpreter lock: edits keep being
+answered at their usual speed meanwhile. The child reports ``progress(done, total,
+step)`` and its result through a pipe; stopping ends the child. Elsewhere the
+work runs in a thread and checks ``run.stopped()`` at each step.
 """
 
 from __future__ import annotations
 
 import asyncio
+import multiprocessing
+import os
 import secrets
 import threading
 import time
@@ -19,7 +22,88 @@ from typing import Any, Awaitable, Callable
 
 from starlette.concurrency import run_in_threadpool
 
-__all__ = ["Run", "Runs", "RUNS"]
+__all__ = ["Run", "Runs", "RUNS", "RunRefused"]
+
+CHILD_NICENESS = 10
+PROGRESS_EVERY = 0.1  # seconds between progress messages from a child
+
+
+class RunRefused(Exception):
+    """The work refused its input (the child's DataError or DiagramError, by message)."""
+
+    def __init__(self, message: str):
+        super().__init__(message)
+        self.message = message
+
+
+class _Stopped(Exception):
+    pass
+
+
+class _ChildRun:
+    """What the work sees of its run inside a child process."""
+
+    def __init__(self, conn):
+        self._conn, self._last = conn, 0.0
+
+    def progress(self, done: int, total: int, step: str) -> None:
+        now = time.monotonic()
+        if now - self._last >= PROGRESS_EVERY or done >= total:
+            self._last = now
+            self._conn.send(("progress", int(done), int(total), step))
+
+    def stopped(self) -> bool:
+        return False  # the parent ends the child instead
+
+
+def _child(work, conn) -> None:
+    try:
+        os.nice(CHILD_NICENESS)
+    except OSError:
+        pass
+    try:
+        result = work(_ChildRun(conn))
+    except BaseException as exc:  # noqa: BLE001 - reported to the parent, which decides
+        message = getattr(exc, "message", None)
+        conn.send(("refused", message) if isinstance(message, str) else ("error", f"{type(exc).__name__}: {exc}"))
+    else:
+        conn.send(("done", result))
+    finally:
+        conn.close()
+
+
+def _in_child(run: "Run", work):
+    """Run ``work`` in a forked child; relay its progress to ``run``; end it when stopped."""
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_child, args=(work, send), daemon=True)
+    child.start()
+    send.close()
+    try:
+        while True:
+            if run.stopped():
+                raise _Stopped()
+            if not receive.poll(0.1):
+                if not child.is_alive() and not receive.poll(0):
+                    raise RuntimeError(f"the analysis process ended unexpectedly (exit code {child.exitcode})")
+                continue
+            try:
+                message = receive.recv()
+            except EOFError:
+                raise RuntimeError("the analysis process ended without an answer") from None
+            if message[0] == "progress":
+                run.progress(*message[1:])
+            elif message[0] == "done":
+                return message[1]
+            elif message[0] == "refused":
+                raise RunRefused(message[1])
+            else:
+                raise RuntimeError(message[1])
+    finally:
+        if child.is_alive():
+            child.terminate()
+        child.join(timeout=5)
+        receive.close()
 
 
 @dataclass
@@ -71,9 +155,11 @@ class Runs:
         run = Run(kind)
         self._runs[(session_id, kind)] = run
 
+        forking = "fork" in multiprocessing.get_all_start_methods()
+
         async def drive() -> None:
             try:
-                result = await run_in_threadpool(work, run)
+                result = await run_in_threadpool(_in_child, run, work) if forking else await run_in_threadpool(work, run)
             except BaseException as exc:  # noqa: BLE001 - every ending is recorded on the run
                 run.finished = time.time()
                 if run.stopped():

@@ -47,7 +47,7 @@ from ...graph.errors import DiagramError
 from ...reporting import charts
 from ...sessions.data import DATA_KEY, RESULT_KEYS, data_info, stored_name
 from ..deps import AnalystDep, MemberDep
-from ..runs import RUNS
+from ..runs import RUNS, RunRefused
 
 router = APIRouter(prefix="/api/sessions/{session_id}/estimation", tags=["estimation"])
 
@@ -318,7 +318,7 @@ async def create_validation(access: AnalystDep, response: Response, body: Any = 
                          f"({result['contradicted']} of {result['run']} checks contradict it)", kind="estimation")
 
     def fail(run, exc):
-        return exc.message if isinstance(exc, (DataError, DiagramError)) else None
+        return exc.message if isinstance(exc, (DataError, DiagramError, RunRefused)) else None
 
     run = RUNS.start(access.session_id, "validation", work, finish, fail)
     if wait:
