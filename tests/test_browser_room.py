@@ -459,3 +459,26 @@ def test_the_join_screen_shows_a_reachable_address_or_the_host_advice(tmp_path, 
         finally:
             browser.close()
     assert errors == []
+
+
+def test_a_read_only_record_says_what_read_only_means(room):
+    revision = room.send(room.fac, {"type": "set_stage", "stage": "debating"})
+    bundle = room.http.get(f"/api/sessions/{room.sid}/export/bundle", headers={TOKEN_HEADER: room.fac}).json()
+    opened = room.http.post("/api/records/import?mode=read-only&name=Rita", json=bundle)
+    assert opened.status_code == 201, opened.text
+    data = opened.json()
+    context = room.browser.new_context(viewport={"width": 1024, "height": 768})
+    page = context.new_page()
+    page.goto(f"{room.base}/s/{data['session_id']}#key={data['token']}")
+    wait(page, "!!(window.arrowmoot?.state && document.querySelector('.live-status.live-live'))", "live")
+    banner = page.locator(".stage-banner").inner_text()
+    assert banner.startswith("A read-only copy of a workshop record: everything can be read, nothing can be changed")
+    assert "facilitator can reopen" not in page.locator("body").inner_text()
+    assert "reader of a read-only record" in page.locator(".who").inner_text()
+    add = page.locator(".toolbar button", has_text="+ Variable")
+    assert add.is_disabled() and "read-only copy" in add.get_attribute("title")
+    page.locator('.node[data-name="age"] .shape').first.click()
+    assert page.locator(".panel .vote").count() == 0
+    assert page.locator(".node .port").count() == 0
+    page.screenshot(path=str(ARTIFACTS / "room-read-only.png"))
+    assert revision

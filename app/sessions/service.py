@@ -260,6 +260,10 @@ class Sessions:
         return self.workshop(session_id), member, key
 
     # -- changes ----------------------------------------------------------------------
+    def is_read_only(self, session_id: str) -> bool:
+        """Whether the session is a record reopened read-only (every change is refused)."""
+        return bool(self.store.get_attachment(session_id, READ_ONLY_KEY))
+
     async def submit(self, session_id: str, member: Member, command: Any,
                      key: Any = None) -> Event:
         """Apply, store and publish one command; return its event.

@@ -190,7 +190,7 @@ export function renderDebate(app) {
 }
 
 export function proposalCard(app, p) {
-  const closed = !['open', 'disputed'].includes(p.status) || ['agreed', 'estimation'].includes(app.state.session.stage);
+  const closed = !['open', 'disputed'].includes(p.status) || ['agreed', 'estimation'].includes(app.state.session.stage) || app.readOnly;
   const card = el('article', { class: `proposal proposal-${p.status}`, dataset: { proposal: p.id } },
     el('header', {},
       el('span', { class: 'proposal-id', text: `#${p.id}` }),
@@ -339,7 +339,7 @@ export function renderSelection(app) {
   const box = el('div', { class: 'panel-body' });
   const sel = app.view.selection;
   const s = app.state;
-  const locked = ['agreed', 'estimation'].includes(s.session.stage);
+  const locked = ['agreed', 'estimation'].includes(s.session.stage) || app.readOnly;
   if (!sel) {
     box.append(el('p', { class: 'muted', text: 'Select a variable or an arrow on the diagram to see and change it. Double-click empty space to add a variable; drag from the round handle (or Shift-drag) to draw an arrow.' }));
     box.append(pickList(app));
@@ -374,7 +374,7 @@ export function renderSelection(app) {
         locked ? null : el('div', { class: 'row' }, el('button', { type: 'submit', class: 'primary', text: 'Save' }),
           el('button', { type: 'button', class: 'danger', text: 'Delete variable', on: { click: () => app.send({ type: 'delete_variable', name: v.name }).then(() => app.select(null)) } }))));
     if (!locked) box.append(arrowFrom(app, v));
-    box.append(el('p', { class: 'muted', text: 'With the variable selected and the focus outside a field, the arrow keys move it (Shift: finer steps).' }));
+    if (!app.readOnly) box.append(el('p', { class: 'muted', text: 'With the variable selected and the focus outside a field, the arrow keys move it (Shift: finer steps).' }));
     const current = app.analysis?.revision === s.revision;
     const roles = current ? app.analysis?.analysis?.roles?.[v.name] : null;
     if (!current) box.append(el('p', { class: 'updating', text: 'Working out its role after the latest edit…' }));

@@ -35,7 +35,7 @@ export function renderBar(app) {
     el('button', { type: 'button', class: 'join-code', title: 'Show the join address large, for the room',
       on: { click: () => showJoinScreen(app) } },
       el('span', { class: 'muted join-where', text: `${location.host}/join · ` }), el('span', { class: 'muted', text: 'code ' }), el('strong', { text: s.session.join_code })),
-    el('div', { class: 'who' }, el('span', { text: `${app.me.name} · ${app.me.roles.join(', ')}` }),
+    el('div', { class: 'who' }, el('span', { text: `${app.me.name} · ${app.readOnly ? 'reader of a read-only record' : app.me.roles.join(', ')}` }),
       el('span', { class: 'muted', text: ` · ${onlineCount} online` })),
     app.statusBadge = el('span', { class: `live-status live-${app.status}`, text: statusText(app.status) }));
 }
@@ -48,15 +48,18 @@ export function renderStatus(app) {
 
 export function renderBanner(app) {
   const stage = app.state.session.stage;
-  const text = {
+  const text = app.readOnly ? READ_ONLY_WORDS : {
     debating: 'Debating: new arrows, removals and reversals become proposals for the room to vote on.',
     agreed: 'The diagram is agreed and locked. The facilitator can reopen it, with a reason for the log.',
     estimation: 'Estimation: the diagram is locked; the analyst works in the Estimation tab.',
   }[stage];
   app.banner.hidden = !text;
-  app.banner.className = `stage-banner stage-banner-${stage}`;
+  app.banner.className = `stage-banner stage-banner-${app.readOnly ? 'read-only' : stage}`;
   app.banner.textContent = text || '';
 }
+
+const READ_ONLY_WORDS = 'A read-only copy of a workshop record: everything can be read, nothing can be changed '
+  + 'or voted on, by anyone. To carry the work on, import the record again as a new session (Records page).';
 
 export function renderTabs(app) {
   const open = app.state.proposals.filter((p) => p.status === 'open').length;
@@ -93,7 +96,7 @@ export function canvasModel(app, previousRoles) {
     document: s.document, arrows, proposals: s.proposals, pendingByArrow, decisive,
     selection: app.view.selection, highlight: app.view.highlight, adjusted: app.view.adjusted || [],
     roles: app.analysis?.revision === s.revision ? app.analysis?.analysis?.roles : previousRoles,
-    locked: LOCKED.has(s.session.stage),
+    locked: LOCKED.has(s.session.stage) || Boolean(app.readOnly),
   };
 }
 

@@ -78,6 +78,7 @@ class SessionApp {
       return;
     }
     reduceLoaded(this.page, data);
+    this.readOnly = Boolean(data.read_only);
     saveKey(this.sessionId, this.token, this.state.session.title, this.me.role);
     this.buildLayout();
     this.live = new LiveSession(this.sessionId, this.token, {
@@ -301,7 +302,7 @@ class SessionApp {
   /** Drawing tools are off while the diagram is locked, and say why. */
   renderToolbarState() {
     const stage = this.state.session.stage;
-    const locked = commands.isLocked(stage);
+    const locked = commands.isLocked(stage) || this.readOnly;
     const why = locked ? lockedReason(this, stage) : null;
     for (const [button, title] of this.drawingButtons || []) {
       button.disabled = locked;
@@ -311,7 +312,7 @@ class SessionApp {
   }
 
   toggleConnect() {
-    if (this.canvas.mode !== 'connect' && commands.isLocked(this.state.session.stage)) {
+    if (this.canvas.mode !== 'connect' && (commands.isLocked(this.state.session.stage) || this.readOnly)) {
       toast(lockedReason(this, this.state.session.stage), 'error');
       return;
     }

@@ -62,7 +62,7 @@ async def read_session(access: MemberDep, hub: HubDep) -> dict:
     """The session's current state, as every participant sees it."""
     w = access.workshop
     return {"ok": True, "member": access.member.to_public(), "state": public_state(w),
-            "online": hub.online(w.id)}
+            "online": hub.online(w.id), "read_only": access.sessions.is_read_only(w.id)}
 
 
 @router.post("/sessions/{session_id}/commands")
