@@ -121,6 +121,7 @@ class EstimationPanel {
     }
     this.busy = null;
     this.render();
+    this.onIdle?.();
   }
 
   upload(file) {
@@ -580,13 +581,13 @@ export function mountEstimation(element, context) {
   if (!element.hidden) panel.load();
   // Others' uploads and estimates arrive as new session revisions: reload when one
   // lands while the panel is open (no request otherwise; a hidden panel reloads on opening).
+  // A revision that lands while an action runs is read once the action is done.
   let seen = context.state?.()?.revision;
-  context.subscribe?.((kind) => {
-    if (kind !== 'state' && kind !== 'patch') return;
+  const check = () => {
     const now = context.state?.()?.revision;
-    if (now === seen) return;
-    seen = now;
-    if (!element.hidden && !panel.busy) panel.load({ quiet: true });
-  });
+    if (now !== seen && !element.hidden && !panel.busy) { seen = now; panel.load({ quiet: true }); }
+  };
+  panel.onIdle = check;
+  context.subscribe?.((kind) => { if (kind === 'state' || kind === 'patch') check(); });
   return panel;
 }
