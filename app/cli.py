@@ -1,6 +1,6 @@
 """The ``arrowmoot`` command.
 
-    arrowmoot serve [--host 127.0.0.1] [--port 8000] [--db PATH]
+    arrowmoot serve [--host 127.0.0.1] [--port 8000] [--db PATH | --db postgresql://USER@HOST:PORT/DBNAME]
     arrowmoot identify GRAPH [--treatment A] [--outcome B] [--adjust Z1,Z2] [--format json|text]
     arrowmoot estimate GRAPH DATA [--map variable=column ...] [--method NAME]
     arrowmoot report BUNDLE.json [-o report.html]
@@ -70,6 +70,7 @@ def run_serve(args: argparse.Namespace) -> int:
     import uvicorn
 
     from .main import create_app
+    from .storage import StorageError
 
     shown_host = f"[{args.host}]" if ":" in args.host else args.host
     if args.host in ("0.0.0.0", "::"):
@@ -77,7 +78,11 @@ def run_serve(args: argparse.Namespace) -> int:
     os.environ.setdefault("ARROWMOOT_PUBLIC_URL", f"http://{shown_host}:{args.port}")
     # what the join screen needs to tell the room an address it can reach
     os.environ["ARROWMOOT_LISTEN_HOST"], os.environ["ARROWMOOT_LISTEN_PORT"] = args.host, str(args.port)
-    app = create_app(db_path=args.db)
+    try:
+        app = create_app(db_path=args.db)
+    except StorageError as err:
+        print(f"error: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     if args.host not in ("127.0.0.1", "localhost", "::1"):
         print(
             f"warning: serving on {args.host}: anyone who can reach this address can open the "
@@ -95,13 +100,21 @@ def _open_sessions(db: str | None):
     """The sessions of an existing database (None, with a message, when there is none)."""
     from .sessions import Sessions
     from .settings import Settings
-    from .store import Store
+    from .storage import StorageError, is_database_url, open_store
 
-    path = db or str(Settings().db_path)
-    if not os.path.exists(path):  # never create a database by a typo
+    settings = Settings()
+    path = db or str(settings.db_path)
+    if not is_database_url(path) and not os.path.exists(path):  # never create a database by a typo
         print(f"error: no database at {path}; pass --db with the file the server uses", file=sys.stderr)
         return None
-    return Sessions(Store(path), use_processes=False)
+    if db:
+        settings.db_path = path
+        settings.__post_init__()
+    try:
+        return Sessions(open_store(path, data_dir=settings.shared_data_dir()), use_processes=False)
+    except StorageError as err:
+        print(f"error: {err}", file=sys.stderr)
+        return None
 
 
 def run_sessions(args: argparse.Namespace) -> int:
@@ -154,18 +167,19 @@ def build_parser() -> argparse.ArgumentParser:
                        help="address to bind (default 127.0.0.1, this machine only)")
     serve.add_argument("--port", type=int, default=8000, help="port (default 8000)")
     serve.add_argument("--db", default=None,
-                       help="SQLite database file; attached data go in its folder "
-                       "(default arrowmoot.sqlite3 in the per-user data folder)")
+                       help="SQLite database file, whose folder holds attached data (default "
+                       "arrowmoot.sqlite3 in the per-user data folder), or postgresql://USER@HOST:PORT/DBNAME "
+                       "for a database several servers share (attached data in ARROWMOOT_DATA_DIR)")
     serve.set_defaults(run=run_serve)
 
     sessions = commands.add_parser("sessions", help="list the sessions in the database and their members")
-    sessions.add_argument("--db", default=None, help="SQLite database file (default: as for serve)")
+    sessions.add_argument("--db", default=None, help="SQLite database file or PostgreSQL URL (default: as for serve)")
     sessions.set_defaults(run=run_sessions)
 
     key = commands.add_parser("key", help="issue a new key for a session's facilitator or a member")
     key.add_argument("session", help="session id (from the link, or `arrowmoot sessions`)")
     key.add_argument("--member", default=None, help="member's display name (default: the facilitator)")
-    key.add_argument("--db", default=None, help="SQLite database file (default: as for serve)")
+    key.add_argument("--db", default=None, help="SQLite database file or PostgreSQL URL (default: as for serve)")
     key.set_defaults(run=run_key)
 
     identify = commands.add_parser("identify", help="analyse a diagram for its question")

@@ -17,12 +17,12 @@ from .demo import open_demo_session
 from .errors import install_error_handlers
 from .resources import resource_dir
 from .settings import Settings
-from .store import Store
+from .storage import open_store
 from .web import joining, pages, ws
 from .web.guards import BodyLimit, JoinLimiter, OriginGuard
 from .sessions import Sessions
 from .web.live import Hub
-from .web.routes import identify
+from .web.routes import health, identify
 from .web.routes import sessions as session_routes
 
 __all__ = ["create_app"]
@@ -38,14 +38,19 @@ CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' 
 
 def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None = None,
                settings: Settings | None = None) -> FastAPI:
-    """The FastAPI app over one SQLite file (``settings.db_path`` unless ``db_path`` is given)."""
+    """The FastAPI app over one database (``settings.db_path`` unless ``db_path`` is given):
+    an SQLite file, or PostgreSQL for a ``postgresql://`` URL.
+
+    Raises app.storage.StorageError when the database cannot be opened or is at a
+    newer schema version than this code knows."""
     settings = settings or Settings()
     if db_path is not None:
-        settings.db_path = Path(db_path)
+        settings.db_path = db_path  # type: ignore[assignment]
     if data_dir is not None:
         settings.data_dir = Path(data_dir)
+    settings.__post_init__()
 
-    store = Store(settings.db_path, data_dir=settings.data_dir)
+    store = open_store(settings.db_path, data_dir=settings.shared_data_dir())
     sessions = Sessions(store, use_processes=settings.analysis_in_process,
                         key_lifetime=settings.key_lifetime_days * 86400.0)
     hub = Hub(sessions)
@@ -57,6 +62,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
         yield
         await hub.close()
         await sessions.close()
+        store.release()
 
     app = FastAPI(title="Arrowmoot", version="0.1.0", lifespan=lifespan)
     app.state.settings = settings
@@ -81,6 +87,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
     app.add_middleware(BodyLimit, limit=settings.request_limit_bytes)
     app.add_middleware(OriginGuard, allowed=settings.allowed_origins)
 
+    app.include_router(health.router)
     app.include_router(identify.router)
     app.include_router(session_routes.router)
     app.include_router(ws.router)

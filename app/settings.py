@@ -17,9 +17,11 @@ __all__ = ["Settings", "SETTING_HELP", "user_data_dir"]
 
 SETTING_HELP = {
     "db_path": "SQLite database file holding every session (created if missing; default "
-    "arrowmoot.sqlite3 in the per-user data folder).",
+    "arrowmoot.sqlite3 in the per-user data folder), or a PostgreSQL URL "
+    "(postgresql://USER@HOST:PORT/DBNAME) for a database several servers share.",
     "data_dir": "Directory for per-session files such as attached data sets (default: the "
-    "database's folder).",
+    "database's folder; with PostgreSQL, the per-user data folder). Every server process "
+    "sharing a PostgreSQL database must see the same directory.",
     "upload_limit_bytes": "Largest data upload accepted, in bytes (default 500 MB).",
     "allowed_origins": "Origins allowed to open the WebSocket and call the API from a browser; "
     "empty means same origin only.",
@@ -51,6 +53,11 @@ def user_data_dir() -> Path:
     return base / "arrowmoot"
 
 
+def _is_database_url(value: object) -> bool:
+    # The same test as app.storage.is_database_url (kept here so settings import nothing).
+    return isinstance(value, str) and value.startswith(("postgresql://", "postgres://"))
+
+
 def _optional_path(value: str) -> Path | None:
     return Path(value) if value else None
 
@@ -61,7 +68,7 @@ def _env(name: str, default: str) -> str:
 
 @dataclass
 class Settings:
-    db_path: Path = field(default_factory=lambda: Path(_env("db_path", str(user_data_dir() / "arrowmoot.sqlite3"))))
+    db_path: Path | str = field(default_factory=lambda: Path(_env("db_path", str(user_data_dir() / "arrowmoot.sqlite3"))))
     data_dir: Path | None = field(default_factory=lambda: _optional_path(_env("data_dir", "")))
     upload_limit_bytes: int = field(
         default_factory=lambda: int(_env("upload_limit_bytes", str(500 * 1024 * 1024)))
@@ -94,13 +101,20 @@ class Settings:
     )
 
     def __post_init__(self) -> None:
-        self.db_path = Path(self.db_path)
+        if not _is_database_url(self.db_path):
+            self.db_path = Path(self.db_path)
         self.data_dir = Path(self.data_dir) if self.data_dir is not None else None
         self.demo_document = Path(self.demo_document)
         if self.upload_limit_bytes <= 0:
             raise ValueError("upload_limit_bytes must be positive")
         if self.request_limit_bytes <= 0 or self.join_attempts_per_minute <= 0:
             raise ValueError("request_limit_bytes and join_attempts_per_minute must be positive")
+
+    def shared_data_dir(self) -> Path | None:
+        """The folder for attached files: as set, else beside an SQLite file (None), else the per-user folder."""
+        if self.data_dir is not None or not _is_database_url(self.db_path):
+            return self.data_dir
+        return user_data_dir() / "files"
 
     @classmethod
     def names(cls) -> list[str]:

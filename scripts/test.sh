@@ -1,12 +1,19 @@
 #!/usr/bin/env bash
 # Install what the tests need (Python packages; Debian chromium for the browser
-# tests, when running as root and it is missing; axe-core from npm), lint and type-check, and run the whole suite.
+# tests and Debian postgresql for the storage tests, when running as root and missing; axe-core from npm), lint and type-check, and run the whole suite.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 if ! command -v chromium >/dev/null 2>&1 && [ "$(id -u)" = "0" ] && command -v apt-get >/dev/null 2>&1; then
     export DEBIAN_FRONTEND=noninteractive
     apt-get update -qq >/dev/null
     apt-get install -y -qq chromium >/dev/null
+fi
+# Debian's PostgreSQL server for the tests that run on both stores (they start a
+# throwaway one of their own with initdb and pg_ctl, and are skipped, saying why, without it).
+if ! ls /usr/lib/postgresql/*/bin/initdb >/dev/null 2>&1 && ! command -v initdb >/dev/null 2>&1 \
+        && [ "$(id -u)" = "0" ] && command -v apt-get >/dev/null 2>&1; then
+    apt-get update -qq >/dev/null
+    DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends postgresql >/dev/null
 fi
 python3 -m pip install --quiet --disable-pip-version-check -e '.[test]'
 # axe-core (npm) for the browser tests' accessibility audit, into a folder they read.

@@ -10,13 +10,15 @@ from fastapi.testclient import TestClient
 
 from app.main import create_app
 from app.settings import Settings
+from pg_server import db_target, postgres_cluster, pytest_terminal_summary  # noqa: F401  (fixtures, hook)
 
 ROOT = Path(__file__).resolve().parent.parent
 TOKEN_HEADER = "X-Arrowmoot-Token"
 
 
-def make_app(tmp_path: Path, *, demo: bool = False):
-    settings = Settings(db_path=tmp_path / "arrowmoot.sqlite3", data_dir=tmp_path / "data",
+def make_app(tmp_path: Path, *, demo: bool = False, db: str | None = None):
+    """An app on its own database: an SQLite file under ``tmp_path``, or ``db`` (a file or URL)."""
+    settings = Settings(db_path=db or tmp_path / "arrowmoot.sqlite3", data_dir=tmp_path / "data",
                         demo_session=demo, analysis_in_process=False)
     return create_app(settings=settings)
 

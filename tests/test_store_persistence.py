@@ -1,4 +1,4 @@
-"""SQLite storage: WAL mode, hashed keys, and a restart that brings everything back."""
+"""Storage: a restart brings everything back, on SQLite and on PostgreSQL; SQLite's WAL mode and hashed keys."""
 
 from __future__ import annotations
 
@@ -10,8 +10,8 @@ from fastapi.testclient import TestClient
 from conftest import TOKEN_HEADER, Room, make_app, open_room
 
 
-def test_restart_brings_back_sessions_edits_and_votes(tmp_path):
-    with TestClient(make_app(tmp_path)) as client:
+def test_restart_brings_back_sessions_edits_and_votes(tmp_path, db_target):
+    with TestClient(make_app(tmp_path, db=db_target)) as client:
         room = open_room(client, treatment="bike_lease", outcome="sick_days")
         other = open_room(client, title="Second room")
         ann = room.join("Ann")
@@ -24,7 +24,7 @@ def test_restart_brings_back_sessions_edits_and_votes(tmp_path):
         before = room.state()
         history_before = client.get(f"/api/sessions/{room.id}/history",
                                     headers={TOKEN_HEADER: room.facilitator}).json()
-    with TestClient(make_app(tmp_path)) as client:
+    with TestClient(make_app(tmp_path, db=db_target)) as client:
         again = Room(client, {"session_id": room.id, "join_code": room.join_code,
                               "token": room.facilitator})
         after = again.state()
@@ -56,19 +56,19 @@ def test_database_uses_wal_and_stores_only_key_digests(tmp_path):
         assert token.split(".")[1].encode() not in raw
 
 
-def test_demo_session_created_once(tmp_path, capsys):
-    with TestClient(make_app(tmp_path, demo=True)) as client:
+def test_demo_session_created_once(tmp_path, capsys, db_target):
+    with TestClient(make_app(tmp_path, demo=True, db=db_target)) as client:
         sessions = client.app.state.store.list_sessions()
     assert len(sessions) == 1
     printed = capsys.readouterr().err
     assert "Join code for participants" in printed and "#key=" in printed
-    with TestClient(make_app(tmp_path, demo=True)) as client:
+    with TestClient(make_app(tmp_path, demo=True, db=db_target)) as client:
         assert len(client.app.state.store.list_sessions()) == 1
     assert "#key=" not in capsys.readouterr().err
 
 
-def test_attachments_are_per_session(tmp_path):
-    app = make_app(tmp_path)
+def test_attachments_are_per_session(tmp_path, db_target):
+    app = make_app(tmp_path, db=db_target)
     store = app.state.store
     with TestClient(app) as client:
         a, b = open_room(client), open_room(client, title="B")
@@ -76,13 +76,18 @@ def test_attachments_are_per_session(tmp_path):
     assert store.get_attachment(a.id, "mapping") == {"bike_lease": "joined"}
     assert store.get_attachment(b.id, "mapping") is None
     assert store.session_data_dir(a.id).is_dir()
+    store.put_attachment(a.id, "mapping", {"bike_lease": "leased"})  # replaced, not added
+    assert store.get_attachment(a.id, "mapping") == {"bike_lease": "leased"}
+    assert "mapping" in store.list_attachment_keys(a.id)
+    assert store.delete_attachment(a.id, "mapping") is True
+    assert store.delete_attachment(a.id, "mapping") is False
 
 
-def test_undo_still_works_after_a_restart(tmp_path):
-    with TestClient(make_app(tmp_path)) as client:
+def test_undo_still_works_after_a_restart(tmp_path, db_target):
+    with TestClient(make_app(tmp_path, db=db_target)) as client:
         room = open_room(client, treatment="bike_lease", outcome="sick_days")
         room.ok(room.facilitator, {"type": "add_arrow", "from": "bike_lease", "to": "sick_days"})
-    with TestClient(make_app(tmp_path)) as client:
+    with TestClient(make_app(tmp_path, db=db_target)) as client:
         again = Room(client, {"session_id": room.id, "join_code": room.join_code,
                               "token": room.facilitator})
         again.ok(room.facilitator, {"type": "undo"})

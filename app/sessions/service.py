@@ -25,7 +25,7 @@ from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
 from ..estimation.design import propose_mapping
 from ..estimation.tables import load_table
 from ..reporting.bundle import attachments_from_bundle, restore_workshop
-from ..store import Store
+from ..storage import Store
 from ..workshop.commands import add_member, apply_command, new_workshop, read_document
 from ..workshop.events import Event, new_event
 from ..workshop.models import Member, Workshop
@@ -162,6 +162,12 @@ class Sessions:
         self.store.replace_member_token(session_id=session_id, member_id=member.id,
                                         token_hash=keys.hash_key(key))
         return member, key
+
+    def storage_status(self) -> dict[str, Any]:
+        """Whether the database answers, its kind and its schema version (for a readiness check)."""
+        ready = self.store.is_ready()
+        return {"ready": ready, "store": self.store.kind,
+                "schema_version": self.store.schema_version() if ready else None}
 
     def list_sessions(self) -> list[tuple[dict[str, Any], list[Member]]]:
         """Every stored session's row with its members (for the command line)."""

@@ -18,7 +18,7 @@ Everything below is stable; import from ``app.web.deps``.
   ``.document()`` (the graph document dict), ``.revision``, ``.title``,
   ``.require_stage(*stages)`` (409 otherwise),
   ``.put_attachment(key, value)`` / ``.get_attachment(key, default=None)`` /
-  ``.delete_attachment(key)`` (a per-session JSON store in SQLite),
+  ``.delete_attachment(key)`` (a per-session JSON store in the database),
   ``.data_dir()`` (a per-session directory under the data dir, created on use),
   ``await .log(summary, kind="estimation", **extra)`` (adds an event to the
   session history and pushes the new state to every participant).
@@ -50,7 +50,7 @@ from ..graph.document import Diagram
 from ..sessions import Sessions
 from ..sessions.keys import TOKEN_HEADER
 from ..settings import Settings
-from ..store import Store
+from ..storage import Store
 from ..workshop.models import Member, Workshop
 from .live import Hub
 

@@ -1,4 +1,4 @@
-"""SQLite storage: the only module that touches the database.
+"""SQLite storage: one file beside the server, the embedded default.
 
 One file holds every session. Each session row keeps the workshop state as
 JSON plus its revision; every change appends one row to ``events`` in the
@@ -12,77 +12,100 @@ Tokens are never stored: ``tokens`` keeps their SHA-256 digests.
 from __future__ import annotations
 
 import json
-import re
 import sqlite3
 import threading
 import time
 from pathlib import Path
 from typing import Any, Iterator
 
-__all__ = ["Store", "SCHEMA_SQL", "StoredEvent"]
+from .base import StorageError, StoreUnavailable, StoredEvent, session_folder
+from .migrations import VERSION_TABLE_SQL, check_not_newer, migrations_for
 
-SCHEMA_SQL = """
-CREATE TABLE IF NOT EXISTS sessions (
-    id        TEXT PRIMARY KEY,
-    title     TEXT NOT NULL,
-    join_code TEXT NOT NULL UNIQUE,
-    created   REAL NOT NULL,
-    updated   REAL NOT NULL,
-    revision  INTEGER NOT NULL,
-    state     TEXT NOT NULL
-);
-CREATE TABLE IF NOT EXISTS tokens (
-    token_hash TEXT PRIMARY KEY,
-    session_id TEXT NOT NULL REFERENCES sessions(id) ON DELETE CASCADE,
-    member_id  TEXT NOT NULL,
-    created    REAL NOT NULL
-);
-CREATE TABLE IF NOT EXISTS events (
-    seq        INTEGER PRIMARY KEY AUTOINCREMENT,
-    session_id TEXT NOT NULL REFERENCES sessions(id) ON DELETE CASCADE,
-    revision   INTEGER NOT NULL,
-    at         REAL NOT NULL,
-    actor      TEXT,
-    kind       TEXT NOT NULL,
-    data       TEXT NOT NULL
-);
-CREATE INDEX IF NOT EXISTS tokens_by_member ON tokens(member_id);
-CREATE INDEX IF NOT EXISTS events_by_session ON events(session_id, revision);
-CREATE TABLE IF NOT EXISTS attachments (
-    session_id TEXT NOT NULL REFERENCES sessions(id) ON DELETE CASCADE,
-    key        TEXT NOT NULL,
-    value      TEXT NOT NULL,
-    updated    REAL NOT NULL,
-    PRIMARY KEY (session_id, key)
-);
-"""
-
-_SAFE_ID = re.compile(r"^[A-Za-z0-9_-]{1,64}$")
-
-StoredEvent = dict[str, Any]
+__all__ = ["SQLiteStore", "StoredEvent"]
 
 
-class Store:
+def _statements(sql: str) -> Iterator[str]:
+    """The statements of a migration file, one at a time (comments stay with the next one)."""
+    pending = ""
+    for line in sql.splitlines(keepends=True):
+        pending += line
+        if sqlite3.complete_statement(pending):
+            yield pending
+            pending = ""
+
+
+class SQLiteStore:
     """A thread-safe handle on the database file. Functions take keyword arguments."""
 
-    def __init__(self, db_path: str | Path, *, data_dir: str | Path | None = None):
+    kind = "sqlite"
+
+    def __init__(self, db_path: str | Path, *, data_dir: str | Path | None = None,
+                 upgrade_to: int | None = None):
         self.db_path = Path(db_path)
-        self.db_path.parent.mkdir(parents=True, exist_ok=True)
         self.data_dir = Path(data_dir) if data_dir is not None else self.db_path.parent
         self._lock = threading.RLock()
-        self._conn = sqlite3.connect(self.db_path, check_same_thread=False, isolation_level=None)
-        self._conn.row_factory = sqlite3.Row
-        with self._lock:
+        try:
+            self.db_path.parent.mkdir(parents=True, exist_ok=True)
+            self._conn = sqlite3.connect(self.db_path, check_same_thread=False, isolation_level=None)
+            self._conn.row_factory = sqlite3.Row
             self._conn.execute("PRAGMA journal_mode=WAL")
             # NORMAL in WAL mode survives an application crash; only an OS crash
             # or power cut can lose the last transactions.
             self._conn.execute("PRAGMA synchronous=NORMAL")
             self._conn.execute("PRAGMA foreign_keys=ON")
-            self._conn.executescript(SCHEMA_SQL)
+            self._conn.execute(VERSION_TABLE_SQL)
+        except (OSError, sqlite3.Error) as exc:
+            raise StoreUnavailable(f"cannot open the SQLite database {self.db_path}: {exc}") from exc
+        self._migrate(upgrade_to)
+
+    def _migrate(self, upgrade_to: int | None) -> None:
+        """Apply every migration the file lacks (up to ``upgrade_to``), each in one transaction."""
+        where = str(self.db_path)
+        for migration in migrations_for(self.kind)[:upgrade_to]:
+            with self._lock:
+                current = 0
+                self._conn.execute("BEGIN IMMEDIATE")  # re-read under the write lock: another
+                try:                                     # process may have just upgraded it
+                    current = self.schema_version()
+                    check_not_newer(current, self.kind, where)
+                    if migration.version <= current:
+                        self._conn.execute("ROLLBACK")
+                        continue
+                    for statement in _statements(migration.sql):
+                        self._conn.execute(statement)
+                    self._conn.execute("INSERT INTO schema_migrations (version, name, applied) VALUES (?, ?, ?)",
+                                       (migration.version, migration.name, time.time()))
+                    self._conn.execute("COMMIT")
+                except sqlite3.Error as exc:
+                    self._conn.execute("ROLLBACK")
+                    raise StorageError(
+                        f"upgrading the SQLite database {where} to schema version {migration.version} "
+                        f"({migration.name}) failed: {exc}; it was left at version {current}") from exc
+                except BaseException:
+                    if self._conn.in_transaction:
+                        self._conn.execute("ROLLBACK")
+                    raise
+        with self._lock:
+            check_not_newer(self.schema_version(), self.kind, where)
+
+    def schema_version(self) -> int:
+        with self._lock:
+            return self._conn.execute("SELECT COALESCE(MAX(version), 0) FROM schema_migrations").fetchone()[0]
+
+    def is_ready(self) -> bool:
+        try:
+            with self._lock:
+                self._conn.execute("SELECT 1").fetchone()
+            return True
+        except sqlite3.Error:
+            return False
 
     def close(self) -> None:
         with self._lock:
             self._conn.close()
+
+    def release(self) -> None:
+        """Nothing to let go of: the one connection stays open while the store is used."""
 
     def journal_mode(self) -> str:
         with self._lock:
@@ -300,11 +323,7 @@ class Store:
     # -- files ----------------------------------------------------------------
     def session_data_dir(self, session_id: str) -> Path:
         """A directory of the session's own (created on first use)."""
-        if not _SAFE_ID.match(session_id):
-            raise ValueError(f"not a session id: {session_id!r}")
-        path = self.data_dir / "sessions" / session_id
-        path.mkdir(parents=True, exist_ok=True)
-        return path
+        return session_folder(self.data_dir, session_id)
 
     def iter_session_ids(self) -> Iterator[str]:
         with self._lock:
