@@ -640,7 +640,7 @@ def _identify(q: Question, set_cap: int) -> dict:
         "front_door_more": False,
         "instruments": [],
     }
-    if sets and optimal is None and q.cn:
+    if sets and optimal is None and q.cn and not more:  # the comparison needs every minimal set
         out["best_minimal_set"], out["best_minimal_note"] = most_efficient_minimal_set(q, sets)
     if sets:
         out["identifiable"], out["strategy"] = True, "adjustment"
