@@ -102,12 +102,13 @@ class Column:
     names: tuple[str, ...]  # names of the design columns it became
     treated_level: str | None = None  # for a two-level text column, the level coded 1
     reference_level: str | None = None  # for indicators, the omitted level
+    levels: tuple[str, ...] = ()  # for a text column, every level (sorted; the first is the reference)
 
     def to_json(self) -> dict:
         return {
             "variable": self.variable, "column": self.column, "kind": self.kind,
             "design_columns": list(self.names), "level_coded_1": self.treated_level,
-            "reference_level": self.reference_level,
+            "reference_level": self.reference_level, "levels": list(self.levels),
         }
 
 
@@ -250,11 +251,11 @@ def _as_number(series: pd.Series, var: str, col: str, role: str) -> tuple[np.nda
     )
 
 
-def _as_covariate(series: pd.Series, var: str, col: str) -> tuple[np.ndarray, list[str], str, str | None]:
+def _as_covariate(series: pd.Series, var: str, col: str) -> tuple[np.ndarray, list[str], str, list[str]]:
     """Numbers stay; text with few levels becomes indicator columns (first level omitted)."""
     if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
         values, kind, _ = _as_number(series, var, col, "adjustment variable")
-        return values[:, None], [col], kind, None
+        return values[:, None], [col], kind, []
     text, levels = _text_levels(series)
     parsed = pd.to_numeric(pd.Series(levels, dtype=object), errors="coerce")
     if len(levels) > 2 and parsed.notna().mean() >= 0.5:
@@ -279,7 +280,7 @@ def _as_covariate(series: pd.Series, var: str, col: str) -> tuple[np.ndarray, li
     for j in range(1, len(levels)):
         block[:, j - 1] = codes == j
     block[codes < 0] = np.nan
-    return block, [f"{col}={lv}" for lv in levels[1:]], "categorical", levels[0]
+    return block, [f"{col}={lv}" for lv in levels[1:]], "categorical", levels
 
 
 def build_design(
@@ -306,7 +307,8 @@ def build_design(
         col = mapping[var]
         values, kind, levels = _as_number(frame[col], var, col, role)
         low, high = levels if levels is not None else (None, None)
-        columns[var] = Column(var, col, kind, (f"{role}:{var}",), treated_level=high, reference_level=low)
+        columns[var] = Column(var, col, kind, (f"{role}:{var}",), treated_level=high, reference_level=low,
+                              levels=tuple(levels) if levels is not None else ())
         return values
 
     # Text covariates become indicator blocks first (their width is needed); numeric
@@ -319,14 +321,15 @@ def build_design(
         col = mapping[var]
         series = frame[col]
         if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
-            names, kind, reference, block = [col], None, None, None
+            names, kind, levels, block = [col], None, [], None
         else:
-            block, names, kind, reference = _as_covariate(series, var, col)
+            block, names, kind, levels = _as_covariate(series, var, col)
         groups[var] = list(range(len(cov_names), len(cov_names) + len(names)))
         cov_names.extend(names)
         pending.append((var, block))
         if kind is not None:
-            columns[var] = Column(var, col, kind, tuple(names), reference_level=reference)
+            columns[var] = Column(var, col, kind, tuple(names), reference_level=levels[0] if levels else None,
+                                  levels=tuple(levels))
 
     n_total = len(frame)
     x = np.empty((n_total, 2 + len(cov_names)))

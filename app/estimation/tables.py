@@ -19,6 +19,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.csv as pa_csv
 
+from .columns import describe_text
 from .errors import EmptyTable, FileTooLarge, NotATable, TooFewRows
 
 __all__ = ["DEFAULT_MAX_BYTES", "load_table", "read_table_bytes", "profile_table", "column_kind"]
@@ -223,6 +224,8 @@ def profile_table(frame: pd.DataFrame, *, examples: int = 3) -> list[dict]:
         else:
             top = values.value_counts().head(examples)
             entry["examples"] = [str(v) for v in top.index]
+            if kind == "text":
+                entry.update(describe_text(values))
         out.append(entry)
     return out
 

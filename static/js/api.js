@@ -126,8 +126,9 @@ export async function uploadEstimationData(sessionId, token, file) {
 }
 
 /** Save which column measures which variable. */
-export function saveEstimationMapping(sessionId, token, mapping) {
-  return callApi('PUT', `${sessionPath(sessionId)}/estimation/mapping`, { mapping }, token);
+export function saveEstimationMapping(sessionId, token, mapping, textAsMissing) {
+  const body = textAsMissing ? { mapping, text_as_missing: textAsMissing } : { mapping };
+  return callApi('PUT', `${sessionPath(sessionId)}/estimation/mapping`, body, token);
 }
 
 /** Run one of the estimation stage's analyses: 'estimate', 'validation', 'sensitivity' or 'disputes'. */

@@ -40,6 +40,26 @@ function chart(svgText, label) {
   return box;
 }
 
+/** How the estimate will read a column, from its profile, in a few words. */
+function columnKind(p) {
+  if (!p) return '';
+  if (p.kind === 'number') return 'number';
+  if (p.kind === 'binary') return p.examples?.length ? `two categories (${p.examples.join(' / ')})` : 'two values (0/1)';
+  if (p.kind === 'empty') return 'empty';
+  if (p.text_cells) return `numbers, with text in ${p.text_cells} row${p.text_cells === 1 ? '' : 's'}`;
+  return `text: ${p.level_count ?? p.distinct} categories`;
+}
+
+/** How the estimate coded each text or two-valued column, in words (null when all were numbers). */
+function codingText(columns) {
+  const lines = Object.values(columns || {}).map((c) => {
+    if (c.kind === 'categorical') return `${c.variable} (column ${c.column}): ${c.levels.length} categories (${c.levels.join(', ')}); reference level ${c.reference_level}, one indicator for each other level`;
+    if (c.kind === 'binary' && c.level_coded_1 && c.level_coded_1 !== '1') return `${c.variable} (column ${c.column}): ${c.level_coded_1} coded 1, ${c.reference_level} coded 0 (reference level)`;
+    return null;
+  }).filter(Boolean);
+  return lines.length ? lines : null;
+}
+
 function table(headers, rows, cls = '') {
   return el('table', { class: `am-table ${cls}` },
     el('thead', {}, el('tr', {}, ...headers.map((h) => el('th', { text: h })))),
@@ -134,16 +154,24 @@ class EstimationPanel {
     });
   }
 
-  saveMapping() {
+  saveMapping(textAsMissing) {
     const mapping = {};
     for (const select of this.root.querySelectorAll('select[data-variable]')) {
       if (select.value) mapping[select.dataset.variable] = select.value;
     }
     return this.act('mapping', async () => {
-      const body = await saveEstimationMapping(this.context.sessionId, this.context.token, mapping);
+      const body = await saveEstimationMapping(this.context.sessionId, this.context.token, mapping, textAsMissing);
       this.data = body.data;
-      this.message = { kind: 'ok', text: 'Mapping saved.' };
+      const n = body.data.warnings?.filter((w) => w.severity === 'warning').length || 0;
+      const what = textAsMissing ? 'Text cells now count as missing; mapping saved' : 'Mapping saved';
+      this.message = n ? { kind: 'error', text: `${what}, with ${n} warning${n === 1 ? '' : 's'}: see beside the mapping.` }
+        : { kind: 'ok', text: `${what}.` };
     });
+  }
+
+  /** Count the text cells of these mostly-numeric columns as missing (and save the mapping shown). */
+  blankText(column) {
+    return this.saveMapping([...new Set([...(this.data.text_as_missing || []), column])]);
   }
 
   options() {
@@ -319,14 +347,31 @@ class EstimationPanel {
     if (!this.data) return null;
     const mapping = this.data.mapping || {};
     const box = el('section', { class: 'am-section', 'aria-label': 'Measures' }, el('h4', { text: '2. Which column measures which variable' }));
+    const profile = Object.fromEntries((this.data.profile || []).map((p) => [p.name, p]));
+    const warnings = Object.fromEntries((this.data.warnings || []).map((w) => [w.variable, w]));
     const rows = this.variables.map((v) => {
-      const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit || !this.isOpenForData, 'aria-label': `Column for ${v.name}` },
+      const kindCell = el('td', { class: 'am-kind', dataset: { kindOf: v.name } });
+      const showKind = (column) => { kindCell.textContent = column ? columnKind(profile[column]) : ''; };
+      const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit || !this.isOpenForData, 'aria-label': `Column for ${v.name}`,
+        on: { change: (e) => showKind(e.target.value) } },
         el('option', { value: '', text: '— not measured —' }),
         ...this.data.columns.map((c) => el('option', { value: c, text: c, selected: mapping[v.name] === c })));
+      showKind(mapping[v.name]);
       const tag = v.role ? ` (${v.role})` : v.latent ? ' (unmeasured in the diagram)' : '';
-      return el('tr', {}, el('th', { text: v.name + tag }), el('td', {}, select));
-    });
-    box.append(table(['variable', 'column'], rows, 'am-mapping'));
+      const row = [el('tr', { class: warnings[v.name]?.severity === 'warning' ? 'am-warn' : '' }, el('th', { text: v.name + tag }), el('td', {}, select), kindCell)];
+      const w = warnings[v.name];
+      if (w) {
+        row.push(el('tr', { class: 'am-warn-row' }, el('td', { colspan: '3' },
+          w.severity === 'warning' ? el('p', { class: 'notice', role: 'alert', dataset: { warning: v.name }, text: `Check this: ${w.text}.` })
+            : el('p', { class: 'note', dataset: { coding: v.name }, text: `Read as categories: ${w.text}.` }),
+          w.text_cells && this.canEdit ? el('button', { type: 'button', dataset: { action: 'text-as-missing', column: w.column }, disabled: !!this.busy || !this.isOpenForData,
+            text: `Treat the ${w.text_cells} text cell${w.text_cells === 1 ? '' : 's'} of ${w.column} as missing`, on: { click: () => this.blankText(w.column) } }) : null)));
+      }
+      return row;
+    }).flat();
+    box.append(table(['variable', 'column', 'read as'], rows, 'am-mapping'));
+    const blanked = this.data.text_as_missing || [];
+    if (blanked.length) box.append(el('p', { class: 'note', dataset: { note: 'text-as-missing' }, text: `Text cells count as missing in: ${blanked.join(', ')} (those rows are left out of what uses the column).` }));
     if (this.canEdit) box.append(el('div', { class: 'row end' }, this.button('Save mapping', 'mapping', () => this.saveMapping())));
     return box;
   }
@@ -370,6 +415,8 @@ class EstimationPanel {
       r.details?.first_stage_f !== undefined ? ['first-stage F', fmt(r.details.first_stage_f)] : null,
     ].filter(Boolean);
     card.append(el('dl', { class: 'am-facts' }, ...facts.flatMap(([k, v]) => [el('dt', { text: k }), el('dd', { text: String(v) })])));
+    const coding = codingText(r.columns);
+    if (coding) card.append(el('div', { class: 'am-coding', dataset: { result: 'coding' } }, el('p', { class: 'note', text: 'How text columns were coded:' }), el('ul', {}, ...coding.map((c) => el('li', { text: c })))));
     const sets = (r.strategy === 'adjustment' && r.other_valid_sets) || [];
     if (sets.length > 1 || this.choice.adjust) {
       const same = (a, b) => JSON.stringify([...a].sort()) === JSON.stringify([...b].sort());
@@ -419,6 +466,12 @@ class EstimationPanel {
     box.append(table(['independence claimed', 'n', 'statistic', 'adjusted p', 'verdict'], rows, 'am-checks'));
     if (this.flagged) {
       box.append(el('p', { class: 'note', text: `On the diagram: ${this.flagged.x} and ${this.flagged.y} (solid red outline) should be independent${this.flagged.given.length ? ` given ${this.flagged.given.join(', ')} (dashed red outline)` : ''}, but the data say otherwise. An arrow or a common cause between them may be missing.` }));
+    }
+    const untested = {};
+    for (const t of checks.tests) if (t.verdict === 'not tested' && t.reason) untested[t.reason] = (untested[t.reason] || 0) + 1;
+    for (const [reason, count] of Object.entries(untested)) {
+      box.append(el('p', { class: 'notice', dataset: { untested: reason } }, `${count} of ${checks.tests.length} implications not tested: ${reason}.`,
+        reason.includes('text') && this.data?.warnings?.some((w) => w.text_cells) ? ' A numeric column holds text cells: see the mapping above, where they can be treated as missing.' : ''));
     }
     if (checks.total > checks.listed) box.append(el('p', { class: 'note', text: `${checks.listed} of ${checks.total} implications listed.` }));
     return box;

@@ -39,6 +39,7 @@ from starlette.concurrency import run_in_threadpool
 
 from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge
 from ...estimation import service, validation
+from ...estimation.columns import blank_text_cells, mapping_warnings
 from ...estimation.design import check_mapping, propose_mapping
 from ...estimation.errors import DataError
 from ...estimation.samples import is_sample_file
@@ -85,10 +86,12 @@ def _frame(access, info: dict):
         raise NotFound("the attached data file is missing on the server; upload it again", code="data_missing")
     stat = path.stat()
     key = (str(path), stat.st_mtime_ns, stat.st_size)
+    blanked = tuple(info.get("text_as_missing") or ())
+    key = (*key, blanked)
     cached = _CACHE.get(access.session_id)
     if cached and cached[0] == key:
         return cached[1]
-    frame = load_table(path, max_bytes=None, name=info["name"])
+    frame = blank_text_cells(load_table(path, max_bytes=None, name=info["name"]), blanked)
     _CACHE[access.session_id] = (key, frame)
     if len(_CACHE) > 2:  # each entry is a whole table in memory
         _CACHE.pop(next(iter(_CACHE)))
@@ -113,6 +116,13 @@ def _room_fingerprint(access) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
+def _with_warnings(access, info: dict) -> dict:
+    """The data record as shown: with a warning for each column the estimate cannot read as mapped."""
+    d = access.diagram()
+    roles = {v: "treatment" if v in d.treatment else "outcome" if v in d.outcome else None for v in d.names}
+    return {**info, "warnings": mapping_warnings(info.get("profile") or [], info.get("mapping") or {}, roles)}
+
+
 def _variables(access) -> list[dict]:
     d = access.diagram()
     return [{"name": v.name, "label": v.label, "latent": v.latent,
@@ -127,7 +137,7 @@ def read_estimation(access: MemberDep) -> dict:
     if info and info.get("mapping") is None:
         info = {**info, "mapping": propose_mapping(access.diagram().names, info["columns"])}
     if info:
-        info = {**info, "sample_data": is_sample_file(access.data_dir() / info["stored"])}
+        info = {**_with_warnings(access, info), "sample_data": is_sample_file(access.data_dir() / info["stored"])}
     out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
            "variables": _variables(access)}
     fingerprint = _fingerprint(access)
@@ -192,7 +202,7 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
     for key in RESULT_KEYS:
         access.delete_attachment(key)
     await access.log(f"attached data {name} ({len(frame)} rows, {frame.shape[1]} columns)", kind="estimation")
-    return {"ok": True, "data": info}
+    return {"ok": True, "data": _with_warnings(access, info)}
 
 
 @router.put("/mapping")
@@ -206,11 +216,29 @@ async def update_mapping(access: AnalystDep, body: Any = Body(...)) -> dict:
     except DataError as exc:
         raise _refuse(exc) from None
     info = {**info, "mapping": mapping}
+    blank = body.get("text_as_missing") if isinstance(body, dict) else None
+    if blank is not None:
+        info = await run_in_threadpool(_blank_text, access, info, blank)
     access.put_attachment(DATA_KEY, info)
     unmeasured = sorted(set(access.diagram().names) - set(mapping))
     await access.log("mapped measures to variables" + (f"; unmeasured: {', '.join(unmeasured)}" if unmeasured else ""),
                      kind="estimation")
-    return {"ok": True, "data": info}
+    return {"ok": True, "data": _with_warnings(access, info)}
+
+
+def _blank_text(access, info: dict, columns: Any) -> dict:
+    """Record that the text cells of these mostly-numeric columns count as missing, and profile them again."""
+    if not isinstance(columns, list) or not all(isinstance(c, str) for c in columns):
+        raise BadRequest("'text_as_missing' must be a list of column names", code="invalid_field")
+    unknown = [c for c in columns if c not in info["columns"]]
+    if unknown:
+        raise BadRequest(f"'text_as_missing' names {unknown[0]!r}, which is not a column of the data",
+                         code="invalid_field")
+    changed = sorted(set(columns) | set(info.get("text_as_missing") or ()))
+    info = {**info, "text_as_missing": sorted(set(columns))}
+    frame = _frame(access, info)
+    fresh = {p["name"]: p for p in service.json_ready(profile_table(frame[changed]))} if changed else {}
+    return {**info, "profile": [fresh.get(p["name"], p) for p in info["profile"]]}
 
 
 def _options(body: Any) -> dict:
