@@ -8,6 +8,15 @@ regressions of one variable, with and without the other (OLS for a continuous
 response, logistic for binary, multinomial logistic for categorical). The
 p-values are corrected for multiple testing with Holm (1979) or, as an option,
 Benjamini & Hochberg (1995), via statsmodels.
+
+The rows are read once: the columns of every variable in an implication are
+built into one design (0/1 and indicator columns for binary and categorical
+ones; each column's kind decided once for the table) and one pass gives its
+means and centred cross-products (:mod:`.moments`). Every Fisher z test is
+then a small solve on that matrix and every linear likelihood-ratio test a
+comparison of two residual sums of squares from it; the logistic tests fit on
+columns of the same design. A test whose variables have missing values on
+rows the others use is computed on its own complete rows instead.
 """
 
 from __future__ import annotations
@@ -23,6 +32,7 @@ from statsmodels.stats.multitest import multipletests
 
 from .design import MAX_LEVELS
 from .estimators import _least_squares
+from .moments import Moments, accumulate
 
 __all__ = ["fisher_z_test", "likelihood_ratio_test", "adjust_p_values", "test_implications", "CORRECTIONS"]
 
@@ -103,6 +113,65 @@ def likelihood_ratio_test(response: np.ndarray, response_kind: str, predictor: n
             "p_value": float(stats.chi2.sf(stat, extra))}
 
 
+def _fisher_z_from(r: float, n: int, k: int) -> dict:
+    r = min(max(r, -0.9999999), 0.9999999)
+    dof = n - k - 3
+    if dof <= 0:
+        raise ValueError("too few rows for this conditioning set")
+    stat = math.atanh(r) * math.sqrt(dof)
+    return {"test": "partial correlation (Fisher z)", "partial_correlation": r,
+            "statistic": stat, "df": None, "p_value": float(2 * stats.norm.sf(abs(stat)))}
+
+
+def _linear_lr_from(rss_small: float, rss_big: float, n: int, extra: int) -> dict:
+    stat = max(0.0, n * math.log(rss_small / rss_big)) if rss_big > 0 else math.inf
+    return {"test": "likelihood ratio (linear regression)", "partial_correlation": None,
+            "statistic": float(stat), "df": int(extra), "p_value": float(stats.chi2.sf(stat, extra))}
+
+
+class SharedDesign:
+    """The design of every column the implications use, on the rows complete in all
+    of them: each column's kind (once), its block of design columns, and the
+    sufficient statistics of the whole design from one chunked pass."""
+
+    def __init__(self, frame: pd.DataFrame, columns: list[str]):
+        sub = frame[columns].dropna()
+        self.n = int(len(sub))
+        self.kinds = {c: _kind(sub[c]) for c in columns}
+        self.slots: dict[str, list[int]] = {}
+        self.codes: dict[str, np.ndarray] = {}
+        blocks = []
+        width = 0
+        for c in columns:
+            if self.kinds[c] == "unusable":
+                continue
+            block = _block(sub[c], self.kinds[c], c)
+            self.slots[c] = list(range(width, width + block.shape[1]))
+            width += block.shape[1]
+            blocks.append(block)
+            if self.kinds[c] == "categorical":
+                self.codes[c] = pd.Categorical(sub[c].astype(str)).codes
+        self.x = np.hstack(blocks) if blocks else np.empty((self.n, 0))
+        self.moments: Moments = accumulate(self.x)
+
+    def test(self, x: str, y: str, given: list[str]) -> dict:
+        """Fisher z or likelihood-ratio test of x and y independent given ``given`` (columns)."""
+        kinds = {c: self.kinds[c] for c in (x, y, *given)}
+        g = [i for c in given for i in self.slots[c]]
+        if kinds[x] == kinds[y] == "continuous":
+            rc = self.moments.residual_cross([self.slots[x][0], self.slots[y][0]], g)
+            denom = math.sqrt(max(rc[0, 0], 0.0) * max(rc[1, 1], 0.0))
+            return _fisher_z_from(float(rc[0, 1]) / denom if denom > 0 else 0.0, self.n, len(g))
+        order = {"continuous": 0, "binary": 1, "categorical": 2}
+        resp, pred = sorted([x, y], key=lambda c: order[kinds[c]])
+        if kinds[resp] == "continuous":
+            r = self.slots[resp][0]
+            return _linear_lr_from(self.moments.residual_ss(r, g), self.moments.residual_ss(r, g + self.slots[pred]),
+                                   self.n, len(self.slots[pred]))
+        r_values = self.x[:, self.slots[resp][0]] if kinds[resp] == "binary" else self.codes[resp]
+        return likelihood_ratio_test(r_values, kinds[resp], self.x[:, self.slots[pred]], self.x[:, g])
+
+
 def adjust_p_values(p_values, correction: str = "holm", alpha: float = 0.05) -> list[float]:
     """Multiplicity-adjusted p-values (statsmodels ``multipletests``)."""
     if correction not in CORRECTIONS:
@@ -127,6 +196,10 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
         raise ValueError(f"unknown correction {correction!r}; use holm, bh or none")
     results = []
     whole: dict[str, str] = {}  # kind of each column on all rows, reused when a test drops none
+    used = list(dict.fromkeys(mapping[v] for imp in implications for v in (imp["x"], imp["y"], *imp["given"])
+                              if v in mapping))
+    present = {c: frame[c].notna().to_numpy() for c in used}
+    shared = SharedDesign(frame, used) if used else None
     for imp in implications:
         names = [imp["x"], imp["y"], *imp["given"]]
         entry = {"x": imp["x"], "y": imp["y"], "given": list(imp["given"]), "text": imp.get("text"),
@@ -138,6 +211,20 @@ def test_implications(frame: pd.DataFrame, mapping: dict[str, str], implications
             results.append(entry)
             continue
         cols = [mapping[v] for v in names]
+        complete = np.logical_and.reduce([present[c] for c in cols])
+        if shared is not None and int(complete.sum()) == shared.n:  # the shared rows: from the statistics
+            entry["n"] = shared.n
+            kinds = {v: shared.kinds[mapping[v]] for v in names}
+            if "unusable" in kinds.values() or shared.n < len(names) + 5:
+                entry["reason"] = ("too few complete rows" if shared.n < len(names) + 5
+                                   else "a text column has too many categories")
+            else:
+                try:
+                    entry.update(shared.test(mapping[imp["x"]], mapping[imp["y"]], [mapping[v] for v in imp["given"]]))
+                except Exception as exc:  # singular fits, separation
+                    entry["reason"] = f"the test could not be fitted ({str(exc).splitlines()[0][:120]})"
+            results.append(entry)
+            continue
         sub = frame[list(dict.fromkeys(cols))].dropna()
         entry["n"] = int(len(sub))
         if len(sub) == len(frame):
