@@ -14,11 +14,11 @@ from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 
 from .demo import open_demo_session
-from .errors import install_error_handlers
 from .resources import resource_dir
 from .settings import Settings
 from .storage import open_store
 from .web import joining, pages, ws
+from .web.errors import install_error_handlers
 from .web.guards import BodyLimit, JoinLimiter, OriginGuard
 from .sessions import Sessions
 from .web.live import Hub

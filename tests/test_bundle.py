@@ -167,16 +167,21 @@ def test_import_read_only_gives_a_reader_key(recorded):
     r = _import(workshop.client, bundle, mode="read-only", name="Auditor")
     assert r.status_code == 201, r.text
     made = r.json()
-    assert made["read_only"] is True and made["member"]["role"] == "participant"
+    assert made["read_only"] is True and made["member"]["role"] == "reader"
     assert not made["member"]["analyst"]
-    store = application.state.store
-    assert store.get_attachment(made["session_id"], "record.read_only") is True
     head = {TOKEN_HEADER: made["token"]}
     assert workshop.client.get(f"/api/sessions/{made['session_id']}", headers=head).status_code == 200
     # a reader cannot export, re-estimate or move the session on
     assert workshop.client.get(f"/api/sessions/{made['session_id']}/export/bundle", headers=head).status_code == 403
     r = workshop.client.post(f"/api/sessions/{made['session_id']}/commands",
                              json={"type": "set_stage", "stage": "drafting", "reason": "x"}, headers=head)
+    assert r.status_code == 409 and r.json()["code"] == "read_only"
+    # whoever joins it is a reader too
+    state = workshop.client.get(f"/api/sessions/{made['session_id']}", headers=head).json()["state"]
+    joined = workshop.client.post("/api/join", json={"code": state["session"]["join_code"], "name": "Kim"}).json()
+    assert joined["member"]["role"] == "reader"
+    r = workshop.client.post(f"/api/sessions/{made['session_id']}/commands", json={"type": "tidy"},
+                             headers={TOKEN_HEADER: joined["token"]})
     assert r.status_code == 409 and r.json()["code"] == "read_only"
 
 

@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from app.web.errors import status_of
 import pytest
 
 from app.estimation import errors as E
@@ -52,7 +53,7 @@ def test_load_table_refuses_file_over_limit(tmp_path):
     path = _write(tmp_path, "big.csv", b"a,b\n" + b"1,2\n" * 1000)
     with pytest.raises(E.FileTooLarge, match="the limit is 1.0 KB") as info:
         load_table(path, max_bytes=1024)
-    assert info.value.status == 413
+    assert status_of(info.value) == 413
 
 
 def test_load_table_reads_parquet(tmp_path, frame):

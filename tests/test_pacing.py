@@ -10,6 +10,7 @@ import time
 import pytest
 
 from app.sessions.pacing import CommandPacer, TooManyCommands, folds_into
+from app.web.errors import status_of
 from live_server import running_server
 
 
@@ -20,7 +21,7 @@ def test_pacer_allows_a_burst_then_the_rate_and_is_per_member():
         pacer.take("s", "ann", {"type": "add_variable"})
     with pytest.raises(TooManyCommands) as err:
         pacer.take("s", "ann", {"type": "add_variable"})
-    assert err.value.status == 429 and err.value.retry_after == 0.1
+    assert status_of(err.value) == 429 and err.value.retry_after == 0.1
     assert "faster than the room can follow (more than 10 a second)" in err.value.message
     pacer.take("s", "bob", {"type": "add_variable"})  # another member is not held back
     now[0] += 0.1

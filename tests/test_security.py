@@ -14,6 +14,7 @@ from starlette.websockets import WebSocketDisconnect
 from conftest import TOKEN_HEADER, make_app, open_room
 from app.settings import Settings
 from app.main import create_app
+from app.web.errors import status_of
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 DOC = json.loads((SAMPLE / "cycle_to_work.json").read_text())
@@ -201,7 +202,7 @@ def test_join_turns_are_taken_one_at_a_time_and_a_flood_is_turned_away():
         with pytest.raises(TooManyAttempts) as err:
             async with limiter.turn("10.0.0.1"):
                 pass
-        assert err.value.status == 429 and "waiting from this address at once" in err.value.message
+        assert status_of(err.value) == 429 and "waiting from this address at once" in err.value.message
         gate.set()
         assert sorted(await asyncio.gather(*tasks)) == [0, 1]
 

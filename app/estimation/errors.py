@@ -1,25 +1,25 @@
 """Problems with the data, the mapping or the requested estimate.
 
 Each error carries a message for the analyst that names the file, column or
-variable at fault, and a short ``code``. The web layer turns :class:`DataError`
-into a 4xx JSON body (``status``: 413 for an oversized file, 422 otherwise);
+variable at fault, and a short ``code``. Each is an :class:`~app.errors.AppError`
+of the ``invalid`` kind (``too_large`` for an oversized file), which the web
+layer answers with 422 (413);
 the command line prints the message and exits with code 2. Nothing here ever
 touches a session: refusing data leaves what was already there untouched.
 """
 
 from __future__ import annotations
 
+from ..errors import Unprocessable
 
-class DataError(ValueError):
+
+class DataError(Unprocessable, ValueError):
     """Base class: the data, the mapping or the request cannot be used."""
 
     code = "bad_data"
-    status = 422
 
     def __init__(self, message: str, *, item: object | None = None):
-        super().__init__(message)
-        self.message = message
-        self.item = item
+        super().__init__(message, item=item)
 
     def to_json(self) -> dict:
         return {"code": self.code, "message": self.message, "item": self.item}
@@ -54,8 +54,8 @@ class NonNumericColumn(DataError):
 
 
 class FileTooLarge(DataError):
+    kind = "too_large"
     code = "file_too_large"
-    status = 413
 
 
 class BadMapping(DataError):

@@ -7,16 +7,16 @@ it names the offending variable, arrow or field. The web layer maps
 
 from __future__ import annotations
 
+from ..errors import Unprocessable
 
-class DiagramError(ValueError):
+
+class DiagramError(Unprocessable, ValueError):
     """Base class: the diagram document or the question is not usable."""
 
     code = "invalid_diagram"
 
     def __init__(self, message: str, *, item: object | None = None):
-        super().__init__(message)
-        self.message = message
-        self.item = item
+        super().__init__(message, item=item)
 
 
 class MalformedDocument(DiagramError):

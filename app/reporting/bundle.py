@@ -35,6 +35,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import __version__
+from ..errors import Unprocessable
 from ..graph.document import parse_document
 from ..graph.errors import DiagramError
 from ..workshop.hidden_causes import statements_public
@@ -56,13 +57,11 @@ DECISION_KINDS = frozenset({"settle", "flag_arrow", "set_stage", "set_question",
 REQUIRED_PARTS = ("software", "session", "graph", "workshop")
 
 
-class BundleError(Exception):
+class BundleError(Unprocessable):
     """A bundle that cannot be read; ``message`` says what is wrong, ``code`` for machines."""
 
     def __init__(self, message: str, code: str = "bad_bundle"):
-        super().__init__(message)
-        self.message = message
-        self.code = code
+        super().__init__(message, code=code)
 
 
 def file_sha256(path: str | Path) -> str:

@@ -5,6 +5,6 @@ the command line and the app factory call it and never write the store.
 """
 
 from .analysis import AnalysisRunner
-from .service import IMPORT_MODES, READ_ONLY_KEY, SOURCE_KEY, Sessions
+from .service import IMPORT_MODES, SOURCE_KEY, Sessions
 
-__all__ = ["Sessions", "AnalysisRunner", "IMPORT_MODES", "READ_ONLY_KEY", "SOURCE_KEY"]
+__all__ = ["Sessions", "AnalysisRunner", "IMPORT_MODES", "SOURCE_KEY"]

@@ -20,11 +20,11 @@ import sys
 from pathlib import Path
 from typing import Any, Callable
 
-from ..errors import AppError
+from ..errors import AnalysisFailed, AppError
 from ..workshop.disputes import analyse_workshop, analysis_key
 from ..workshop.models import Workshop
 
-__all__ = ["AnalysisRunner", "AnalysisWorker", "AnalysisFailed"]
+__all__ = ["AnalysisRunner", "AnalysisWorker"]
 
 log = logging.getLogger("arrowmoot")
 
@@ -33,12 +33,6 @@ WORKER_TIMEOUT = 60.0
 FAILED_PUSH = {"analysis": None, "problem": "the analysis failed on this diagram",
                "disputes": None, "absent": None}
 
-
-class AnalysisFailed(AppError):
-    """A failure inside the analysis (a numerical error, say); the session is unchanged."""
-
-    status = 422
-    code = "analysis_failed"
 
 
 class AnalysisWorker:

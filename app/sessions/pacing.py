@@ -18,7 +18,7 @@ import threading
 import time
 from typing import Any
 
-from ..errors import AppError
+from ..errors import TooManyRequests
 
 __all__ = ["CommandPacer", "TooManyCommands", "folds_into", "MOVE_FOLD_S"]
 
@@ -26,8 +26,7 @@ MOVE_FOLD_S = 2.0
 MOVE_COST = 0.1
 
 
-class TooManyCommands(AppError):
-    status = 429
+class TooManyCommands(TooManyRequests):
     code = "too_many_commands"
 
     def __init__(self, message: str, retry_after: float):

@@ -21,21 +21,26 @@ import time
 from pathlib import Path
 from typing import Any, Callable
 
-from ..errors import AppError, BadRequest, Forbidden, NotFound, Unauthorized
+from ..errors import (
+    BadKey, BadRequest, ExpiredKey, NoKey, NotFound, UnknownJoinCode, UnknownSession, WrongSession, WrongStage,
+)
 from ..estimation.design import propose_mapping
 from ..estimation.tables import load_table
-from ..reporting.bundle import attachments_from_bundle, restore_workshop
+from ..graph.errors import DiagramError
+from ..reporting.bundle import BundleError, attachments_from_bundle, restore_workshop
 from ..storage import Store
 from ..workshop.commands import add_member, apply_command, new_workshop, read_document
 from ..workshop.events import Event, new_event
-from ..workshop.models import Member, Workshop
+from ..workshop.models import Member, Role, Workshop
 from . import keys
 from .analysis import AnalysisRunner
 from .data import DATA_KEY, data_info, stored_name
 from .pacing import CommandPacer, folds_into
 
-__all__ = ["Sessions", "READ_ONLY_KEY", "SOURCE_KEY", "IMPORT_MODES"]
+__all__ = ["Sessions", "SOURCE_KEY", "IMPORT_MODES"]
 
+# Older databases marked a read-only session with this attachment; loading one
+# turns it into readers (see Sessions.workshop).
 READ_ONLY_KEY = "record.read_only"
 SOURCE_KEY = "record.source"
 IMPORT_MODES = ("new", "read-only")
@@ -76,11 +81,13 @@ class Sessions:
                     loaded = (self.store.load_session(session_id)
                               if isinstance(session_id, str) else None)
                     if loaded is None:
-                        raise NotFound("there is no session with that id", code="unknown_session")
+                        raise UnknownSession("there is no session with that id")
                     state, revision = loaded
                     state["revision"] = revision
                     log_events = self.store.list_events(session_id=session_id, after_revision=-1)
                     w = Workshop.from_state(state, log_events)
+                    if self.store.get_attachment(session_id, READ_ONLY_KEY):
+                        _make_read_only(w)
                     self._workshops[session_id] = w
         return w
 
@@ -119,31 +126,27 @@ class Sessions:
     def authenticate(self, session_id: str, key: str | None) -> Member:
         """The member whose key this is, or Unauthorized / Forbidden."""
         if not key:
-            raise Unauthorized(
-                f"this needs your session key; send it in the {keys.TOKEN_HEADER} header",
-                code="no_token",
-            )
+            raise NoKey(f"this needs your session key; send it in the {keys.TOKEN_HEADER} header")
         member_id = keys.key_member_id(key)
         found = self.store.find_member_token(member_id) if member_id else None
         if found is None or not keys.key_matches(found[1], key):
-            raise Unauthorized("that session key is not valid", code="bad_token")
+            raise BadKey("that session key is not valid")
         if found[0] != session_id:
-            raise Forbidden("that key belongs to another session", code="wrong_session")
+            raise WrongSession("that key belongs to another session")
         if keys.is_expired(self.store.token_created(found[1]), self.key_lifetime):
-            raise Unauthorized("that session key has expired; join again with the join code, or "
-                               "ask the facilitator; a facilitator's key is re-issued on the server's "
-                               "machine with `arrowmoot key SESSION_ID`", code="expired_token")
+            raise ExpiredKey("that session key has expired; join again with the join code, or "
+                             "ask the facilitator; a facilitator's key is re-issued on the server's "
+                             "machine with `arrowmoot key SESSION_ID`")
         member = self.workshop(session_id).members.get(member_id)
         if member is None:
-            raise Unauthorized("that session key is not valid", code="bad_token")
+            raise BadKey("that session key is not valid")
         return member
 
     def reissue_key(self, session_id: str, member_name: str | None = None) -> tuple[Member, str]:
         """A new key for the facilitator (or the member of that display name); the old one stops working."""
         loaded = self.store.load_session(session_id)
         if loaded is None:
-            raise NotFound(f"no session {session_id!r} in this database; `arrowmoot sessions` lists them",
-                           code="unknown_session")
+            raise UnknownSession(f"no session {session_id!r} in this database; `arrowmoot sessions` lists them")
         members = list(Workshop.from_state(loaded[0]).members.values())
         if member_name:
             wanted = member_name.strip().casefold()
@@ -206,8 +209,7 @@ class Sessions:
             raise BadRequest("enter the join code the facilitator gave you", code="no_join_code")
         session_id = self.store.find_session_by_join_code(keys.normalise_join_code(code))
         if session_id is None:
-            raise NotFound("no session has that join code; check it with the facilitator",
-                           code="unknown_join_code")
+            raise UnknownJoinCode("no session has that join code; check it with the facilitator")
         return self.workshop(session_id)
 
     async def join(self, code: Any, name: Any) -> tuple[Workshop, Member, str]:
@@ -225,14 +227,18 @@ class Sessions:
     def import_record(self, bundle: dict[str, Any], *, mode: str, name: str) -> tuple[Workshop, Member, str]:
         """Open a (validated) record bundle as a fresh session with its full history.
 
-        ``new`` makes the importer its facilitator; ``read-only`` gives them a
-        participant's key and every change is refused."""
+        ``new`` makes the importer its facilitator; ``read-only`` makes the
+        importer, and whoever joins, a reader, whose every change is refused."""
         session_id = keys.new_session_id()
         join_code = keys.new_join_code(self.store.join_code_taken)
         w = restore_workshop(bundle, session_id=session_id, join_code=join_code)
         now = time.time()
         member_id = keys.new_member_id()
-        member = Member(id=member_id, name=name, role="facilitator" if mode == "new" else "participant",
+        if mode == "new":
+            w.join_role = Role.PARTICIPANT
+        else:
+            _make_read_only(w)
+        member = Member(id=member_id, name=name, role=Role.FACILITATOR if mode == "new" else Role.READER,
                         joined=now)
         w.members[member_id] = member
         events = list(w.log)
@@ -247,6 +253,11 @@ class Sessions:
         w.log.append(event)
         events.append(event)
         key = keys.new_key(member_id)
+        try:
+            w.diagram()
+        except DiagramError as exc:
+            raise BundleError(f"the bundle's diagram is not valid: {exc.message}",
+                              code="bundle_bad_graph") from None
         state = w.to_state()
         # The session row with the first event and the importer's key, then each
         # later event in order.
@@ -261,14 +272,12 @@ class Sessions:
             "session_id": original.get("id"), "title": original.get("title"),
             "exported_at": bundle.get("exported_at"), "software": bundle.get("software"),
             "data_sha256": (bundle.get("data") or {}).get("sha256"), "mode": mode, "imported_at": now})
-        if mode == "read-only":
-            self.store.put_attachment(session_id, READ_ONLY_KEY, True)
         return self.workshop(session_id), member, key
 
     # -- changes ----------------------------------------------------------------------
     def is_read_only(self, session_id: str) -> bool:
-        """Whether the session is a record reopened read-only (every change is refused)."""
-        return bool(self.store.get_attachment(session_id, READ_ONLY_KEY))
+        """Whether the session is a record reopened read-only: whoever joins is a reader."""
+        return self.workshop(session_id).join_role == Role.READER
 
     async def submit(self, session_id: str, member: Member, command: Any,
                      key: Any = None) -> Event:
@@ -283,9 +292,6 @@ class Sessions:
             raise BadRequest("a command key must be text of 1 to 100 characters",
                              code="invalid_key")
         self.workshop(session_id)  # NotFound for an unknown session
-        if self.store.get_attachment(session_id, READ_ONLY_KEY):
-            raise AppError("this session was reopened read-only from a record; import the bundle "
-                           "as a new session to change it", code="read_only", status=409)
         async with self._lock(session_id):
             # Fetched under the lock: a change that failed to store while this one waited
             # has dropped the copy it had changed.
@@ -342,10 +348,7 @@ class Sessions:
     def require_stage(self, session_id: str, *stages: str) -> Workshop:
         w = self.workshop(session_id)
         if w.stage not in stages:
-            raise AppError(
-                f"this needs the session in the {' or '.join(stages)} stage; it is in {w.stage}",
-                code="wrong_stage", status=409,
-            )
+            raise WrongStage(f"this needs the session in the {' or '.join(stages)} stage; it is in {w.stage}")
         return w
 
     # -- data ---------------------------------------------------------------------------
@@ -371,3 +374,10 @@ class Sessions:
 
     async def close(self) -> None:
         await self.analysis.close()
+
+
+def _make_read_only(w: Workshop) -> None:
+    """Every member, and whoever joins later, becomes a reader."""
+    for m in w.members.values():
+        m.role, m.analyst = Role.READER, False
+    w.join_role = Role.READER

@@ -52,11 +52,13 @@ from ..sessions.keys import TOKEN_HEADER
 from ..settings import Settings
 from ..storage import Store
 from ..workshop.models import Member, Workshop
+from ..workshop.rules import check as check_rule
 from .live import Hub
 
 __all__ = [
     "SessionAccess", "get_session", "get_member", "require_role",
-    "SessionDep", "MemberDep", "FacilitatorDep", "AnalystDep",
+    "SessionDep", "MemberDep", "FacilitatorDep", "AnalystDep", "permit",
+    "AttachDataDep", "MapColumnsDep", "EstimateDep", "RecordDep",
     "StoreDep", "HubDep", "SessionsDep", "SettingsDep", "TOKEN_HEADER",
 ]
 
@@ -163,7 +165,23 @@ def require_role(role: str):
     return dependency
 
 
+def permit(operation: str):
+    """A dependency that lets a member through only where the rule table allows ``operation``."""
+
+    async def dependency(access: Annotated[SessionAccess, Depends(get_member)]) -> SessionAccess:
+        assert access.member is not None
+        check_rule(operation, access.member, access.stage)
+        return access
+
+    return dependency
+
+
 SessionDep = Annotated[SessionAccess, Depends(get_session)]
 MemberDep = Annotated[SessionAccess, Depends(get_member)]
 FacilitatorDep = Annotated[SessionAccess, Depends(require_role("facilitator"))]
 AnalystDep = Annotated[SessionAccess, Depends(require_role("analyst"))]
+# The estimation stage and the record, as app/workshop/rules.py allows them.
+AttachDataDep = Annotated[SessionAccess, Depends(permit("attach_data"))]
+MapColumnsDep = Annotated[SessionAccess, Depends(permit("map_columns"))]
+EstimateDep = Annotated[SessionAccess, Depends(permit("estimate"))]
+RecordDep = Annotated[SessionAccess, Depends(permit("export_record"))]

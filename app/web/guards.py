@@ -22,7 +22,8 @@ import threading
 import time
 from urllib.parse import urlparse
 
-from ..errors import AppError, NotFound, error_body
+from ..errors import NotFound, TooManyAttempts
+from .errors import error_body
 
 __all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin_allowed",
            "guarded_join_lookup"]
@@ -30,10 +31,6 @@ __all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin
 # Routes that stream their body to their own, larger limit: data uploads and record bundles.
 UPLOAD_PATH = re.compile(r"^(/api/sessions/[^/]+/estimation/data|/api/records/(import|report)|/records/(import|report))$")
 
-
-class TooManyAttempts(AppError):
-    status = 429
-    code = "too_many_attempts"
 
 
 async def _send_json(send, status: int, body: dict, headers: list | None = None) -> None:

@@ -54,7 +54,7 @@ class Connection:
                         await self.websocket.close(code=1013)
                     return
                 await self.websocket.send_text(text)
-        except Exception:
+        except Exception:  # the client went away, however the socket says so: stop sending to it
             self.closed = True
 
     def send(self, text: str) -> None:
@@ -74,8 +74,8 @@ class Connection:
         if self.task is not None:
             try:
                 await asyncio.wait_for(self.task, timeout=2)
-            except Exception:
-                pass
+            except asyncio.TimeoutError:
+                self.task.cancel()
 
 
 class Hub:

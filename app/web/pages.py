@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter, Request
 
+from ..sessions.vocabulary import vocabulary
 from .deps import SessionsDep
 from .guards import guarded_join_lookup
 
@@ -41,4 +42,5 @@ def session_page(session_id: str, request: Request, sessions: SessionsDep):
     has_estimation = (static_dir / "js" / "estimation.js").is_file()
     return _render(request, "session.html", title=w.title,
                    page_data={"page": "session", "session_id": w.id, "title": w.title,
+                              "vocabulary": vocabulary(),
                               "estimation_module": "/static/js/estimation.js" if has_estimation else None})

@@ -24,10 +24,10 @@ from urllib.parse import urlparse
 
 from fastapi import APIRouter, WebSocket, WebSocketDisconnect
 
-from ..errors import AppError, from_exception
-from ..graph.errors import DiagramError
+from ..errors import AppError, BadMessage, MessageTooLarge
 from ..sessions import Sessions
 from ..workshop.events import public_event
+from .errors import error_extra, status_of
 from .live import Connection, Hub
 
 router = APIRouter()
@@ -48,9 +48,7 @@ def _origin_allowed(websocket: WebSocket) -> bool:
 
 def _error(exc: AppError, msg_id=None) -> str:
     return json.dumps({"type": "error", "id": msg_id, "ok": False, "error": exc.message,
-                       "status": exc.status, "code": exc.code,
-                       **({"cycle": exc.cycle} if getattr(exc, "cycle", None) else {}),
-                       **({"retry_after": exc.retry_after} if getattr(exc, "retry_after", None) else {})})
+                       "status": status_of(exc), "code": exc.code, **error_extra(exc)})
 
 
 @router.websocket("/ws/sessions/{session_id}")
@@ -64,21 +62,21 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
     try:
         hello = json.loads(await asyncio.wait_for(websocket.receive_text(), HELLO_TIMEOUT))
         if not isinstance(hello, dict) or hello.get("type") != "hello":
-            raise AppError("the first message must be {\"type\": \"hello\", \"token\": ...}",
-                           code="no_hello")
+            raise BadMessage("the first message must be {\"type\": \"hello\", \"token\": ...}",
+                             code="no_hello")
         sessions.workshop(session_id)
         member = sessions.authenticate(session_id, hello.get("token"))
     except (asyncio.TimeoutError, WebSocketDisconnect, json.JSONDecodeError, AppError) as exc:
         if isinstance(exc, AppError):
             await websocket.send_text(_error(exc))
-            await websocket.close(code=4000 + exc.status)
+            await websocket.close(code=4000 + status_of(exc))
         elif isinstance(exc, json.JSONDecodeError):
-            await websocket.send_text(_error(AppError("messages must be JSON", code="bad_json")))
+            await websocket.send_text(_error(BadMessage("messages must be JSON", code="bad_json")))
             await websocket.close(code=4400)
         else:
             try:
                 await websocket.close(code=4408)
-            except Exception:
+            except (RuntimeError, OSError):  # the client is already gone
                 pass
         return
 
@@ -107,17 +105,16 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
                     break
                 raise
             if len(text) > limit:
-                conn.send(_error(AppError(f"a message is limited to {limit // 1024} KB; this one "
-                                          f"is {len(text) // 1024} KB and was ignored",
-                                          code="message_too_large", status=413)))
+                conn.send(_error(MessageTooLarge(f"a message is limited to {limit // 1024} KB; this one "
+                                                 f"is {len(text) // 1024} KB and was ignored")))
                 continue
             try:
                 message = json.loads(text)
             except json.JSONDecodeError:
-                conn.send(_error(AppError("messages must be JSON", code="bad_json")))
+                conn.send(_error(BadMessage("messages must be JSON", code="bad_json")))
                 continue
             if not isinstance(message, dict):
-                conn.send(_error(AppError("a message must be a JSON object", code="bad_message")))
+                conn.send(_error(BadMessage("a message must be a JSON object")))
                 continue
             kind = message.get("type")
             if kind == "command":
@@ -125,8 +122,8 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
                 try:
                     event = await sessions.submit(session_id, member, message.get("command"),
                                              key=message.get("key"))
-                except (AppError, DiagramError) as exc:
-                    conn.send(_error(from_exception(exc), msg_id))
+                except AppError as exc:
+                    conn.send(_error(exc, msg_id))
                     continue
                 conn.send(json.dumps({"type": "ack", "id": msg_id, "revision": event["revision"],
                                       "event": public_event(event),
@@ -136,7 +133,7 @@ async def session_socket(websocket: WebSocket, session_id: str) -> None:
             elif kind == "ping":
                 conn.send(json.dumps({"type": "pong", "revision": w.revision}))
             else:
-                conn.send(_error(AppError(f"unknown message type {kind!r}", code="bad_message")))
+                conn.send(_error(BadMessage(f"unknown message type {kind!r}")))
     except WebSocketDisconnect:
         pass
     finally:

@@ -12,15 +12,16 @@ from __future__ import annotations
 import unicodedata
 from typing import Any, Callable
 
-from ..errors import AppError, BadRequest, Conflict, Forbidden, InvalidDiagram, NotFound
+from ..errors import BadRequest, Conflict, Forbidden, InvalidDiagram, NotFound
 from ..graph.document import check_name, parse_document
 from ..graph.errors import DiagramError
 from ..graph import layout
 from .events import Event, new_event, public_event
 from .models import (
-    PROPOSAL_KINDS, VOTE_CHOICES, Member, Proposal, Vote, Workshop, arrow_key,
+    PROPOSAL_KINDS, VOTE_CHOICES, Member, Proposal, ProposalStatus, Role, Vote, Workshop, arrow_key,
 )
-from .stages import STAGES, check_stage_move, is_locked
+from .rules import check as check_rule
+from .stages import STAGES, check_stage_move
 from .voting import MAX_VOTE_REASON
 
 __all__ = ["apply_command", "new_workshop", "add_member", "COMMAND_TYPES", "public_event"]
@@ -73,20 +74,6 @@ def _number(command: dict, key: str) -> float | None:
     return float(value)
 
 
-def _require_facilitator(member: Member, what: str) -> None:
-    if not member.is_facilitator:
-        raise Forbidden(f"only the facilitator can {what}", code="facilitator_only")
-
-
-def _require_unlocked(workshop: Workshop, what: str) -> None:
-    if is_locked(workshop.stage):
-        raise Conflict(
-            f"the diagram is locked in the {workshop.stage} stage; the facilitator must "
-            f"reopen it (with a reason) before anyone can {what}",
-            code="diagram_locked",
-        )
-
-
 def _require_variable(workshop: Workshop, name: str) -> dict[str, Any]:
     v = workshop.variable(name)
     if v is None:
@@ -118,7 +105,6 @@ class _Change:
 
 # -- graph edits --------------------------------------------------------------
 def _add_variable(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_unlocked(w, "add variables")
     name = _name(c)
     if w.variable(name) is not None:
         raise Conflict(f"there is already a variable {name!r}", code="duplicate_variable")
@@ -140,7 +126,6 @@ def _add_variable(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _update_variable(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_unlocked(w, "change variables")
     name = _name(c)
     old = _require_variable(w, name)
     new = dict(old)
@@ -217,9 +202,6 @@ def _move_variable(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _delete_variable(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_unlocked(w, "delete variables")
-    if w.stage == "debating":
-        _require_facilitator(m, "delete a variable while debating (it removes arrows)")
     name = _name(c)
     _require_variable(w, name)
     removed = [(a, b) for a, b in w.arrows if name in (a, b)]
@@ -228,23 +210,13 @@ def _delete_variable(w: Workshop, m: Member, c: dict) -> _Change:
     w.treatment = [n for n in w.treatment if n != name]
     w.outcome = [n for n in w.outcome if n != name]
     for p in w.proposals.values():
-        if p.status in ("open", "disputed") and name in (p.source, p.target):
-            p.status = "withdrawn"
+        if p.is_pending and name in (p.source, p.target):
+            p.status = ProposalStatus.WITHDRAWN
     extra = f" and its {len(removed)} arrow(s)" if removed else ""
     return _Change(f"deleted variable {name!r}{extra}", undoable=True)
 
 
-def _check_arrow_edit(w: Workshop, m: Member, what: str) -> None:
-    _require_unlocked(w, what)
-    if w.stage == "debating" and not m.is_facilitator:
-        raise Conflict(
-            f"while debating, arrows change through proposals: propose to {what} instead",
-            code="use_proposal",
-        )
-
-
 def _add_arrow(w: Workshop, m: Member, c: dict) -> _Change:
-    _check_arrow_edit(w, m, "add an arrow")
     source, target = _arrow_ends(c)
     _require_variable(w, source)
     _require_variable(w, target)
@@ -257,7 +229,6 @@ def _add_arrow(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _delete_arrow(w: Workshop, m: Member, c: dict) -> _Change:
-    _check_arrow_edit(w, m, "remove an arrow")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
         raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
@@ -266,7 +237,6 @@ def _delete_arrow(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _reverse_arrow(w: Workshop, m: Member, c: dict) -> _Change:
-    _check_arrow_edit(w, m, "reverse an arrow")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
         raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
@@ -277,8 +247,6 @@ def _reverse_arrow(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _set_question(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "change the treatment and outcome")
-    _require_unlocked(w, "change the question")
     parts = {}
     for part in ("treatment", "outcome"):
         raw = c.get(part, [])
@@ -303,9 +271,6 @@ def _tidy(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _import_document(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "import a diagram")
-    if w.stage != "drafting":
-        raise Conflict("a diagram can only be imported while drafting", code="wrong_stage")
     doc = read_document(c.get("document"), c.get("text"), c.get("format"))
     variables = doc["variables"]
     if any(v.get("x") is None or v.get("y") is None for v in variables):
@@ -318,16 +283,13 @@ def _import_document(w: Workshop, m: Member, c: dict) -> _Change:
     w.treatment, w.outcome = doc["treatment"], doc["outcome"]
     for p in w.proposals.values():
         if p.status == "open":
-            p.status = "withdrawn"
+            p.status = ProposalStatus.WITHDRAWN
     return _Change(f"imported a diagram with {len(variables)} variables and "
                    f"{len(w.arrows)} arrows", undoable=True)
 
 
 # -- proposals, votes, disputes ---------------------------------------------------
 def _propose(w: Workshop, m: Member, c: dict) -> _Change:
-    if w.stage != "debating":
-        raise Conflict("proposals are made while debating; in drafting, draw the change directly",
-                       code="wrong_stage")
     kind = c.get("kind")
     if kind not in PROPOSAL_KINDS:
         raise BadRequest(f"'kind' must be one of {', '.join(PROPOSAL_KINDS)}", code="invalid_field")
@@ -343,7 +305,7 @@ def _propose(w: Workshop, m: Member, c: dict) -> _Change:
     elif not w.has_arrow(source, target):
         raise NotFound(f"there is no arrow {source} → {target} to {kind}", code="unknown_arrow")
     for p in w.proposals.values():
-        if p.status in ("open", "disputed") and (p.kind, p.source, p.target) == (kind, source, target):
+        if p.is_pending and (p.kind, p.source, p.target) == (kind, source, target):
             raise Conflict(f"proposal #{p.id} already proposes to {p.describe()}",
                            code="duplicate_proposal")
     p = Proposal(id=w.next_proposal, kind=kind, source=source, target=target, by=m.id,
@@ -364,14 +326,13 @@ def _proposal(w: Workshop, c: dict) -> Proposal:
 
 
 def _vote(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_unlocked(w, "vote")
     choice = c.get("choice")
     if choice not in VOTE_CHOICES:
         raise BadRequest(f"'choice' must be one of {', '.join(VOTE_CHOICES)}", code="invalid_field")
     reason = _text(c, "reason", limit=MAX_VOTE_REASON, what="the reason")
     if "proposal" in c:
         p = _proposal(w, c)
-        if p.status not in ("open", "disputed"):
+        if not p.is_pending:
             raise Conflict(f"proposal #{p.id} is {p.status}; votes are closed", code="voting_closed")
         subject, what = p.subject, f"proposal #{p.id}"
     else:
@@ -384,7 +345,6 @@ def _vote(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _withdraw_vote(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_unlocked(w, "change votes")
     if "proposal" in c:
         p = _proposal(w, c)
         subject, what = p.subject, f"proposal #{p.id}"
@@ -398,14 +358,11 @@ def _withdraw_vote(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _settle(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "settle proposals")
-    if w.stage != "debating":
-        raise Conflict("proposals are settled while debating", code="wrong_stage")
     p = _proposal(w, c)
     decision = c.get("decision")
     if decision not in ("accept", "reject", "dispute"):
         raise BadRequest("'decision' must be accept, reject or dispute", code="invalid_field")
-    if p.status not in ("open", "disputed"):
+    if not p.is_pending:
         raise Conflict(f"proposal #{p.id} is already {p.status}", code="already_settled")
     if decision == "accept":
         arrows = list(w.arrows)
@@ -424,7 +381,7 @@ def _settle(w: Workshop, m: Member, c: dict) -> _Change:
                 arrows = [(p.target, p.source) if a == (p.source, p.target) else a for a in arrows]
         _validate(w, arrows=arrows)
         w.arrows = arrows
-        p.status = "accepted"
+        p.status = ProposalStatus.ACCEPTED
     else:
         p.status = "rejected" if decision == "reject" else "disputed"
     p.settled_by, p.settled_at = m.id, c["_now"]
@@ -439,13 +396,11 @@ def _withdraw_proposal(w: Workshop, m: Member, c: dict) -> _Change:
                         code="not_yours")
     if p.status != "open":
         raise Conflict(f"proposal #{p.id} is {p.status}, not open", code="already_settled")
-    p.status = "withdrawn"
+    p.status = ProposalStatus.WITHDRAWN
     return _Change(f"withdrew proposal #{p.id}: {p.describe()}", undoable=True, proposal=p.id)
 
 
 def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "mark arrows disputed or settled")
-    _require_unlocked(w, "change disputes")
     source, target = _arrow_ends(c)
     if not w.has_arrow(source, target):
         raise NotFound(f"there is no arrow {source} → {target}", code="unknown_arrow")
@@ -467,7 +422,6 @@ def _state_hidden_cause(w: Workshop, m: Member, c: dict) -> _Change:
     ``times`` null withdraws it."""
     from .hidden_causes import check_statement, strength_words
 
-    _require_unlocked(w, "state a hidden cause")
     if c.get("times") is None:
         if w.hidden_causes.pop(m.id, None) is None:
             raise NotFound("you have stated no hidden cause", code="no_statement")
@@ -482,7 +436,6 @@ def _state_hidden_cause(w: Workshop, m: Member, c: dict) -> _Change:
 
 # -- facilitation -------------------------------------------------------------------
 def _set_stage(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "move the session to another stage")
     target = c.get("stage")
     if not isinstance(target, str):
         raise BadRequest(f"'stage' must be one of {', '.join(STAGES)}", code="invalid_field")
@@ -499,7 +452,6 @@ def _set_stage(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _grant_role(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "grant roles")
     target = w.members.get(c.get("member"))
     if target is None:
         raise NotFound("there is no such member in this session", code="unknown_member")
@@ -514,15 +466,12 @@ def _grant_role(w: Workshop, m: Member, c: dict) -> _Change:
 
 
 def _rename_session(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "rename the session")
     title = _text(c, "title", limit=MAX_TITLE, required=True, what="the title")
     w.title = title
     return _Change(f"renamed the session to {title!r}")
 
 
 def _undo(w: Workshop, m: Member, c: dict) -> _Change:
-    _require_facilitator(m, "undo")
-    _require_unlocked(w, "undo changes")
     target = next((e for e in reversed(w.log)
                    if e.get("undoable") and not e.get("undone") and e.get("before")), None)
     if target is None:
@@ -597,6 +546,7 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
             f"unknown command type {kind!r}; known types: {', '.join(COMMAND_TYPES)}",
             code="unknown_command",
         )
+    check_rule(kind, member, workshop.stage)
     before = workshop.structure()
     # Handlers validate before they change anything, but a snapshot makes
     # "nothing changes on error" hold even for a bug in a handler.
@@ -609,10 +559,7 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
     work["_now"] = now
     try:
         change = handler(workshop, member, work)
-    except AppError:
-        _restore(workshop, backup, backup_log_flags)
-        raise
-    except Exception:
+    except Exception:  # a refusal or a bug alike: put everything back, then let it through
         _restore(workshop, backup, backup_log_flags)
         raise
     workshop.revision += 1
@@ -667,7 +614,7 @@ def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id:
     name = _text({"name": facilitator_name}, "name", limit=MAX_MEMBER_NAME, what="your name") \
         or "Facilitator"
     w = Workshop(id=session_id, title=title, join_code=join_code, created=now)
-    fac = Member(id=facilitator_id, name=name, role="facilitator", joined=now)
+    fac = Member(id=facilitator_id, name=name, role=Role.FACILITATOR, joined=now)
     w.members[fac.id] = fac
     if document is not None:
         doc = document if isinstance(document, dict) and document.get("_validated") else read_document(document)
@@ -704,8 +651,9 @@ def new_workshop(*, session_id: str, title: str, join_code: str, facilitator_id:
 
 
 def add_member(workshop: Workshop, *, member_id: str, name: Any, now: float) -> tuple[Member, Event]:
+    """A new member in the session's joining role (a participant, or a reader when read-only)."""
     name = _text({"name": name}, "name", limit=MAX_MEMBER_NAME, required=True, what="your name")
-    member = Member(id=member_id, name=name, role="participant", joined=now)
+    member = Member(id=member_id, name=name, role=workshop.join_role, joined=now)
     workshop.members[member.id] = member
     workshop.revision += 1
     event = new_event(revision=workshop.revision, at=now, actor=member, kind="join",

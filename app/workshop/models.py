@@ -8,20 +8,74 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field
+from enum import StrEnum
 from typing import Any
 
 from ..graph.document import Diagram, parse_document
 
 __all__ = [
-    "ROLES", "VOTE_CHOICES", "PROPOSAL_KINDS", "PROPOSAL_STATUSES",
+    "Word", "Role", "VoteChoice", "ProposalKind", "ProposalStatus", "ArrowFlag",
+    "ROLES", "VOTE_CHOICES", "PROPOSAL_KINDS", "PROPOSAL_STATUSES", "PENDING_STATUSES",
+    "ROLE_LABELS", "VOTE_LABELS", "PROPOSAL_KIND_LABELS", "PROPOSAL_STATUS_LABELS",
     "Member", "Proposal", "Vote", "Workshop", "arrow_key", "parse_arrow_key",
 ]
 
-ROLES = ("facilitator", "participant")
-VOTE_CHOICES = ("agree", "disagree", "unsure")
-PROPOSAL_KINDS = ("add", "remove", "reverse")
-PROPOSAL_STATUSES = ("open", "accepted", "rejected", "disputed", "withdrawn")
-ARROW_FLAGS = ("disputed", "settled")
+
+class Word(StrEnum):
+    """A word of the workshop's vocabulary: stored and sent as its text, which it equals."""
+
+    @classmethod
+    def _missing_(cls, value: object):
+        raise ValueError(f"{value!r} is not one of {', '.join(cls)}")
+
+
+class Role(Word):
+    FACILITATOR = "facilitator"
+    PARTICIPANT = "participant"
+    READER = "reader"      # a session reopened read-only from a record: may look, never change
+    ANALYST = "analyst"    # granted on top of participant (``Member.analyst``); never a member's role
+
+
+class VoteChoice(Word):
+    AGREE = "agree"
+    DISAGREE = "disagree"
+    UNSURE = "unsure"
+
+
+class ProposalKind(Word):
+    ADD = "add"
+    REMOVE = "remove"
+    REVERSE = "reverse"
+
+
+class ProposalStatus(Word):
+    OPEN = "open"
+    ACCEPTED = "accepted"
+    REJECTED = "rejected"
+    DISPUTED = "disputed"
+    WITHDRAWN = "withdrawn"
+
+
+class ArrowFlag(Word):
+    DISPUTED = "disputed"
+    SETTLED = "settled"
+
+
+ROLES = (Role.FACILITATOR, Role.PARTICIPANT, Role.READER)  # what a member's ``role`` may be
+VOTE_CHOICES = tuple(VoteChoice)
+PROPOSAL_KINDS = tuple(ProposalKind)
+PROPOSAL_STATUSES = tuple(ProposalStatus)
+PENDING_STATUSES = frozenset({ProposalStatus.OPEN, ProposalStatus.DISPUTED})  # not yet decided
+ARROW_FLAGS = tuple(ArrowFlag)
+
+ROLE_LABELS = {Role.FACILITATOR: "Facilitator", Role.PARTICIPANT: "Participant",
+               Role.READER: "Reader", Role.ANALYST: "Analyst"}
+VOTE_LABELS = {VoteChoice.AGREE: "Agree", VoteChoice.DISAGREE: "Disagree", VoteChoice.UNSURE: "Unsure"}
+PROPOSAL_KIND_LABELS = {ProposalKind.ADD: "add", ProposalKind.REMOVE: "remove",
+                        ProposalKind.REVERSE: "reverse"}
+PROPOSAL_STATUS_LABELS = {ProposalStatus.OPEN: "open", ProposalStatus.ACCEPTED: "accepted",
+                          ProposalStatus.REJECTED: "rejected", ProposalStatus.DISPUTED: "disputed",
+                          ProposalStatus.WITHDRAWN: "withdrawn"}
 
 
 def arrow_key(source: str, target: str) -> str:
@@ -38,20 +92,29 @@ def parse_arrow_key(key: str) -> tuple[str, str]:
 class Member:
     id: str
     name: str
-    role: str = "participant"
+    role: Role = Role.PARTICIPANT
     analyst: bool = False
     joined: float = 0.0
 
+    def __post_init__(self) -> None:
+        self.role = Role(self.role)
+
     @property
     def is_facilitator(self) -> bool:
-        return self.role == "facilitator"
+        return self.role == Role.FACILITATOR
+
+    @property
+    def is_reader(self) -> bool:
+        return self.role == Role.READER
 
     def has_role(self, role: str) -> bool:
-        if role == "facilitator":
+        if role == Role.FACILITATOR:
             return self.is_facilitator
-        if role == "analyst":
+        if role == Role.ANALYST:
             return self.analyst or self.is_facilitator
-        if role == "participant":
+        if role == Role.PARTICIPANT:
+            return not self.is_reader
+        if role == Role.READER:
             return True
         return False
 
@@ -63,31 +126,42 @@ class Member:
 
 @dataclass
 class Vote:
-    choice: str
+    choice: VoteChoice
     reason: str = ""
     at: float = 0.0
+
+    def __post_init__(self) -> None:
+        self.choice = VoteChoice(self.choice)
 
 
 @dataclass
 class Proposal:
     id: int
-    kind: str
+    kind: ProposalKind
     source: str
     target: str
     by: str
     reason: str = ""
-    status: str = "open"
+    status: ProposalStatus = ProposalStatus.OPEN
     created: float = 0.0
     settled_by: str | None = None
     settled_at: float | None = None
+
+    def __post_init__(self) -> None:
+        self.kind = ProposalKind(self.kind)
+        self.status = ProposalStatus(self.status)
 
     @property
     def subject(self) -> str:
         return f"proposal:{self.id}"
 
+    @property
+    def is_pending(self) -> bool:
+        """Open or left disputed: the room has not decided it."""
+        return self.status in PENDING_STATUSES
+
     def describe(self) -> str:
-        verb = {"add": "add", "remove": "remove", "reverse": "reverse"}[self.kind]
-        return f"{verb} {self.source} → {self.target}"
+        return f"{PROPOSAL_KIND_LABELS[self.kind]} {self.source} → {self.target}"
 
 
 @dataclass
@@ -96,7 +170,7 @@ class Workshop:
     title: str
     join_code: str
     created: float = 0.0
-    stage: str = "drafting"
+    stage: str = "drafting"  # a Stage (app/workshop/stages.py)
     revision: int = 0
     variables: list[dict[str, Any]] = field(default_factory=list)
     arrows: list[tuple[str, str]] = field(default_factory=list)
@@ -108,6 +182,7 @@ class Workshop:
     votes: dict[str, dict[str, Vote]] = field(default_factory=dict)
     arrow_flags: dict[str, str] = field(default_factory=dict)
     hidden_causes: dict[str, dict[str, Any]] = field(default_factory=dict)  # member id -> statement
+    join_role: Role = Role.PARTICIPANT  # the role of whoever joins (reader in a read-only session)
     log: list[dict[str, Any]] = field(default_factory=list)
 
     # -- lookups --------------------------------------------------------------
@@ -171,6 +246,7 @@ class Workshop:
                       for subject, by in self.votes.items()},
             "arrow_flags": dict(self.arrow_flags),
             "hidden_causes": {mid: dict(s) for mid, s in self.hidden_causes.items()},
+            "join_role": self.join_role,
         }
 
     @classmethod
@@ -189,5 +265,6 @@ class Workshop:
                    for subject, by in state.get("votes", {}).items()},
             arrow_flags=dict(state.get("arrow_flags", {})),
             hidden_causes={str(mid): dict(s) for mid, s in (state.get("hidden_causes") or {}).items()},
+            join_role=Role(state.get("join_role", Role.PARTICIPANT)),
             log=list(log or []),
         )

@@ -12,16 +12,25 @@ needs a written reason, which goes into the log.
 from __future__ import annotations
 
 from ..errors import BadRequest, Conflict
+from .models import Word
 
-__all__ = ["STAGES", "LOCKED_STAGES", "STAGE_TITLES", "check_stage_move", "is_locked"]
+__all__ = ["Stage", "STAGES", "LOCKED_STAGES", "STAGE_TITLES", "check_stage_move", "is_locked"]
 
-STAGES = ("drafting", "debating", "agreed", "estimation")
-LOCKED_STAGES = frozenset({"agreed", "estimation"})
+
+class Stage(Word):
+    DRAFTING = "drafting"
+    DEBATING = "debating"
+    AGREED = "agreed"
+    ESTIMATION = "estimation"
+
+
+STAGES = tuple(Stage)  # in their order
+LOCKED_STAGES = frozenset({Stage.AGREED, Stage.ESTIMATION})
 STAGE_TITLES = {
-    "drafting": "Drafting",
-    "debating": "Debating",
-    "agreed": "Agreed (locked)",
-    "estimation": "Estimation",
+    Stage.DRAFTING: "Drafting",
+    Stage.DEBATING: "Debating",
+    Stage.AGREED: "Agreed",
+    Stage.ESTIMATION: "Estimation",
 }
 MAX_REASON = 500
 

@@ -63,7 +63,7 @@ def disputed_items(workshop: Workshop) -> list[dict[str, Any]]:
 
     names = {v["name"] for v in workshop.variables}
     for p in workshop.proposals.values():
-        if p.status not in ("open", "disputed") or p.source not in names or p.target not in names:
+        if not p.is_pending or p.source not in names or p.target not in names:
             continue
         item = item_for(p.source, p.target)
         if p.kind == "add":

@@ -5,8 +5,8 @@
 import { toast, askText } from './dom.js';
 import { confirmStep } from './dialogs.js';
 import { disputeTitle } from './panels.js';
+import { LOCKED_STAGES as LOCKED } from './vocabulary.js';
 
-const LOCKED = new Set(['agreed', 'estimation']);
 const NUDGE_QUIET_MS = 150;
 const arrowKey = (from, to) => JSON.stringify([from, to]);
 

@@ -7,6 +7,10 @@ import {
   fetchEstimation, uploadEstimationData, saveEstimationMapping, runEstimation, readValidationRun, stopValidation,
   postCommand,
 } from './api.js';
+import { vocabulary } from './vocabulary.js';
+
+// The stages data may be attached in (the server's rule table).
+const DATA_STAGES = new Set(vocabulary.permissions?.attach_data?.stages || []);
 
 const METHODS = [
   ['auto', 'Chosen from the diagram and the data'],
@@ -92,7 +96,7 @@ class EstimationPanel {
   get stage() { return this.context.state?.()?.session?.stage; }
 
   /** Data is attached, mapped and estimated only once the diagram is agreed (locked). */
-  get isOpenForData() { return ['agreed', 'estimation'].includes(this.stage); }
+  get isOpenForData() { return DATA_STAGES.has(this.stage); }
 
   /** What the stage means for the data, said from what is attached now. */
   stageNote() {

@@ -4,6 +4,7 @@
 // The words and choices come from the server (state.hidden_causes).
 
 import { el } from './dom.js';
+import { LOCKED_STAGES } from './vocabulary.js';
 
 /** What the member has picked but not yet sent; kept across live re-renders. */
 const draft = { variable: null, times: null };
@@ -42,7 +43,7 @@ export function renderHiddenCauses(app) {
   const doc = app.state.document;
   const t = (doc.treatment || []).join(', ') || 'the treatment';
   const o = (doc.outcome || []).join(', ') || 'the outcome';
-  const locked = ['agreed', 'estimation'].includes(app.state.session.stage);
+  const locked = LOCKED_STAGES.has(app.state.session.stage);
   const mine = info.statements.find((s) => s.member === app.me?.id);
   box.append(el('h3', { text: `How strong could a hidden common cause be? (${info.statements.length} stated)` }),
     el('p', { class: 'muted', text: `Something unmeasured that drives both ${t} and ${o}. ${info.meaning}` }));

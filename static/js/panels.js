@@ -4,8 +4,7 @@
 import { el, clock, ROLE_WORDS, independenceText } from './dom.js';
 import { draftField } from './drafts.js';
 import { renderHiddenCauses } from './hidden_cause.js';
-
-const VOTE_LABELS = { agree: 'Agree', disagree: 'Disagree', unsure: 'Unsure' };
+import { VOTE_LABELS, LOCKED_STAGES } from './vocabulary.js';
 
 function setChips(app, sets, label) {
   if (!sets?.length) return el('p', { class: 'muted', text: 'none' });
@@ -190,7 +189,7 @@ export function renderDebate(app) {
 }
 
 export function proposalCard(app, p) {
-  const closed = !['open', 'disputed'].includes(p.status) || ['agreed', 'estimation'].includes(app.state.session.stage) || app.readOnly;
+  const closed = !['open', 'disputed'].includes(p.status) || LOCKED_STAGES.has(app.state.session.stage) || app.readOnly;
   const card = el('article', { class: `proposal proposal-${p.status}`, dataset: { proposal: p.id } },
     el('header', {},
       el('span', { class: 'proposal-id', text: `#${p.id}` }),
@@ -339,7 +338,7 @@ export function renderSelection(app) {
   const box = el('div', { class: 'panel-body' });
   const sel = app.view.selection;
   const s = app.state;
-  const locked = ['agreed', 'estimation'].includes(s.session.stage) || app.readOnly;
+  const locked = LOCKED_STAGES.has(s.session.stage) || app.readOnly;
   if (!sel) {
     box.append(el('p', { class: 'muted', text: 'Select a variable or an arrow on the diagram to see and change it. Double-click empty space to add a variable; drag from the round handle (or Shift-drag) to draw an arrow.' }));
     box.append(pickList(app));
@@ -427,7 +426,7 @@ export function renderSelection(app) {
 export function renderHistory(app) {
   const box = el('div', { class: 'panel-body' });
   if (app.isFacilitator) {
-    box.append(el('div', { class: 'row' }, el('button', { type: 'button', text: 'Undo the last change', disabled: !app.state.can_undo || ['agreed', 'estimation'].includes(app.state.session.stage), on: { click: () => app.send({ type: 'undo' }) } })));
+    box.append(el('div', { class: 'row' }, el('button', { type: 'button', text: 'Undo the last change', disabled: !app.state.can_undo || LOCKED_STAGES.has(app.state.session.stage), on: { click: () => app.send({ type: 'undo' }) } })));
   }
   const events = app.history || app.state.recent || [];
   if (!app.history) box.append(el('p', { class: 'muted', text: 'Latest changes (loading the full log)…' }));

@@ -4,9 +4,9 @@
 import { el, svg, clear } from './dom.js';
 import { fetchJoinAddress } from './api.js';
 import { SPEC, shapeAttributes, arrowAttributes } from './visual.js';
+import { STAGE_NAMES, LOCKED_STAGES as LOCKED } from './vocabulary.js';
 
-export const STAGE_NAMES = { drafting: 'Drafting', debating: 'Debating', agreed: 'Agreed', estimation: 'Estimation' };
-const LOCKED = new Set(['agreed', 'estimation']);
+export { STAGE_NAMES };
 
 export function statusText(status) {
   return { live: 'Live', connecting: 'Connecting…', reconnecting: 'Reconnecting…', offline: 'Offline' }[status] || status;

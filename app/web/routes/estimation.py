@@ -37,29 +37,20 @@ from typing import Any
 from fastapi import APIRouter, Body, Request, Response
 from starlette.concurrency import run_in_threadpool
 
-from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge
+from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge, Unprocessable
 from ...estimation import service, validation
 from ...estimation.columns import blank_text_cells, mapping_warnings
 from ...estimation.design import check_mapping, propose_mapping
-from ...estimation.errors import DataError
 from ...estimation.samples import is_sample_file
 from ...estimation.tables import load_table, profile_table
-from ...graph.errors import DiagramError
 from ...reporting import charts
 from ...sessions.data import DATA_KEY, RESULT_KEYS, data_info, stored_name
-from ..deps import AnalystDep, MemberDep
+from ..deps import AnalystDep, AttachDataDep, EstimateDep, MapColumnsDep, MemberDep
 from ..runs import RUNS, RunRefused
 
 router = APIRouter(prefix="/api/sessions/{session_id}/estimation", tags=["estimation"])
 
-STAGES = ("agreed", "estimation")
 _CACHE: dict[str, tuple[tuple, Any]] = {}
-
-
-def _refuse(exc: Exception) -> AppError:
-    if isinstance(exc, DataError):
-        return AppError(exc.message, code=exc.code, status=exc.status)
-    return AppError(exc.message, code=getattr(exc, "code", "invalid_diagram"), status=422)
 
 
 def _display_name(raw: str) -> str:
@@ -156,9 +147,8 @@ def read_estimation(access: MemberDep) -> dict:
 
 
 @router.put("/data")
-async def upload_data(access: AnalystDep, request: Request, name: str = "data.csv") -> dict:
+async def upload_data(access: AttachDataDep, request: Request, name: str = "data.csv") -> dict:
     """Attach a data file (raw CSV or Parquet bytes as the body), streamed to disk with a size limit."""
-    access.require_stage(*STAGES)
     limit = request.app.state.settings.upload_limit_bytes
     declared = request.headers.get("content-length")
     if declared and declared.isdigit() and int(declared) > limit:
@@ -178,10 +168,7 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
                 handle.write(chunk)
         frame = await run_in_threadpool(load_table, partial, max_bytes=limit, name=name)
         profile = await run_in_threadpool(profile_table, frame)
-    except DataError as exc:
-        partial.unlink(missing_ok=True)
-        raise _refuse(exc) from None
-    except BaseException:
+    except BaseException:  # refused, too large or cut off: no half-written file stays behind
         partial.unlink(missing_ok=True)
         raise
     stored = stored_name(partial)
@@ -206,15 +193,11 @@ async def upload_data(access: AnalystDep, request: Request, name: str = "data.cs
 
 
 @router.put("/mapping")
-async def update_mapping(access: AnalystDep, body: Any = Body(...)) -> dict:
+async def update_mapping(access: MapColumnsDep, body: Any = Body(...)) -> dict:
     """Say which column measures which variable (null or empty: unmeasured)."""
-    access.require_stage(*STAGES)
     info = _data_info(access)
     raw = body.get("mapping") if isinstance(body, dict) else None
-    try:
-        mapping = check_mapping(raw, access.diagram().names, info["columns"])
-    except DataError as exc:
-        raise _refuse(exc) from None
+    mapping = check_mapping(raw, access.diagram().names, info["columns"])
     info = {**info, "mapping": mapping}
     blank = body.get("text_as_missing") if isinstance(body, dict) else None
     if blank is not None:
@@ -254,15 +237,11 @@ def _options(body: Any) -> dict:
 
 
 async def _run(access, fn, **kwargs):
-    access.require_stage(*STAGES)
     info = _data_info(access)
     fingerprint = _fingerprint(access)
-    try:
-        diagram = access.diagram()
-        frame = await run_in_threadpool(_frame, access, info)
-        result = await run_in_threadpool(lambda: fn(diagram, frame, info.get("mapping"), **kwargs))
-    except (DataError, DiagramError) as exc:
-        raise _refuse(exc) from None
+    diagram = access.diagram()
+    frame = await run_in_threadpool(_frame, access, info)
+    result = await run_in_threadpool(lambda: fn(diagram, frame, info.get("mapping"), **kwargs))
     result = service.json_ready(result)
     result["diagram_fingerprint"] = fingerprint
     result["data_name"] = info["name"]
@@ -271,7 +250,7 @@ async def _run(access, fn, **kwargs):
 
 
 @router.post("/estimate")
-async def create_estimate(access: AnalystDep, body: Any = Body(None)) -> dict:
+async def create_estimate(access: EstimateDep, body: Any = Body(None)) -> dict:
     """The estimate the diagram identifies, with its implications tested against the data."""
     opts = _options(body)
     correction = (body or {}).get("correction", "holm")
@@ -313,25 +292,22 @@ def _validation_options(body: Any) -> dict:
 
 
 @router.post("/validation", status_code=202)
-async def create_validation(access: AnalystDep, response: Response, body: Any = Body(None)) -> dict:
+async def create_validation(access: EstimateDep, response: Response, body: Any = Body(None)) -> dict:
     """Start the checks that can contradict the diagram; poll ``/validation/run`` for progress
     (202), or with ``"wait": true`` answer with the result when they end (200)."""
     opts = _validation_options(body)
     wait = (body or {}).get("wait", False)
     if not isinstance(wait, bool):
         raise BadRequest("'wait' must be true or false", code="invalid_field")
-    access.require_stage(*STAGES)
     if RUNS.is_running(access.session_id, "validation"):
         raise Conflict("the checks are already running for this session; stop them or wait", code="already_running")
     info = _data_info(access)
     fingerprint = _fingerprint(access)
     diagram = access.diagram()
     frame = await run_in_threadpool(_frame, access, info)
-    try:  # refuse bad input at once, before anything runs
-        prepared = await run_in_threadpool(service.prepare, diagram, frame, info.get("mapping"),
-                                           opts["method"], opts["adjust"])
-    except (DataError, DiagramError) as exc:
-        raise _refuse(exc) from None
+    # refuse bad input at once, before anything runs
+    prepared = await run_in_threadpool(service.prepare, diagram, frame, info.get("mapping"),
+                                       opts["method"], opts["adjust"])
 
     def work(run):
         return service.validate(diagram, frame, info.get("mapping"), prepared=prepared, progress=run.progress,
@@ -346,13 +322,13 @@ async def create_validation(access: AnalystDep, response: Response, body: Any = 
                          f"({result['contradicted']} of {result['run']} checks contradict it)", kind="estimation")
 
     def fail(run, exc):
-        return exc.message if isinstance(exc, (DataError, DiagramError, RunRefused)) else None
+        return exc.message if isinstance(exc, (AppError, RunRefused)) else None
 
     run = RUNS.start(access.session_id, "validation", work, finish, fail)
     if wait:
         await RUNS.wait(run)
         if run.state == "failed":
-            raise AppError(run.message, code="validation_failed", status=422)
+            raise Unprocessable(run.message, code="validation_failed")
         response.status_code = 200
         return {"ok": True, "run": run.to_json(), "result": access.get_attachment("estimation.validation")}
     return {"ok": True, "run": run.to_json()}
@@ -377,7 +353,7 @@ async def stop_validation(access: AnalystDep) -> dict:
 
 
 @router.post("/sensitivity")
-async def create_sensitivity(access: AnalystDep, body: Any = Body(None)) -> dict:
+async def create_sensitivity(access: EstimateDep, body: Any = Body(None)) -> dict:
     """How strong an unmeasured confounder would have to be to change the conclusion."""
     from ...workshop.hidden_causes import statements_for_estimate
 
@@ -392,7 +368,7 @@ async def create_sensitivity(access: AnalystDep, body: Any = Body(None)) -> dict
 
 
 @router.post("/disputes")
-async def create_disputes(access: AnalystDep, body: Any = Body(None)) -> dict:
+async def create_disputes(access: EstimateDep, body: Any = Body(None)) -> dict:
     """The estimate under each combination of the room's disputed arrows, as a forest plot."""
     from ...workshop.voting import disputed_items
 

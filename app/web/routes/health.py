@@ -11,7 +11,7 @@ from typing import Any
 from fastapi import APIRouter
 from fastapi.responses import JSONResponse
 
-from ...errors import error_body
+from ..errors import error_body
 from ..deps import SessionsDep
 
 router = APIRouter(tags=["health"])

@@ -25,13 +25,13 @@ from typing import Any
 from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse, Response
 
-from ...errors import AppError, BadRequest, PayloadTooLarge
-from ...graph.errors import DiagramError
+from ...errors import AppError, BadRequest, LinkExpired, PayloadTooLarge
 from ...reporting.bundle import BundleError, build_bundle, file_sha256, validate_bundle
 from ...reporting.report import render_report
 from ...sessions import IMPORT_MODES
 from ...workshop.views import public_state
-from ..deps import AnalystDep, SessionAccess, SessionsDep
+from ..deps import RecordDep, SessionAccess, SessionsDep
+from ..errors import status_of
 
 router = APIRouter(tags=["records"])
 
@@ -70,7 +70,7 @@ def session_bundle(access: SessionAccess) -> dict[str, Any]:
 
 
 @router.get("/api/sessions/{session_id}/export/graph")
-def export_graph(access: AnalystDep, format: str = "json") -> Response:
+def export_graph(access: RecordDep, format: str = "json") -> Response:
     """The agreed graph as a graph document (json), GraphML or Graphviz DOT."""
     if format not in GRAPH_FORMATS:
         raise BadRequest(f"unknown format {format!r}; use one of {', '.join(GRAPH_FORMATS)}",
@@ -87,7 +87,7 @@ def export_graph(access: AnalystDep, format: str = "json") -> Response:
 
 
 @router.get("/api/sessions/{session_id}/export/bundle")
-def export_bundle(access: AnalystDep) -> Response:
+def export_bundle(access: RecordDep) -> Response:
     """Everything the session decided and found, as one versioned JSON file."""
     bundle = session_bundle(access)
     return _download(json.dumps(bundle, indent=1, ensure_ascii=False), "application/json",
@@ -99,7 +99,7 @@ def _report_response(html: str) -> HTMLResponse:
 
 
 @router.get("/api/sessions/{session_id}/report")
-def read_report(access: AnalystDep) -> HTMLResponse:
+def read_report(access: RecordDep) -> HTMLResponse:
     """The workshop report: one self-contained HTML page (print it to PDF from the browser)."""
     return _report_response(render_report(session_bundle(access)))
 
@@ -109,7 +109,7 @@ _links: dict[str, tuple[str, float]] = {}
 
 
 @router.post("/api/sessions/{session_id}/report/link")
-def create_report_link(access: AnalystDep) -> dict:
+def create_report_link(access: RecordDep) -> dict:
     """A link that opens the report in a browser tab without the key (valid for two minutes).
 
     A page cannot send the key header when it opens a tab, and a report made
@@ -130,8 +130,7 @@ def read_report_by_link(ticket: str, sessions: SessionsDep) -> HTMLResponse:
     found = _links.get(ticket)
     if found is None or found[1] < time.time():
         _links.pop(ticket, None)
-        raise AppError("this report link has expired; open the report again from the session page",
-                       code="link_expired", status=404)
+        raise LinkExpired("this report link has expired; open the report again from the session page")
     return _report_response(render_report(session_bundle(SessionAccess(session_id=found[0], sessions=sessions))))
 
 
@@ -160,10 +159,18 @@ def _decode_bundle(raw: bytes) -> dict[str, Any]:
     except json.JSONDecodeError as err:
         raise BadRequest(f"the bundle is not valid JSON (line {err.lineno}, column {err.colno}: {err.msg})",
                          code="bundle_not_json") from None
+    return validate_bundle(obj)
+
+
+def _bundle_report(bundle: dict[str, Any]) -> str:
+    """The report of a validated bundle; a part that cannot be shown is a BundleError."""
     try:
-        return validate_bundle(obj)
-    except BundleError as err:
-        raise AppError(err.message, code=err.code, status=422) from None
+        return render_report(bundle)
+    except AppError:
+        raise
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
+        raise BundleError(f"part of the bundle is damaged and cannot be shown ({type(err).__name__}: {err})",
+                          code="bundle_bad_part") from None
 
 
 def _clean_name(name: str | None, default: str) -> str:
@@ -183,11 +190,7 @@ async def create_session_from_bundle(request: Request, sessions: SessionsDep, mo
         raise BadRequest("'mode' must be new or read-only", code="invalid_field")
     who = _clean_name(name, "Facilitator" if mode == "new" else "Reader")
     bundle = await _read_bundle(request)
-    try:
-        w, member, token = sessions.import_record(bundle, mode=mode, name=who)
-    except DiagramError as exc:
-        raise AppError(f"the bundle's diagram is not valid: {exc.message}", code="bundle_bad_graph",
-                       status=422) from None
+    w, member, token = sessions.import_record(bundle, mode=mode, name=who)
     return {"ok": True, "session_id": w.id, "join_code": w.join_code, "token": token, "mode": mode,
             "read_only": mode == "read-only", "member": member.to_public(),
             "session_page": f"/s/{w.id}", "key_link": f"/s/{w.id}#key={token}",
@@ -197,15 +200,7 @@ async def create_session_from_bundle(request: Request, sessions: SessionsDep, mo
 @router.post("/api/records/report")
 async def create_report_from_bundle(request: Request) -> HTMLResponse:
     """The report of an uploaded bundle, without opening a session."""
-    bundle = await _read_bundle(request)
-    try:
-        html = render_report(bundle)
-    except BundleError as err:
-        raise AppError(err.message, code=err.code, status=422) from None
-    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
-        raise AppError(f"part of the bundle is damaged and cannot be shown ({type(err).__name__}: {err})",
-                       code="bundle_bad_part", status=422) from None
-    return _report_response(html)
+    return _report_response(_bundle_report(await _read_bundle(request)))
 
 
 # -- plain HTML forms (no script needed) ---------------------------------------------------
@@ -236,14 +231,9 @@ async def _form_bundle(upload: UploadFile) -> dict[str, Any]:
 @router.post("/records/report", include_in_schema=False)
 async def records_form_report(request: Request, bundle: UploadFile = File(...)) -> HTMLResponse:
     try:
-        data = await _form_bundle(bundle)
-        html = render_report(data)
+        html = _bundle_report(await _form_bundle(bundle))
     except AppError as err:
-        return _page(request, status=err.status, error=err.message)
-    except BundleError as err:
-        return _page(request, status=422, error=err.message)
-    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
-        return _page(request, status=422, error=f"part of the bundle is damaged and cannot be shown ({err})")
+        return _page(request, status=status_of(err), error=err.message)
     return _report_response(html)
 
 
@@ -257,7 +247,7 @@ async def records_form_import(request: Request, sessions: SessionsDep, bundle: U
         data = await _form_bundle(bundle)
         w, member, token = sessions.import_record(data, mode=mode, name=who)
     except AppError as err:
-        return _page(request, status=err.status, error=err.message)
+        return _page(request, status=status_of(err), error=err.message)
     opened = {"title": w.title, "read_only": mode == "read-only", "join_code": w.join_code,
               "key_link": f"/s/{w.id}#key={token}"}
     return _page(request, status=201, opened=opened)

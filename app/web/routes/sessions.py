@@ -7,6 +7,7 @@ from typing import Any
 from fastapi import APIRouter, Body, Request, Response
 
 from ...errors import BadRequest
+from ...sessions.vocabulary import vocabulary
 from ...workshop.views import history, public_state
 from ..deps import HubDep, MemberDep, SessionsDep
 from ..guards import guarded_join_lookup
@@ -37,6 +38,12 @@ async def create_session(sessions: SessionsDep, body: Any = Body(...)) -> dict:
     return {"ok": True, "session_id": w.id, "join_code": w.join_code, "token": token,
             "member": member.to_public(), **_links(w.id, w.join_code, token),
             "state": public_state(w)}
+
+
+@router.get("/vocabulary")
+async def read_vocabulary() -> dict:
+    """The words and rules the page shows: stages, roles, vote choices, permissions, methods."""
+    return {"ok": True, **vocabulary()}
 
 
 @router.get("/join/{code}")
