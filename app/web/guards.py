@@ -23,11 +23,12 @@ import time
 from urllib.parse import urlparse
 
 from ..errors import NotFound, TooManyAttempts
-from .errors import error_body
+from .errors import HTTP_STATUS, error_body
 
 __all__ = ["BodyLimit", "OriginGuard", "JoinLimiter", "TooManyAttempts", "origin_allowed",
            "guarded_join_lookup"]
 
+TOO_LARGE, FORBIDDEN = HTTP_STATUS["too_large"], HTTP_STATUS["forbidden"]
 # Routes that stream their body to their own, larger limit: data uploads and record bundles.
 UPLOAD_PATH = re.compile(r"^(/api/sessions/[^/]+/estimation/data|/api/records/(import|report)|/records/(import|report))$")
 
@@ -57,7 +58,7 @@ class BodyLimit:
         for name, value in scope.get("headers", ()):
             if name == b"content-length":
                 if not value.isdigit() or int(value) > limit:
-                    return await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+                    return await _send_json(send, TOO_LARGE, error_body(message, TOO_LARGE, "body_too_large"))
         if any(name == b"content-length" for name, _ in scope.get("headers", ())):
             return await self.app(scope, receive, send)
         # No declared length (chunked): read up to the limit here, then hand it on whole.
@@ -69,7 +70,7 @@ class BodyLimit:
             parts.append(event.get("body", b""))
             seen += len(parts[-1])
             if seen > limit:
-                return await _send_json(send, 413, error_body(message, 413, "body_too_large"))
+                return await _send_json(send, TOO_LARGE, error_body(message, TOO_LARGE, "body_too_large"))
             if not event.get("more_body", False):
                 break
         body, handed = b"".join(parts), False
@@ -111,9 +112,9 @@ class OriginGuard:
         origin = raw_origin.decode("latin-1") if raw_origin is not None else None
         host = headers.get(b"host", b"").decode("latin-1")
         if not origin_allowed(origin, host, self.allowed):
-            return await _send_json(send, 403, error_body(
+            return await _send_json(send, FORBIDDEN, error_body(
                 f"requests from {origin[:100]} are refused: this server only answers pages it "
-                "served itself (see the allowed_origins setting)", 403, "cross_origin"))
+                "served itself (see the allowed_origins setting)", FORBIDDEN, "cross_origin"))
         same = origin is None or urlparse(origin).netloc == host
         if same:
             return await self.app(scope, receive, send)
