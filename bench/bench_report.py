@@ -63,8 +63,8 @@ def random_workshop(n: int, seed: int = 7) -> Workshop:
 def demo_case():
     from fastapi.testclient import TestClient
 
-    from tests.conftest import make_app
-    from tests.test_report_fixture import build_workshop
+    from tests.helpers.app import make_app
+    from tests.helpers.workshop import build_workshop
 
     app = make_app(Path(tempfile.mkdtemp()))
     with TestClient(app) as client:

@@ -13,9 +13,9 @@ from pathlib import Path
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
-from test_browser_room import DOCUMENT, TOKEN_HEADER, wait
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.room import DOCUMENT, TOKEN_HEADER, wait
 
 AXE = Path(__file__).resolve().parent / ".axe" / "node_modules" / "axe-core" / "axe.min.js"
 

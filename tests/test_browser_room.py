@@ -8,31 +8,18 @@ over HTTP. Screenshots land in tests/artifacts/ (git-ignored).
 from __future__ import annotations
 
 import os
-import time
 
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.room import DOCUMENT, TOKEN_HEADER, wait
 
 pytestmark = [
     pytest.mark.browser,
     pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian chromium is not installed"),
 ]
-
-TOKEN_HEADER = "X-Arrowmoot-Token"
-# age confounds bike_lease -> sick_days: one back-door path, blocked by { age }.
-DOCUMENT = {
-    "format": "arrowmoot-graph", "version": 1,
-    "variables": [{"name": n, "x": x, "y": y} for n, x, y in (
-        ("age", 120, 80), ("bike_lease", 120, 320), ("fitness", 420, 200), ("sick_days", 720, 320),
-        ("commute", 420, 460))],
-    "arrows": [{"from": a, "to": b} for a, b in (
-        ("age", "bike_lease"), ("age", "sick_days"), ("bike_lease", "fitness"), ("fitness", "sick_days"))],
-    "treatment": ["bike_lease"], "outcome": ["sick_days"],
-}
-
 
 class Room:
     """A session with a facilitator (HTTP) and members who each get a browser page."""
@@ -57,15 +44,6 @@ class Room:
         page.goto(f"{self.base}/s/{self.sid}#key={token}")
         wait(page, "!!(window.arrowmoot?.state && document.querySelector('.live-status.live-live'))", "live")
         return page, token
-
-
-def wait(page, expression, what, seconds=20.0):
-    """Poll ``expression`` (the page's policy forbids the eval that wait_for_function uses)."""
-    deadline = time.monotonic() + seconds
-    while not page.evaluate(expression):
-        if time.monotonic() > deadline:
-            raise AssertionError(f"the page never got {what}")
-        page.wait_for_timeout(25)
 
 
 def at_revision(page, revision):

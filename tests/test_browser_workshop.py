@@ -9,8 +9,8 @@ import os
 
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
 
 
 pytestmark = [

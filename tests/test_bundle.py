@@ -19,8 +19,8 @@ import app
 from app.graph.document import parse_document
 from app.graph.identification import analyze
 from app.reporting.bundle import BundleError, validate_bundle
-from tests.conftest import make_app
-from tests.test_report_fixture import SAMPLE, TOKEN_HEADER, build_workshop
+from tests.helpers.app import make_app
+from tests.helpers.workshop import SAMPLE, TOKEN_HEADER, build_workshop
 
 
 @pytest.fixture(name="recorded", scope="module")

@@ -6,7 +6,7 @@ from __future__ import annotations
 import re
 
 from app.cli import main
-from conftest import TOKEN_HEADER, open_room
+from tests.helpers.app import TOKEN_HEADER, open_room
 
 
 def _link_key(out: str) -> tuple[str, str]:

@@ -12,14 +12,14 @@ from hypothesis import given, settings, strategies as st
 from app.graph.identification import analyze
 from app.workshop.commands import apply_command
 from app.workshop.disputes import analyse_workshop
-from test_workshop_disputes import _doc, _nx_valid_adjustment, _workshop
+from tests.helpers.disputes import dispute_document, dispute_workshop, nx_valid_adjustment
 
 
 def test_removing_a_confounders_second_arrow_keeps_its_set_valid():
     """Confounding triangle z -> x -> y, z -> y (Pearl 2009, Sec. 3.3.1): without z -> y,
     { } becomes the minimal set and { z } is no longer minimal, yet still valid."""
     names, edges = ["x", "y", "z"], [("z", "x"), ("x", "y"), ("z", "y")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     apply_command(w, fac, {"type": "flag_arrow", "from": "z", "to": "y", "flag": "disputed"}, now=1)
     item = analyse_workshop(w)["disputes"]["items"][0]
     without = next(e for e in item["effects"] if e["option"] is None)
@@ -33,14 +33,14 @@ def test_an_arrow_that_makes_a_set_member_a_mediator_breaks_that_set():
     """Back door x <- u -> z -> y is blocked by { u } or { z }; the proposed x -> z puts z on
     a causal path, so { z } stops being valid while { u } still blocks the back door."""
     names, edges = ["x", "y", "u", "z"], [("x", "y"), ("u", "x"), ("u", "z"), ("z", "y")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     apply_command(w, fac, {"type": "set_stage", "stage": "debating"}, now=1)
     apply_command(w, fac, {"type": "propose", "kind": "add", "from": "x", "to": "z"}, now=2)
     item = analyse_workshop(w)["disputes"]["items"][0]
     added = next(e for e in item["effects"] if e["option"] == ["x", "z"])
     with_arrow = edges + [("x", "z")]
-    assert _nx_valid_adjustment(names, with_arrow, "x", "y", ["z"]) is False
-    assert _nx_valid_adjustment(names, with_arrow, "x", "y", ["u"]) is True
+    assert nx_valid_adjustment(names, with_arrow, "x", "y", ["z"]) is False
+    assert nx_valid_adjustment(names, with_arrow, "x", "y", ["u"]) is True
     assert sorted(analyze(w.diagram())["minimal_adjustment_sets"]) == [["u"], ["z"]]
     assert added["sets_still_valid"] == [["u"]]
 
@@ -60,7 +60,7 @@ def disputed_diagrams(draw):
 @given(case=disputed_diagrams())
 def test_sets_still_valid_match_networkx(case):
     names, edges, x, y, disputed = case
-    w, fac = _workshop(_doc(names, edges, x=x, y=y))
+    w, fac = dispute_workshop(dispute_document(names, edges, x=x, y=y))
     for a, b in disputed:
         apply_command(w, fac, {"type": "flag_arrow", "from": a, "to": b, "flag": "disputed"}, now=1)
     result = analyse_workshop(w)
@@ -74,5 +74,5 @@ def test_sets_still_valid_match_networkx(case):
             # this alternative, every other dispute as drawn
             pair = set(item["pair"])
             option_edges = [e for e in edges if set(e) != pair] + ([tuple(effect["option"])] if effect["option"] else [])
-            expected = [list(s) for s in base if _nx_valid_adjustment(names, option_edges, x, y, s)]
+            expected = [list(s) for s in base if nx_valid_adjustment(names, option_edges, x, y, s)]
             assert effect["sets_still_valid"] == expected

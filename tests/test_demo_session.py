@@ -15,7 +15,7 @@ import pytest
 from fastapi.testclient import TestClient
 
 from app.settings import Settings
-from conftest import TOKEN_HEADER, make_app
+from tests.helpers.app import TOKEN_HEADER, make_app
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 TRUTH = json.loads((SAMPLE / "cycle_to_work.truth.json").read_text())["true_effect"]
@@ -122,7 +122,7 @@ def test_demo_estimation_tab_says_the_data_waits_for_agreement(tmp_path):
     says it is used once the diagram is agreed, and offers no action that would be refused."""
     from playwright.sync_api import sync_playwright
 
-    from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+    from tests.helpers.live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
 
     ARTIFACTS.mkdir(parents=True, exist_ok=True)
     with running_server(tmp_path, demo=True) as base:

@@ -15,8 +15,8 @@ from pathlib import Path
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
 
 pytestmark = [
     pytest.mark.browser,

@@ -9,7 +9,7 @@ from pathlib import Path
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLE = ROOT / "sample_data"

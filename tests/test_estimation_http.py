@@ -1,4 +1,4 @@
-"""The estimation stage over HTTP within a session (tests/conftest.py builds the app)."""
+"""The estimation stage over HTTP within a session (tests/helpers/app.py builds the app)."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.conftest import make_app
+from tests.helpers.app import make_app
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 TRUTH = json.loads((SAMPLE / "cycle_to_work.truth.json").read_text())["true_effect"]

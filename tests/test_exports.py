@@ -18,8 +18,8 @@ from fastapi.testclient import TestClient
 from app.graph.document import parse_document
 from app.graph.formats import from_dot, from_graphml
 from app.reporting.cli import add_parsers
-from tests.conftest import make_app
-from tests.test_report_fixture import SAMPLE, build_workshop
+from tests.helpers.app import make_app
+from tests.helpers.workshop import SAMPLE, build_workshop
 
 
 @pytest.fixture(name="workshop", scope="module")

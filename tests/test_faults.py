@@ -19,8 +19,8 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 
-from conftest import TOKEN_HEADER, make_app, open_room
-from test_web_socket import hello, receive_until
+from tests.helpers.app import TOKEN_HEADER, make_app, open_room
+from tests.helpers.socket import hello, receive_until
 from app.workshop.commands import add_member, apply_command
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"

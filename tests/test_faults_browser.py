@@ -10,8 +10,8 @@ import os
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, LiveServer as Server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, LiveServer as Server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
 
 TOKEN_HEADER = "X-Arrowmoot-Token"
 

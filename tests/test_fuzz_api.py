@@ -20,7 +20,7 @@ from hypothesis import HealthCheck, settings
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import response_schema_conformance
 
-from conftest import TOKEN_HEADER, make_app
+from tests.helpers.app import TOKEN_HEADER, make_app
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 EXAMPLES = 12  # per operation; the whole file stays well under a minute

@@ -13,7 +13,7 @@ from app.graph.errors import DiagramError
 from app.graph.formats import from_dot, from_graphml, to_dot, to_graphml
 from app.graph.identification import analyze
 
-from graph_cases import butterfly_graph
+from tests.helpers.graph_cases import butterfly_graph
 
 
 def var(*names):

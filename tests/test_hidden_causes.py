@@ -9,7 +9,7 @@ from pathlib import Path
 import pytest
 
 from app.cli import main
-from tests.conftest import TOKEN_HEADER, open_room
+from tests.helpers.app import TOKEN_HEADER, open_room
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 CSV = (SAMPLE / "cycle_to_work.csv").read_bytes()

@@ -6,7 +6,7 @@ from __future__ import annotations
 from app.graph.document import parse_document
 from app.graph.identification import analyze
 
-from graph_cases import (
+from tests.helpers.graph_cases import (
     bow_graph,
     butterfly_graph,
     conditional_instrument_graph,

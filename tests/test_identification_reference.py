@@ -23,7 +23,7 @@ from app.graph.dag import Dag
 from app.graph.document import parse_document
 from app.graph import identification as ident
 
-from graph_cases import planted_question, random_dag, random_question
+from tests.helpers.graph_cases import planted_question, random_dag, random_question
 
 
 def _subsets(items):

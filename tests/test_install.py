@@ -22,7 +22,7 @@ from pathlib import Path
 import httpx
 import pytest
 
-from live_server import free_port
+from tests.helpers.live_server import free_port
 
 ROOT = Path(__file__).resolve().parent.parent
 SHIPPED = ("static", "templates", "sample_data")

@@ -13,7 +13,7 @@ import logging
 import pytest
 
 from app.web import live
-from test_web_socket import hello
+from tests.helpers.socket import hello
 
 BLANK_TALLY = {"agree": 0, "disagree": 0, "unsure": 0, "total": 0}
 

@@ -11,7 +11,7 @@ import pytest
 
 from app.sessions.pacing import CommandPacer, TooManyCommands, folds_into
 from app.web.errors import status_of
-from live_server import running_server
+from tests.helpers.live_server import running_server
 
 
 def test_pacer_allows_a_burst_then_the_rate_and_is_per_member():

@@ -12,7 +12,6 @@ from __future__ import annotations
 import json
 import re
 import xml.etree.ElementTree as ET
-from html.parser import HTMLParser
 
 import pandas as pd
 import pytest
@@ -23,41 +22,11 @@ from app.graph.document import parse_document
 from app.reporting.cli import add_parsers
 from app.reporting.diagram_svg import _size, diagram_svg
 from app.reporting.report import SECTIONS, num, plain_estimate
-from tests.conftest import make_app
-from tests.test_report_fixture import SAMPLE, build_workshop
+from tests.helpers.app import make_app
+from tests.helpers.report_page import parse
+from tests.helpers.workshop import SAMPLE, build_workshop
 
 SVG_NS = "{http://www.w3.org/2000/svg}"
-
-
-class _Page(HTMLParser):
-    """Collects section ids, headings, visible text and every tag seen."""
-
-    def __init__(self):
-        super().__init__()
-        self.sections, self.tags, self.text, self.headings = [], [], [], []
-        self._in_h2 = False
-
-    def handle_starttag(self, tag, attrs):
-        self.tags.append((tag, dict(attrs)))
-        if tag == "section":
-            self.sections.append(dict(attrs).get("id"))
-        self._in_h2 = tag == "h2"
-
-    def handle_endtag(self, tag):
-        if tag == "h2":
-            self._in_h2 = False
-
-    def handle_data(self, data):
-        self.text.append(data)
-        if self._in_h2:
-            self.headings.append(data.strip())
-
-
-def parse(html: str) -> _Page:
-    page = _Page()
-    page.feed(html)
-    page.full_text = " ".join(" ".join(page.text).split())
-    return page
 
 
 @pytest.fixture(name="reported", scope="module")

@@ -9,7 +9,7 @@ import pytest
 
 from app.reporting.report import SECTIONS
 
-from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
 
 
 pytestmark = pytest.mark.browser
@@ -40,7 +40,7 @@ class _HttpxAsTestClient:
 def test_report_opens_prints_and_keeps_figures_on_the_page(server):
     from playwright.sync_api import sync_playwright
 
-    from tests.test_report_fixture import build_workshop
+    from tests.helpers.workshop import build_workshop
 
     workshop = build_workshop(_HttpxAsTestClient(server))
     url = f"/api/sessions/{workshop.session_id}/report"
@@ -83,7 +83,7 @@ def test_records_forms_work_in_a_browser(server, tmp_path):
     """A real form post (browsers send an Origin header the guard checks) reopens a bundle."""
     from playwright.sync_api import sync_playwright
 
-    from tests.test_report_fixture import build_workshop
+    from tests.helpers.workshop import build_workshop
 
     workshop = build_workshop(_HttpxAsTestClient(server), estimate=False)
     bundle = tmp_path / "s.record.json"

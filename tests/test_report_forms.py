@@ -7,8 +7,8 @@ import json
 import pytest
 from fastapi.testclient import TestClient
 
-from tests.conftest import make_app
-from tests.test_report_fixture import build_workshop
+from tests.helpers.app import make_app
+from tests.helpers.workshop import build_workshop
 
 
 @pytest.fixture(name="setup", scope="module")

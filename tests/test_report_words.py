@@ -4,7 +4,7 @@ the room locked it, and each proposal's line says what was decided (or that noth
 from __future__ import annotations
 
 from app.reporting.report import render_report
-from tests.test_report import parse
+from tests.helpers.report_page import parse
 
 
 def _bundle(client, room):

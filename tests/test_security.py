@@ -11,7 +11,7 @@ import pytest
 from fastapi.testclient import TestClient
 from starlette.websockets import WebSocketDisconnect
 
-from conftest import TOKEN_HEADER, make_app, open_room
+from tests.helpers.app import TOKEN_HEADER, make_app, open_room
 from app.settings import Settings
 from app.main import create_app
 from app.web.errors import status_of

@@ -11,8 +11,8 @@ import os
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
 
 TOKEN_HEADER = "X-Arrowmoot-Token"
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi.testclient import TestClient
 
-from conftest import make_app
+from tests.helpers.app import make_app
 
 
 def _lose_the_database(store, db_target: str, cluster) -> None:

@@ -13,8 +13,8 @@ from fastapi.testclient import TestClient
 from app.sessions import Sessions
 from app.storage import SchemaTooNew, StorageError, StoreUnavailable, open_store, redact_url
 from app.storage.migrations import latest_version, migrations_for
-from conftest import ROOT, Room, make_app, open_room
-from pg_server import _free_port
+from tests.helpers.app import ROOT, Room, make_app, open_room
+from tests.helpers.pg_server import _free_port
 
 
 def _open(db_target, tmp_path, **kw):

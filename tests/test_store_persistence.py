@@ -7,7 +7,7 @@ import sqlite3
 
 from fastapi.testclient import TestClient
 
-from conftest import TOKEN_HEADER, Room, make_app, open_room
+from tests.helpers.app import TOKEN_HEADER, Room, make_app, open_room
 
 
 def test_restart_brings_back_sessions_edits_and_votes(tmp_path, db_target):

@@ -12,7 +12,7 @@ from app.estimation import validation
 from app.graph.controls import control_exposures, control_outcomes
 from app.graph.dag import Dag
 
-from validation_truths import SEEDS, SHARED_RIGHT, SHARED_WRONG, diagram, false_alarm_band, shared_frame
+from tests.helpers.validation_truths import SEEDS, SHARED_RIGHT, SHARED_WRONG, diagram, false_alarm_band, shared_frame
 
 IDENTITY = {v: v for v in "abnty"}
 

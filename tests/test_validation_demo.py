@@ -85,7 +85,7 @@ def test_cli_refuses_a_bad_resample_count(capsys):
 
 @pytest.fixture(name="room")
 def fixture_room(client):
-    from conftest import TOKEN_HEADER
+    from tests.helpers.app import TOKEN_HEADER
 
     created = client.post("/api/sessions", json={"title": "checks", "facilitator_name": "Fran",
                                                  "document": DOCUMENT}).json()

@@ -23,8 +23,8 @@ from app.graph.identification import Question, answer_question
 from app.graph.implications import implied_independencies
 from app.graph.repairs import arrows_linking, arrows_splitting_sets
 
-from graph_cases import random_dag
-from validation_truths import SEEDS, SHARED_RIGHT, SHARED_WRONG, diagram, false_alarm_band, shared_frame
+from tests.helpers.graph_cases import random_dag
+from tests.helpers.validation_truths import SEEDS, SHARED_RIGHT, SHARED_WRONG, diagram, false_alarm_band, shared_frame
 
 IDENTITY = {v: v for v in "abnty"}
 

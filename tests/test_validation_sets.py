@@ -19,7 +19,7 @@ from app.estimation import validation
 from app.estimation.design import build_design
 from app.graph.identification import Question, answer_question
 
-from validation_truths import (DETOUR_RIGHT, DETOUR_WRONG, SEEDS, detour_frame, diagram,
+from tests.helpers.validation_truths import (DETOUR_RIGHT, DETOUR_WRONG, SEEDS, detour_frame, diagram,
                                 false_alarm_band)
 
 IDENTITY = {v: v for v in "abdty"}

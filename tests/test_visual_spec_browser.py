@@ -18,8 +18,8 @@ import pytest
 
 from app.graph.document import parse_document
 from app.reporting.diagram_svg import diagram_svg
-from live_server import CHROMIUM, running_server
-from live_server import CHROMIUM_ARGS as ARGS
+from tests.helpers.live_server import CHROMIUM, running_server
+from tests.helpers.live_server import CHROMIUM_ARGS as ARGS
 
 pytestmark = [
     pytest.mark.browser,

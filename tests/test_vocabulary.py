@@ -21,7 +21,7 @@ from app.estimation.service import estimate
 from app.graph.document import parse_document
 from app.graph.implications import independence_text
 
-from graph_cases import confounding_graph, document
+from tests.helpers.graph_cases import confounding_graph, document
 
 ROOT = Path(__file__).resolve().parents[1]
 

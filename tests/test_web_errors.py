@@ -6,7 +6,7 @@ import sys
 
 import pytest
 
-from conftest import TOKEN_HEADER
+from tests.helpers.app import TOKEN_HEADER
 from app.settings import SETTING_HELP, Settings, user_data_dir
 
 KEYS = {"ok", "error", "status", "code"}

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from conftest import TOKEN_HEADER, open_room
+from tests.helpers.app import TOKEN_HEADER, open_room
 
 
 def test_create_session_adds_question_variables(room):

@@ -9,9 +9,10 @@ from hypothesis import given, settings, strategies as st
 
 from app.graph.document import parse_document
 from app.graph.identification import analyze
-from app.workshop.commands import apply_command, new_workshop
+from app.workshop.commands import apply_command
 from app.graph.dag import Dag
 from app.workshop.disputes import absent_arrow_report, analyse_workshop, dispute_report
+from tests.helpers.disputes import dispute_document, dispute_workshop, nx_valid_adjustment
 
 
 @st.composite
@@ -38,45 +39,13 @@ def test_d_separation_matches_networkx(data, graph):
     assert Dag(names, edges).is_d_separated({x}, {y}, z) == nx.is_d_separator(g, {x}, {y}, z)
 
 
-def _nx_valid_adjustment(names, edges, x, y, z, latent=()):
-    """The adjustment criterion written out with networkx calls only
-    (Shpitser, VanderWeele & Robins 2010; Perkovic et al. 2018, Definition 3.3)."""
-    g = nx.DiGraph()
-    g.add_nodes_from(names)
-    g.add_edges_from(edges)
-    if set(z) & set(latent):
-        return False
-    no_in = g.copy()
-    no_in.remove_edges_from(list(g.in_edges(x)))
-    no_out = g.copy()
-    no_out.remove_edges_from(list(g.out_edges(x)))
-    cn = (nx.descendants(no_in, x)) & (nx.ancestors(no_out, y) | {y})
-    forb = set().union(*(nx.descendants(g, c) | {c} for c in cn)) | {x} if cn else {x}
-    if set(z) & forb:
-        return False
-    pbd = g.copy()
-    pbd.remove_edges_from([(x, c) for c in g.successors(x) if c in cn])
-    return nx.is_d_separator(pbd, {x}, {y}, set(z))
-
-
-def _doc(names, edges, x="x", y="y", latent=()):
-    return {"variables": [{"name": n, "latent": n in latent} for n in names],
-            "arrows": [{"from": a, "to": b} for a, b in edges], "treatment": [x], "outcome": [y]}
-
-
-def _workshop(doc):
-    w, _ = new_workshop(session_id="s", title="t", join_code="ABCDEF", facilitator_id="f",
-                        facilitator_name="F", document=doc, now=0.0)
-    return w, w.members["f"]
-
-
 def test_confounder_arrow_is_decisive_and_robust_set_found():
     """The confounding triangle z -> x -> y, z -> y (Pearl 2009, Sec. 3.3.1, back-door criterion).
 
     Whether z -> y exists decides whether {} suffices; {z} is valid either way.
     """
     names, edges = ["x", "y", "z", "w"], [("z", "x"), ("x", "y"), ("z", "y"), ("w", "y")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     apply_command(w, fac, {"type": "flag_arrow", "from": "z", "to": "y", "flag": "disputed"}, now=1)
     apply_command(w, fac, {"type": "flag_arrow", "from": "w", "to": "y", "flag": "disputed"}, now=1)
     report = analyse_workshop(w)["disputes"]
@@ -90,13 +59,13 @@ def test_confounder_arrow_is_decisive_and_robust_set_found():
     for keep_zy, keep_wy in itertools.product([True, False], repeat=2):
         e = [("z", "x"), ("x", "y")] + ([("z", "y")] if keep_zy else []) + ([("w", "y")] if keep_wy else [])
         for s in report["robust_sets"]:
-            assert _nx_valid_adjustment(names, e, "x", "y", s)
+            assert nx_valid_adjustment(names, e, "x", "y", s)
     assert report["not_identified_count"] == 0
 
 
 def test_combination_with_a_cycle_is_reported_not_crashed():
     names, edges = ["x", "y", "z"], [("z", "x"), ("x", "y")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     apply_command(w, fac, {"type": "set_stage", "stage": "debating"}, now=1)
     apply_command(w, fac, {"type": "propose", "kind": "add", "from": "y", "to": "z"}, now=1)
     report = analyse_workshop(w)["disputes"]
@@ -111,7 +80,7 @@ def test_unidentified_combinations_are_listed():
     """A latent confounder u of x and y: with u -> y drawn there is no adjustment set
     (and no front-door or instrument in this small graph)."""
     names, edges = ["x", "y", "u"], [("u", "x"), ("x", "y")]
-    w, fac = _workshop(_doc(names, edges, latent=("u",)))
+    w, fac = dispute_workshop(dispute_document(names, edges, latent=("u",)))
     apply_command(w, fac, {"type": "set_stage", "stage": "debating"}, now=1)
     apply_command(w, fac, {"type": "propose", "kind": "add", "from": "u", "to": "y"}, now=1)
     report = analyse_workshop(w)["disputes"]
@@ -123,7 +92,7 @@ def test_unidentified_combinations_are_listed():
 def test_more_than_twelve_disputes_are_sampled_with_a_stated_seed():
     names = ["x", "y"] + [f"c{i}" for i in range(13)]
     edges = [("x", "y")] + [(f"c{i}", "y") for i in range(13)]
-    diagram = parse_document(_doc(names, edges))
+    diagram = parse_document(dispute_document(names, edges))
     items = [{"pair": sorted([f"c{i}", "y"]), "options": [[f"c{i}", "y"], None], "why": [], "current": 0}
              for i in range(13)]
     report = dispute_report(diagram, items, analyze(diagram))
@@ -150,7 +119,7 @@ def test_absent_arrows_match_networkx(graph):
     (each addition checked with the networkx adjustment criterion above)."""
     names, edges = graph
     x, y = names[0], names[-1]
-    doc = _doc(names, edges, x=x, y=y)
+    doc = dispute_document(names, edges, x=x, y=y)
     diagram = parse_document(doc)
     base = analyze(diagram)
     report = absent_arrow_report(diagram, base)
@@ -160,13 +129,13 @@ def test_absent_arrows_match_networkx(graph):
     listed = {(a["from"], a["to"]) for a in report["arrows"]}
     for u, v in _addable_arrows(names, edges):
         new_edges = edges + [(u, v)]
-        breaks = any(not _nx_valid_adjustment(names, new_edges, x, y, s)
+        breaks = any(not nx_valid_adjustment(names, new_edges, x, y, s)
                      for s in base["minimal_adjustment_sets"])
         assert ((u, v) in listed) == breaks, (u, v)
 
 
 def test_demo_diagram_disputes_run_on_the_engine_answer(demo_document):
-    w, fac = _workshop(demo_document)
+    w, fac = dispute_workshop(demo_document)
     apply_command(w, fac, {"type": "vote", "from": "age", "to": "bike_lease", "choice": "disagree"}, now=1)
     result = analyse_workshop(w)
     assert result["disputes"]["count"] == 1
@@ -181,7 +150,7 @@ def test_robust_set_found_beyond_the_candidates():
     Pearl 2009, Sec. 3.3.1), checked here with networkx."""
     names = ["x", "y", "c1", "c2"]
     edges = [("x", "y"), ("c1", "x"), ("c2", "x"), ("c1", "y"), ("c2", "y")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     for c in ("c1", "c2"):
         apply_command(w, fac, {"type": "flag_arrow", "from": c, "to": "y", "flag": "disputed"}, now=1)
     report = analyse_workshop(w)["disputes"]
@@ -189,7 +158,7 @@ def test_robust_set_found_beyond_the_candidates():
     for keep1, keep2 in itertools.product([True, False], repeat=2):
         e = [("x", "y"), ("c1", "x"), ("c2", "x")] + ([("c1", "y")] if keep1 else []) + ([("c2", "y")] if keep2 else [])
         for s in report["robust_sets"]:
-            assert _nx_valid_adjustment(names, e, "x", "y", s)
+            assert nx_valid_adjustment(names, e, "x", "y", s)
 
 
 def test_every_reported_robust_set_is_valid_in_every_combination():
@@ -199,7 +168,7 @@ def test_every_reported_robust_set_is_valid_in_every_combination():
     names = ["x", "y", "a", "b", "m"]
     edges = [("a", "x"), ("a", "m"), ("m", "y"), ("b", "x"), ("b", "y"), ("x", "y"),
              ("a", "y"), ("b", "m")]
-    w, fac = _workshop(_doc(names, edges))
+    w, fac = dispute_workshop(dispute_document(names, edges))
     for a, b in (("a", "y"), ("b", "m")):
         apply_command(w, fac, {"type": "flag_arrow", "from": a, "to": b, "flag": "disputed"}, now=1)
     report = analyse_workshop(w)["disputes"]
@@ -208,7 +177,7 @@ def test_every_reported_robust_set_is_valid_in_every_combination():
         e = [("a", "x"), ("a", "m"), ("m", "y"), ("b", "x"), ("b", "y"), ("x", "y")]
         e += ([("a", "y")] if keep1 else []) + ([("b", "m")] if keep2 else [])
         for s in report["robust_sets"]:
-            assert _nx_valid_adjustment(names, e, "x", "y", s), (s, e)
+            assert nx_valid_adjustment(names, e, "x", "y", s), (s, e)
 
 
 def _brute_common_minimal_sets(names, fixed, items, x, y, latent=()):
@@ -224,7 +193,7 @@ def _brute_common_minimal_sets(names, fixed, items, x, y, latent=()):
             graphs.append(e)
     rest = [n for n in names if n not in (x, y) and n not in latent]
     valid = [set(z) for k in range(len(rest) + 1) for z in itertools.combinations(rest, k)
-             if graphs and all(_nx_valid_adjustment(names, e, x, y, z, latent) for e in graphs)]
+             if graphs and all(nx_valid_adjustment(names, e, x, y, z, latent) for e in graphs)]
     return sorted((sorted(z) for z in valid if not any(o < z for o in valid)), key=lambda s: (len(s), s))
 
 
@@ -256,7 +225,7 @@ def test_sets_valid_in_every_combination_are_exactly_the_brute_force_ones(case):
     disputes over presence, direction, or both."""
     names, fixed, items, latent = case
     x, y = names[0], names[-1]
-    doc = _doc(names, fixed, x=x, y=y, latent=latent)
+    doc = dispute_document(names, fixed, x=x, y=y, latent=latent)
     diagram = parse_document(doc)
     report = dispute_report(diagram, items, analyze(diagram))
     expected = _brute_common_minimal_sets(names, fixed, items, x, y, latent)
@@ -271,13 +240,13 @@ def test_presence_disputes_beyond_the_exact_limit_still_get_exact_sets():
     cs = [f"c{i}" for i in range(13)]
     names = ["x", "y"] + cs
     fixed = [("x", "y")] + [(c, "x") for c in cs]
-    diagram = parse_document(_doc(names, fixed + [(c, "y") for c in cs]))
+    diagram = parse_document(dispute_document(names, fixed + [(c, "y") for c in cs]))
     items = [{"pair": sorted([c, "y"]), "options": [[c, "y"], None], "why": [], "current": 0} for c in cs]
     report = dispute_report(diagram, items, analyze(diagram))
     assert report["sampled"] is True
     assert report["robust_sets"] == [sorted(cs)]
     assert report["robust_complete"] and report["robust_method"] == "fullest"
-    assert _nx_valid_adjustment(names, fixed, "x", "y", cs)
+    assert nx_valid_adjustment(names, fixed, "x", "y", cs)
 
 
 def test_direction_dispute_needs_a_set_that_works_both_ways():
@@ -288,7 +257,7 @@ def test_direction_dispute_needs_a_set_that_works_both_ways():
     names = ["x", "y", "m", "a"]
     fixed = [("m", "x"), ("m", "y"), ("x", "y"), ("a", "y")]
     items = [{"pair": ["a", "m"], "options": [["a", "m"], ["m", "a"]], "why": [], "current": 0}]
-    diagram = parse_document(_doc(names, fixed + [("a", "m")]))
+    diagram = parse_document(dispute_document(names, fixed + [("a", "m")]))
     report = dispute_report(diagram, items, analyze(diagram))
     assert report["robust_method"] == "search"
     assert report["robust_sets"] == _brute_common_minimal_sets(names, fixed, items, "x", "y")
@@ -320,7 +289,7 @@ def test_front_door_answer_lists_the_arrows_that_would_break_it():
     example). Only two arrows can be added without a cycle, x -> y and u -> m, and each
     breaks the front-door set {m}."""
     names, edges = ["x", "m", "y", "u"], [("x", "m"), ("m", "y"), ("u", "x"), ("u", "y")]
-    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    diagram = parse_document(dispute_document(names, edges, latent=("u",)))
     base = analyze(diagram)
     assert base["strategy"] == "front-door" and base["front_door_sets"] == [["m"]]
     report = absent_arrow_report(diagram, base)
@@ -348,7 +317,7 @@ def test_absent_arrows_against_front_door_sets_match_networkx(graph):
     """When the answer is the front door, an arrow is listed exactly when adding it breaks
     one of the listed front-door sets, by the networkx front-door criterion above."""
     names, edges = graph
-    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    diagram = parse_document(dispute_document(names, edges, latent=("u",)))
     base = analyze(diagram)
     report = absent_arrow_report(diagram, base)
     if base["strategy"] != "front-door":
@@ -366,7 +335,7 @@ def test_instrument_answer_lists_the_arrows_that_would_break_it():
     that can be added without a cycle are z -> y, u -> z and z -> u; each breaks exclusion
     or independence, so each is listed, and the note says no adjustment set can appear."""
     names, edges = ["z", "x", "y", "u"], [("z", "x"), ("x", "y"), ("u", "x"), ("u", "y")]
-    diagram = parse_document(_doc(names, edges, latent=("u",)))
+    diagram = parse_document(dispute_document(names, edges, latent=("u",)))
     base = analyze(diagram)
     assert base["strategy"] == "instrument"
     report = absent_arrow_report(diagram, base)

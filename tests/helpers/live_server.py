@@ -18,7 +18,7 @@ from pathlib import Path
 
 import httpx
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 ARTIFACTS = ROOT / "tests" / "artifacts"
 CHROMIUM = "/usr/bin/chromium"
 # Debian's chromium, headless, with nothing that reaches out to the network.

@@ -14,7 +14,7 @@ from pathlib import Path
 
 from fastapi.testclient import TestClient
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 SAMPLE = ROOT / "sample_data"
 TOKEN_HEADER = "X-Arrowmoot-Token"
 
