@@ -32,6 +32,7 @@ HTTP_STATUS: dict[str, int] = {
     "too_large": 413,
     "invalid": 422,
     "too_many": 429,
+    "unavailable": 503,
     "internal": 500,
 }
 

@@ -29,6 +29,7 @@ WEB_CODES = {
     "internal_error": (HTTP_STATUS["internal"], "a bug: the server hit an unexpected problem; nothing was changed"),
     "body_too_large": (HTTP_STATUS["too_large"], "the request body is over the server's limit"),
     "cross_origin": (HTTP_STATUS["forbidden"], "a browser page from another origin sent the request"),
+    "database_unreachable": (HTTP_STATUS["unavailable"], "the readiness check: the database does not answer"),
 }
 
 

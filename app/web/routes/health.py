@@ -11,7 +11,7 @@ from typing import Any
 from fastapi import APIRouter
 from fastapi.responses import JSONResponse
 
-from ..errors import error_body
+from ..errors import HTTP_STATUS, error_body
 from ..deps import SessionsDep
 
 router = APIRouter(tags=["health"])
@@ -28,6 +28,7 @@ def read_readiness(sessions: SessionsDep) -> Any:
     """Ready: the database answers; its kind and schema version are given. Always JSON (503 when not)."""
     status = sessions.storage_status()
     if not status["ready"]:
-        return JSONResponse(error_body(f"the {status['store']} database does not answer", 503,
-                                       "database_unreachable", store=status["store"]), status_code=503)
+        unavailable = HTTP_STATUS["unavailable"]
+        return JSONResponse(error_body(f"the {status['store']} database does not answer", unavailable,
+                                       "database_unreachable", store=status["store"]), status_code=unavailable)
     return {"ok": True, "store": status["store"], "schema_version": status["schema_version"]}
