@@ -460,3 +460,30 @@ def test_a_read_only_record_says_what_read_only_means(room):
     assert page.locator(".node .port").count() == 0
     page.screenshot(path=str(ARTIFACTS / "room-read-only.png"))
     assert revision
+
+
+def test_a_left_out_arrow_can_be_kept_out_on_purpose(room):
+    # with commute -> bike_lease drawn, a commute -> sick_days arrow would break { age }
+    room.send(room.fac, {"type": "add_arrow", "from": "commute", "to": "bike_lease"})
+    room.send(room.fac, {"type": "set_stage", "stage": "debating"})
+    fay = _fac_page(room)
+    fay.locator('.tabs [data-tab="debate"]').click()
+    wait(fay, "!!document.querySelector('.panel .absent-list li button')", "the left-out arrows", seconds=60)
+    first = fay.locator(".panel .absent-list li").first
+    arrow = first.locator("strong").inner_text()
+    source, target = arrow.split(" → ")
+    first.locator("button", has_text="Considered, stays out").click()
+    fay.locator("dialog.ask input").fill("no plausible route")
+    fay.locator("dialog.ask button[type=submit]").click()
+    wait(fay, "(window.arrowmoot.state.absent_marks || []).length === 1", "the mark")
+    considered = fay.locator(".panel .absent-considered")
+    assert considered.locator("summary").inner_text() == "Considered, stays out (1)"
+    considered.locator("summary").click()
+    assert f"{arrow} — Fay: “no plausible route”" in considered.inner_text()
+    assert arrow not in [t for t in fay.locator(".panel .absent > .absent-list li strong").all_inner_texts()]
+    fay.screenshot(path=str(ARTIFACTS / "room-considered.png"))
+    history = room.http.get(f"/api/sessions/{room.sid}/history", headers={TOKEN_HEADER: room.fac}).json()["events"]
+    assert history[-1]["summary"] == f"considered {arrow} and keeps it out: no plausible route"
+    report = room.http.get(f"/api/sessions/{room.sid}/report", headers={TOKEN_HEADER: room.fac}).text
+    assert "Considered by the room and kept out (Fay," in report and "no plausible route" in report
+    assert source and target

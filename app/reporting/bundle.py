@@ -52,7 +52,7 @@ BUNDLE_VERSION = 1
 ESTIMATION_KEYS = {"estimate": "estimation.estimate", "validation": "estimation.validation",
                    "sensitivity": "estimation.sensitivity", "disputes": "estimation.disputes"}
 DATA_KEY = "estimation.data"
-DECISION_KINDS = frozenset({"settle", "flag_arrow", "set_stage", "set_question", "undo", "grant_role",
+DECISION_KINDS = frozenset({"settle", "flag_arrow", "mark_absent", "set_stage", "set_question", "undo", "grant_role",
                             "import_document", "withdraw_proposal", "rename_session"})
 REQUIRED_PARTS = ("software", "session", "graph", "workshop")
 

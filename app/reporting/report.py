@@ -20,6 +20,7 @@ from ..estimation.samples import is_sample_digest
 from ..graph.document import Diagram, parse_document
 from ..graph.errors import DiagramError
 from ..resources import resource_dir
+from ..workshop.views import absent_marks_public
 from ..workshop.voting import disputed_items
 from . import charts
 from .bundle import restore_workshop, validate_bundle
@@ -325,6 +326,7 @@ def report_context(bundle: dict[str, Any]) -> dict[str, Any]:
         "stages": bundle.get("stages") or [],
         "members": list(members.values()),
         "absent": absent,
+        "absent_marks": {(m["from"], m["to"]): m for m in absent_marks_public(workshop)},
         "unmeasured": unmeasured,
         "data": bundle.get("data"),
         "cautions": (est or {}).get("cautions") or DEFAULT_CAUTIONS,

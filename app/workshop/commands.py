@@ -172,6 +172,7 @@ def _update_variable(w: Workshop, m: Member, c: dict) -> _Change:
             p.source, p.target = rn(p.source), rn(p.target)
         w.votes = {_rename_subject(s, name, new_name): v for s, v in w.votes.items()}
         w.arrow_flags = {_rename_key(k, name, new_name): f for k, f in w.arrow_flags.items()}
+        w.absent_marks = {_rename_key(k, name, new_name): f for k, f in w.absent_marks.items()}
         for statement in w.hidden_causes.values():
             statement["variable"] = rn(statement["variable"])
     w.variables, w.arrows, w.treatment, w.outcome = variables, arrows, treatment, outcome
@@ -417,6 +418,26 @@ def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
     return _Change(f"{text} arrow {source} → {target}", undoable=True)
 
 
+def _mark_absent(w: Workshop, m: Member, c: dict) -> _Change:
+    """The room considered a left-out arrow and keeps it out (``considered`` false clears it)."""
+    _require_facilitator(m, "mark left-out arrows as considered")
+    _require_unlocked(w, "mark left-out arrows")
+    source, target = _arrow_ends(c)
+    _require_variable(w, source)
+    _require_variable(w, target)
+    if w.has_arrow(source, target):
+        raise Conflict(f"the arrow {source} → {target} is drawn, not left out", code="arrow_drawn")
+    key = arrow_key(source, target)
+    if c.get("considered", True) is False:
+        if w.absent_marks.pop(key, None) is None:
+            raise NotFound(f"{source} → {target} was not marked as considered", code="unknown_mark")
+        return _Change(f"took back “considered, stays out” for {source} → {target}", undoable=True)
+    reason = _text(c, "reason", limit=MAX_PROPOSAL_REASON, what="the reason")
+    w.absent_marks[key] = {"by": m.id, "by_name": m.name, "at": c["_now"], "reason": reason}
+    return _Change(f"considered {source} → {target} and keeps it out" + (f": {reason}" if reason else ""),
+                   undoable=True)
+
+
 def _state_hidden_cause(w: Workshop, m: Member, c: dict) -> _Change:
     """A member's strongest imaginable hidden common cause, compared with a measured variable;
     ``times`` null withdraws it."""
@@ -496,6 +517,7 @@ def _undo(w: Workshop, m: Member, c: dict) -> _Change:
             if len(saved) >= 5:
                 p.source, p.target = saved[3], saved[4]
     w.arrow_flags = dict(before.get("arrow_flags", {}))
+    w.absent_marks = {k: dict(v) for k, v in before.get("absent_marks", {}).items()}
     renamed = target["command"].get("new_name") if target["kind"] == "update_variable" else None
     if renamed and renamed != target["command"].get("name"):
         # votes on arrows follow the variable's name back
@@ -526,6 +548,7 @@ HANDLERS: dict[str, Callable[[Workshop, Member, dict], _Change]] = {
     "withdraw_vote": _withdraw_vote,
     "settle": _settle,
     "flag_arrow": _flag_arrow,
+    "mark_absent": _mark_absent,
     "state_hidden_cause": _state_hidden_cause,
     "set_stage": _set_stage,
     "grant_role": _grant_role,
@@ -574,7 +597,8 @@ def apply_command(workshop: Workshop, member: Member, command: Any, *, now: floa
 def _restore(workshop: Workshop, state: dict, log_flags: list) -> None:
     fresh = Workshop.from_state(state, workshop.log)
     for name in ("title", "stage", "revision", "variables", "arrows", "treatment", "outcome",
-                 "members", "proposals", "next_proposal", "votes", "arrow_flags", "hidden_causes"):
+                 "members", "proposals", "next_proposal", "votes", "arrow_flags", "absent_marks",
+                 "hidden_causes"):
         setattr(workshop, name, getattr(fresh, name))
     for event, flag in zip(workshop.log, log_flags):
         event["undone"] = flag

@@ -181,6 +181,8 @@ class Workshop:
     next_proposal: int = 1
     votes: dict[str, dict[str, Vote]] = field(default_factory=dict)
     arrow_flags: dict[str, str] = field(default_factory=dict)
+    # left-out arrows the room considered and keeps out: arrow key -> {by, by_name, at, reason}
+    absent_marks: dict[str, dict] = field(default_factory=dict)
     hidden_causes: dict[str, dict[str, Any]] = field(default_factory=dict)  # member id -> statement
     join_role: Role = Role.PARTICIPANT  # the role of whoever joins (reader in a read-only session)
     log: list[dict[str, Any]] = field(default_factory=list)
@@ -227,6 +229,7 @@ class Workshop:
             "proposals": {str(p.id): [p.status, p.settled_by, p.settled_at, p.source, p.target]
                           for p in self.proposals.values()},
             "arrow_flags": dict(self.arrow_flags),
+            "absent_marks": {k: dict(v) for k, v in self.absent_marks.items()},
         }
 
     # -- serialisation --------------------------------------------------------
@@ -245,6 +248,7 @@ class Workshop:
             "votes": {subject: {mid: dict(vars(v)) for mid, v in by.items()}
                       for subject, by in self.votes.items()},
             "arrow_flags": dict(self.arrow_flags),
+            "absent_marks": {k: dict(v) for k, v in self.absent_marks.items()},
             "hidden_causes": {mid: dict(s) for mid, s in self.hidden_causes.items()},
             "join_role": self.join_role,
         }
@@ -264,6 +268,7 @@ class Workshop:
             votes={subject: {mid: Vote(**v) for mid, v in by.items()}
                    for subject, by in state.get("votes", {}).items()},
             arrow_flags=dict(state.get("arrow_flags", {})),
+            absent_marks={k: dict(v) for k, v in (state.get("absent_marks") or {}).items()},
             hidden_causes={str(mid): dict(s) for mid, s in (state.get("hidden_causes") or {}).items()},
             join_role=Role(state.get("join_role", Role.PARTICIPANT)),
             log=list(log or []),

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from typing import Any
 
 from .commands import public_event
@@ -13,6 +14,17 @@ from .voting import disputed_items, proposal_public, tally, votes_public
 __all__ = ["public_state", "history", "arrow_public", "change_patch", "can_undo"]
 
 RECENT_EVENTS = 30
+
+
+def absent_marks_public(w: Workshop) -> list[dict[str, Any]]:
+    """Left-out arrows the room considered and keeps out (between variables still drawn)."""
+    names = {v["name"] for v in w.variables}
+    out = []
+    for key, mark in sorted(w.absent_marks.items()):
+        source, target = json.loads(key)
+        if source in names and target in names:
+            out.append({"from": source, "to": target, **mark})
+    return out
 
 
 def public_state(w: Workshop, *, compact: bool = False) -> dict[str, Any]:
@@ -41,6 +53,7 @@ def public_state(w: Workshop, *, compact: bool = False) -> dict[str, Any]:
         "disputed": disputes,
         "can_undo": can_undo(w),
         "hidden_causes": statements_public(w),
+        "absent_marks": absent_marks_public(w),
     }
     if not compact:
         out["recent"] = [public_event(e) for e in w.log[-RECENT_EVENTS:]]

@@ -1,7 +1,7 @@
 // Side panels: what the diagram implies, the debate, the selection, history, people.
 // Each function takes the app object and returns DOM built with textContent only.
 
-import { el, clock, ROLE_WORDS, independenceText } from './dom.js';
+import { el, clock, ROLE_WORDS, independenceText, askText } from './dom.js';
 import { draftField } from './drafts.js';
 import { renderHiddenCauses } from './hidden_cause.js';
 import { VOTE_LABELS, LOCKED_STAGES } from './vocabulary.js';
@@ -293,11 +293,33 @@ function renderAbsent(app) {
   if (!a) { box.append(el('p', { class: 'muted', text: app.analysis?.problem || 'Checking…' })); return box; }
   box.append(el('p', { class: 'note', text: a.note }));
   if (!a.arrows.length) return box;
-  const disputedPairs = new Set(app.state.disputed.map((item) => JSON.stringify(item.pair)));
-  box.append(el('ul', { class: 'absent-list' }, a.arrows.slice(0, 30).map((x) => el('li', {},
-    el('strong', { text: `${x.from} → ${x.to}` }), el('span', { text: ` — ${x.text}` }),
-    disputedPairs.has(JSON.stringify([x.from, x.to].sort())) ? el('span', { class: 'muted', text: ' (already under dispute)' }) : null))));
-  if (a.arrows.length > 30) box.append(el('p', { class: 'muted', text: `…and ${a.arrows.length - 30} more.` }));
+  const s = app.state;
+  const marks = new Map((s.absent_marks || []).map((m) => [JSON.stringify([m.from, m.to]), m]));
+  const canMark = app.isFacilitator && !['agreed', 'estimation'].includes(s.session.stage) && !app.readOnly;
+  const disputedPairs = new Set(s.disputed.map((item) => JSON.stringify(item.pair)));
+  // What is still to look at first, the arrows that would change most at the top.
+  const open = a.arrows.filter((x) => !marks.has(JSON.stringify([x.from, x.to])))
+    .sort((x, y) => (y.severity ?? 0) - (x.severity ?? 0));
+  const considered = a.arrows.filter((x) => marks.has(JSON.stringify([x.from, x.to])));
+  const keepOut = (x) => askText(`Keep ${x.from} → ${x.to} out`, { label: 'Why does the room keep it out? (optional, one line; goes in the history and the report)', confirm: 'Considered, stays out' })
+    .then((reason) => { if (reason !== null) app.send({ type: 'mark_absent', from: x.from, to: x.to, reason }).catch(() => {}); });
+  if (open.length) {
+    box.append(el('ul', { class: 'absent-list' }, open.slice(0, 30).map((x) => el('li', {},
+      el('strong', { text: `${x.from} → ${x.to}` }), el('span', { text: ` — ${x.text}` }),
+      disputedPairs.has(JSON.stringify([x.from, x.to].sort())) ? el('span', { class: 'muted', text: ' (already under dispute)' }) : null,
+      canMark ? el('button', { type: 'button', class: 'quiet', text: 'Considered, stays out', title: 'Record that the room looked at this arrow and keeps it out', on: { click: () => keepOut(x) } }) : null))));
+    if (open.length > 30) box.append(el('p', { class: 'muted', text: `…and ${open.length - 30} more.` }));
+  } else box.append(el('p', { class: 'muted', text: 'The room has considered every arrow listed and keeps each out.' }));
+  if (considered.length) {
+    box.append(el('details', { class: 'absent-considered' }, el('summary', { text: `Considered, stays out (${considered.length})` }),
+      el('ul', { class: 'absent-list' }, considered.map((x) => {
+        const m = marks.get(JSON.stringify([x.from, x.to]));
+        return el('li', {},
+          el('strong', { text: `${x.from} → ${x.to}` }),
+          el('span', { text: ` — ${m.by_name}${m.reason ? `: “${m.reason}”` : ''}` }),
+          canMark ? el('button', { type: 'button', class: 'quiet', text: 'Take back', on: { click: () => app.send({ type: 'mark_absent', from: x.from, to: x.to, considered: false }).catch(() => {}) } }) : null);
+      }))));
+  }
   return box;
 }
 
