@@ -450,7 +450,9 @@ def implication_items(checks: dict | None, alpha: float = 0.05, dag: Dag | None 
     failing = [t for t in tested if t["verdict"] == "fails"]
     repairs = []
     for t in failing:
-        t["repairs"] = [[u, v] for u, v in arrows_linking(dag, t["x"], t["y"], t["given"])] if dag else []
+        found = arrows_linking(dag, t["x"], t["y"], t["given"]) if dag else []
+        ends = {t["x"], t["y"]}
+        t["repairs"] = [[u, v] for u, v in sorted(found, key=lambda a: set(a) != ends)]  # direct arrows first
         claim = t.get("text") or independence_text(t["x"], t["y"], t["given"])
         repairs += [_repair("add", u, v, f"Data contradict '{claim}' (adjusted p = {t['p_adjusted']:.2g}); "
                                           f"the arrow {u} → {v} would remove that claim.")
