@@ -420,8 +420,6 @@ def _flag_arrow(w: Workshop, m: Member, c: dict) -> _Change:
 
 def _mark_absent(w: Workshop, m: Member, c: dict) -> _Change:
     """The room considered a left-out arrow and keeps it out (``considered`` false clears it)."""
-    _require_facilitator(m, "mark left-out arrows as considered")
-    _require_unlocked(w, "mark left-out arrows")
     source, target = _arrow_ends(c)
     _require_variable(w, source)
     _require_variable(w, target)

@@ -73,6 +73,8 @@ RULES: dict[str, Rule] = {
     "flag_arrow": Rule(FACILITATOR, UNLOCKED, doing="mark arrows disputed or settled",
                        locked_doing="change disputes"),
     "state_hidden_cause": Rule(MEMBERS, UNLOCKED, doing="state a hidden cause"),
+    "mark_absent": Rule(FACILITATOR, UNLOCKED, doing="mark left-out arrows as considered",
+                        locked_doing="mark left-out arrows"),
     # facilitation
     "set_stage": Rule(FACILITATOR, doing="move the session to another stage"),
     "grant_role": Rule(FACILITATOR, doing="grant roles"),

@@ -295,7 +295,7 @@ function renderAbsent(app) {
   if (!a.arrows.length) return box;
   const s = app.state;
   const marks = new Map((s.absent_marks || []).map((m) => [JSON.stringify([m.from, m.to]), m]));
-  const canMark = app.isFacilitator && !['agreed', 'estimation'].includes(s.session.stage) && !app.readOnly;
+  const canMark = app.isFacilitator && !LOCKED_STAGES.has(s.session.stage) && !app.readOnly;
   const disputedPairs = new Set(s.disputed.map((item) => JSON.stringify(item.pair)));
   // What is still to look at first, the arrows that would change most at the top.
   const open = a.arrows.filter((x) => !marks.has(JSON.stringify([x.from, x.to])))
