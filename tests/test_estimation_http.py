@@ -202,3 +202,14 @@ def test_parquet_upload_with_a_path_in_its_name(room, tmp_path):
     stored = client.app.state.store.session_data_dir(made["session_id"]) / "data.parquet"
     assert stored.is_file()
     assert client.post(f"{base}/estimate", json={"checks": False}, headers=headers).status_code == 200
+
+
+def test_panel_is_offered_the_registry_methods(room):
+    """The page's method menu comes from the server's registry, "auto" first."""
+    from app.estimation.methods import METHODS
+
+    client, base, headers, _ = room
+    offered = client.get(base, headers=headers).json()["methods"]
+    assert [m["name"] for m in offered] == ["auto", *(m.name for m in METHODS)]
+    assert {m["name"]: m["label"] for m in offered[1:]} == {m.name: m.label for m in METHODS}
+    assert next(m for m in offered if m["name"] == "weighting")["treatment"] == "binary"

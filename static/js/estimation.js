@@ -12,16 +12,6 @@ import { vocabulary } from './vocabulary.js';
 // The stages data may be attached in (the server's rule table).
 const DATA_STAGES = new Set(vocabulary.permissions?.attach_data?.stages || []);
 
-const METHODS = [
-  ['auto', 'Chosen from the diagram and the data'],
-  ['regression', 'Linear regression, robust errors'],
-  ['standardization', 'Standardization (binary outcome)'],
-  ['weighting', 'Inverse probability weighting'],
-  ['doubly-robust', 'Doubly robust (augmented weighting)'],
-  ['two-stage', 'Two-stage least squares (instrument)'],
-  ['front-door', 'Front-door product of coefficients'],
-];
-
 /** Format a number for people: 3 significant digits, no exponent for ordinary sizes. */
 function fmt(value, digits = 3) {
   if (value === null || value === undefined || Number.isNaN(value)) return '–';
@@ -76,6 +66,8 @@ class EstimationPanel {
     this.context = context;
     this.data = null;
     this.variables = [];
+    /** @type {{name: string, label: string, strategy: ?string, treatment: string, outcome: string}[]} */
+    this.methods = []; // the server's method registry (GET estimation), "auto" first
     this.results = { estimate: null, validation: null, sensitivity: null, disputes: null };
     this.checking = null; // the latest run of the checks against the data: progress and state
     this.busy = null;
@@ -122,6 +114,7 @@ class EstimationPanel {
         || Object.values(results).some((r) => r?.stale);
       this.data = data.data;
       this.variables = data.variables;
+      this.methods = data.methods || [];
       this.results = results;
       this.loaded = true;
       if (data.validation_run?.state === 'running' && !this.polling) this.followValidation(data.validation_run);
@@ -390,7 +383,7 @@ class EstimationPanel {
     if (!this.data) return null;
     const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
     const method = el('select', { name: 'method', 'aria-label': 'Method', on: { change: (e) => { this.choice.method = e.target.value; } } },
-      ...METHODS.map(([v, t]) => el('option', { value: v, text: t, selected: this.choice.method === v })));
+      ...this.methods.map((m) => el('option', { value: m.name, text: m.label, selected: this.choice.method === m.name })));
     const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction', on: { change: (e) => { this.choice.correction = e.target.value; } } },
       el('option', { value: 'holm', text: 'Holm', selected: this.choice.correction === 'holm' }),
       el('option', { value: 'bh', text: 'Benjamini–Hochberg', selected: this.choice.correction === 'bh' }));
