@@ -16,11 +16,9 @@ from app.graph.document import Diagram
 from app.graph.identification import analyze
 
 from .errors import BadMapping, BadMethod
-from .methods import AUTO, METHODS, default_method, find_method, method_names
+from .methods import AUTO, default_method, find_method, method_names
 
-__all__ = ["Plan", "make_plan", "find_fixing_groups", "METHOD_LABELS", "choose_method"]
-
-METHOD_LABELS = {m.name: m.label for m in METHODS}  # the registry's labels by name
+__all__ = ["Plan", "make_plan", "find_fixing_groups", "choose_method"]
 
 
 @dataclass

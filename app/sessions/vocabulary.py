@@ -2,7 +2,7 @@
 
 Each word lives with its rule in the domain (stage titles in
 app/workshop/stages.py, vote and proposal words in app/workshop/models.py,
-method labels in app/estimation/planning.py); this gathers them for the page,
+the methods in app/estimation/methods.py); this gathers them for the page,
 which reads them from ``window`` data and ``GET /api/vocabulary`` instead of
 keeping its own copies.
 """
@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from ..estimation.planning import METHOD_LABELS
+from ..estimation.methods import page_methods
 from ..workshop.models import (
     PROPOSAL_KIND_LABELS, PROPOSAL_STATUS_LABELS, ROLE_LABELS, VOTE_LABELS,
 )
@@ -32,5 +32,5 @@ def vocabulary() -> dict[str, Any]:
         "proposal_kinds": dict(PROPOSAL_KIND_LABELS),
         "proposal_statuses": dict(PROPOSAL_STATUS_LABELS),
         "permissions": permissions(),
-        "methods": {"auto": "Chosen from the diagram and the data", **METHOD_LABELS},
+        "methods": page_methods(),
     }

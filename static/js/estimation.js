@@ -66,8 +66,6 @@ class EstimationPanel {
     this.context = context;
     this.data = null;
     this.variables = [];
-    /** @type {{name: string, label: string, strategy: ?string, treatment: string, outcome: string}[]} */
-    this.methods = []; // the server's method registry (GET estimation), "auto" first
     this.results = { estimate: null, validation: null, sensitivity: null, disputes: null };
     this.checking = null; // the latest run of the checks against the data: progress and state
     this.busy = null;
@@ -114,7 +112,6 @@ class EstimationPanel {
         || Object.values(results).some((r) => r?.stale);
       this.data = data.data;
       this.variables = data.variables;
-      this.methods = data.methods || [];
       this.results = results;
       this.loaded = true;
       if (data.validation_run?.state === 'running' && !this.polling) this.followValidation(data.validation_run);
@@ -383,7 +380,7 @@ class EstimationPanel {
     if (!this.data) return null;
     const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
     const method = el('select', { name: 'method', 'aria-label': 'Method', on: { change: (e) => { this.choice.method = e.target.value; } } },
-      ...this.methods.map((m) => el('option', { value: m.name, text: m.label, selected: this.choice.method === m.name })));
+      ...(vocabulary.methods || []).map((m) => el('option', { value: m.name, text: m.label, selected: this.choice.method === m.name })));
     const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction', on: { change: (e) => { this.choice.correction = e.target.value; } } },
       el('option', { value: 'holm', text: 'Holm', selected: this.choice.correction === 'holm' }),
       el('option', { value: 'bh', text: 'Benjamini–Hochberg', selected: this.choice.correction === 'bh' }));

@@ -3,7 +3,7 @@
 
 const pageData = JSON.parse(document.getElementById('page-data')?.textContent || '{}');
 
-/** @type {{stage_titles: Object<string,string>, locked_stages: string[], vote_choices: Object<string,string>, permissions: Object<string,{roles: string[], stages: string[], facilitator_in: string[]}>, methods: Object<string,string>}} */
+/** @type {{stage_titles: Object<string,string>, locked_stages: string[], vote_choices: Object<string,string>, permissions: Object<string,{roles: string[], stages: string[], facilitator_in: string[]}>, methods: {name: string, label: string, strategy: ?string, treatment: string, outcome: string, model: ?string, sensitivity: ?string}[]}} */
 export const vocabulary = pageData.vocabulary || {};
 export const STAGE_NAMES = vocabulary.stage_titles || {};
 export const LOCKED_STAGES = new Set(vocabulary.locked_stages || []);

@@ -10,8 +10,7 @@ the room. A refused upload or request changes nothing that was there.
 Endpoints (under ``/api/sessions/{session_id}/estimation``; writes need the
 analyst or facilitator role and the ``agreed`` or ``estimation`` stage):
 
-``GET ""``                 attached data (profile, mapping), variables, latest results, and the
-                           methods offered (``methods``: name, label, strategy, needs, model, sensitivity)
+``GET ""``                 attached data (profile, mapping), variables, latest results
 ``PUT /data?name=F``       raw CSV or Parquet bytes as the body (413 over the limit)
 ``PUT /mapping``           ``{"mapping": {variable: column or null}}``
 ``POST /estimate``         ``{"method", "adjust", "correction": holm|bh|none, "checks"}``
@@ -42,7 +41,6 @@ from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge,
 from ...estimation import service, validation
 from ...estimation.columns import blank_text_cells, mapping_warnings
 from ...estimation.design import check_mapping, propose_mapping
-from ...estimation.methods import page_methods
 from ...estimation.samples import is_sample_file
 from ...estimation.tables import load_table, profile_table
 from ...reporting import charts
@@ -132,7 +130,7 @@ def read_estimation(access: MemberDep) -> dict:
     if info:
         info = {**_with_warnings(access, info), "sample_data": is_sample_file(access.data_dir() / info["stored"])}
     out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
-           "variables": _variables(access), "methods": page_methods()}
+           "variables": _variables(access)}
     fingerprint = _fingerprint(access)
     for key in RESULT_KEYS:
         result = access.get_attachment(key)
