@@ -45,15 +45,16 @@ def partial_r2(t_value: float, df: float) -> float:
     return t_value ** 2 / (t_value ** 2 + df)
 
 
-def robustness_value(t_value: float, df: float, *, q: float = 1.0, alpha: float | None = None) -> float:
-    """RV_q (alpha None) or RV_{q,alpha}; a fraction in [0, 1].
+def robustness_value(t_value: float, df: float, *, share: float = 1.0, alpha: float | None = None) -> float:
+    """The robustness value for removing ``share`` of the estimate (q in Cinelli & Hazlett 2020),
+    at no level (alpha None) or for the interval at level alpha; a fraction in [0, 1].
 
-    With f_q = q |t| / sqrt(df) and, for alpha, f* = |t_{1-alpha/2, df-1}| / sqrt(df-1):
+    With f_q = share |t| / sqrt(df) and, for alpha, f* = |t_{1-alpha/2, df-1}| / sqrt(df-1):
     RV = (sqrt(g^4 + 4 g^2) - g^2) / 2 with g = f_q - f* (g = f_q without alpha),
     zero when g <= 0, and (f_q^2 - f*^2) / (1 + f_q^2) when f_q >= 1/f*, the
     case where the worst cause is not equally strong on both sides.
     """
-    fq = q * abs(t_value) / math.sqrt(df)
+    fq = share * abs(t_value) / math.sqrt(df)
     if alpha is None:
         return 0.5 * (math.sqrt(fq ** 4 + 4 * fq ** 2) - fq ** 2)
     fcrit = abs(stats.t.ppf(alpha / 2, df - 1)) / math.sqrt(df - 1)
@@ -288,7 +289,7 @@ def _yardsticks(design) -> dict[str, tuple[float, float]]:
     return out
 
 
-def regression_sensitivity(design, *, q: float = 1.0, alpha: float = 0.05,
+def regression_sensitivity(design, *, share: float = 1.0, alpha: float = 0.05,
                            ks: tuple[float, ...] = (1.0, 2.0, 3.0),
                            statements: list[dict] | None = None) -> dict:
     """Sensitivity of the OLS estimate of a design: robustness values, a cause k times as
@@ -310,8 +311,8 @@ def regression_sensitivity(design, *, q: float = 1.0, alpha: float = 0.05,
                 "std_error_if_present": at["std_error_if_present"],
             })
     room = room_reading(statements or [], yardsticks, estimate=est, se=se, df=df, alpha=alpha)
-    rv = robustness_value(t_value, df, q=q)
-    rv_alpha = robustness_value(t_value, df, q=q, alpha=alpha)
+    rv = robustness_value(t_value, df, share=share)
+    rv_alpha = robustness_value(t_value, df, share=share, alpha=alpha)
     reach = [rv * 1.25, 0.05] + [r["equal_strength"] * 1.2 for r in room["statements"] if r["usable"]]
     top = float(min(0.95, max(reach)))
     return {
@@ -320,7 +321,7 @@ def regression_sensitivity(design, *, q: float = 1.0, alpha: float = 0.05,
         "partial_r2_treatment": partial_r2(t_value, df),
         "robustness_value": rv,
         "robustness_value_alpha": rv_alpha,
-        "q": q, "alpha": alpha,
+        "share_removed": share, "alpha": alpha,
         "benchmarks": benchmarks,
         "room": room,
         "path": interval_path(est, se, df, top=top, alpha=alpha),

@@ -217,7 +217,7 @@ def validate(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None,
 
 
 def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = None, *,
-                method: str | None = None, adjust: list[str] | None = None, q: float = 1.0,
+                method: str | None = None, adjust: list[str] | None = None, share: float = 1.0,
                 alpha: float = 0.05, statements: list[dict] | None = None) -> dict:
     """How strong a hidden common cause would have to be, and what the room's stated
     ones (``[{"by", "variable", "times"}]``) would do to the estimate."""
@@ -231,7 +231,7 @@ def sensitivity(diagram: Diagram, frame: pd.DataFrame, mapping: dict | None = No
                        "it is shown for the regression with the same adjustment set")
     if kind == "partial-r2":
         fit = estimators.regression(design)
-        out["regression"] = regression_sensitivity(design, q=q, alpha=alpha, statements=statements)
+        out["regression"] = regression_sensitivity(design, share=share, alpha=alpha, statements=statements)
         sd = float(np.std(design.y, ddof=1))
         out["e_value"] = standardized_e_value(fit["estimate"], fit["ci"][0], fit["ci"][1], sd)
     elif kind == "risk-ratio-e-value":
