@@ -10,10 +10,14 @@ Modules
 ``planning``      identification with unmapped variables latent (the graph engine), the set /
                   instrument / mediators to use, the smallest groups of unmeasured variables
                   that would allow adjustment, the default method
+``methods``       the estimators offered, one entry each (label, strategy, needs, fit and point
+                  functions, model assumption, sensitivity); read by planning, service, CLI and page
 ``estimators``    regression (OLS, HC1), standardization (g-formula, bootstrap), weighting and
                   doubly-robust (analytic sandwich), two-stage (linearmodels IV2SLS),
                   front-door (product of coefficients, bootstrap)
-``implications``  the diagram's independences tested on the data (Fisher z; likelihood ratio),
+``moments``       means and centred cross-products of a design in one chunked pass
+``implications``  the diagram's independences tested on the data (Fisher z; likelihood ratio,
+                  from the cross-products where linear),
                   Holm or Benjamini-Hochberg correction
 ``validation``    checks that can contradict the diagram (valid sets agree, control outcomes
                   and exposures, implications alone and together) and one verdict
