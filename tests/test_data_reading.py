@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tests.conftest import make_app
+from tests.helpers.app import make_app
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 

@@ -11,7 +11,7 @@ from pathlib import Path
 import httpx
 import pytest
 
-from live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
+from tests.helpers.live_server import ARTIFACTS, CHROMIUM_ARGS, running_server
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data"
 
