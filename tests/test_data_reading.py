@@ -92,3 +92,17 @@ def test_text_cells_in_a_numeric_column_are_counted_and_can_count_as_missing(roo
     refused = client.put(f"{base}/mapping", json={"mapping": data["mapping"], "text_as_missing": ["nope"]},
                          headers=headers)
     assert refused.status_code == 400 and "nope" in refused.text
+
+
+def test_methods_offered_are_exactly_those_that_estimate(room):
+    """Every method the panel offers estimates; every one it does not is refused, with a reason."""
+    client, base, headers = room
+    client.put(f"{base}/data?name=c.csv", content=(SAMPLE / "cycle_to_work.csv").read_bytes(), headers=headers)
+    offer = client.get(base, headers=headers).json()["data"]["methods"]
+    by_name = {m["name"]: m for m in offer}
+    assert not by_name["standardization"]["applies"] and "binary (0/1) outcome" in by_name["standardization"]["why"]
+    assert not by_name["front-door"]["applies"] and "front-door" in by_name["front-door"]["why"]
+    for m in offer:
+        r = client.post(f"{base}/estimate", json={"method": m["name"], "checks": False}, headers=headers)
+        assert (r.status_code == 200) == m["applies"], (m, r.text)
+        assert m["applies"] or m["why"]

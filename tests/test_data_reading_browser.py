@@ -75,3 +75,43 @@ def test_mapping_shows_kinds_warns_and_offers_missing(tmp_path):
         page.locator("section[aria-label='Estimate']").screenshot(path=str(ARTIFACTS / "estimate_coding.png"))
         browser.close()
         assert errors == []
+
+
+def test_only_applicable_methods_are_offered_and_labels_stay_true(tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    with running_server(tmp_path) as base, sync_playwright() as p:
+        sid, token = _session(base)
+        up = httpx.put(f"{base}/api/sessions/{sid}/estimation/data?name=cycle_to_work.csv",
+                       content=(SAMPLE / "cycle_to_work.csv").read_bytes(), headers={"X-Arrowmoot-Token": token})
+        assert up.status_code == 200, up.text
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1280, "height": 720})
+        errors: list[str] = []
+        page.on("pageerror", lambda exc: errors.append(str(exc)))
+        page.goto(f"{base}/s/{sid}#key={token}")
+        page.click("button[data-tab='estimation']")
+        page.wait_for_selector("select[name='method']")
+        offered = page.eval_on_selector_all("select[name='method'] option", "os => os.map(o => o.value)")
+        assert "standardization" not in offered and "front-door" not in offered and "weighting" in offered
+        page.locator("[data-not-offered] summary").click()
+        assert "binary (0/1) outcome" in page.locator("[data-not-offered] li[data-method='standardization']").inner_text()
+        page.click("button[data-action='estimate']")
+        page.wait_for_selector(".am-result")
+        label = page.locator(".am-facts dd").first.inner_text()
+        # choosing another method without estimating says the shown result is not by it
+        page.select_option("select[name='method']", "weighting")
+        assert label in page.locator("[data-note='method-differs']").inner_text()
+        # a refused method: the selector returns to the method of the result shown
+        page.route("**/estimation/estimate", lambda route: route.fulfill(
+            status=422, content_type="application/json",
+            body=json.dumps({"ok": False, "error": {"code": "bad_method", "message": "method 'weighting' needs more"}})))
+        page.click("button[data-action='estimate']")
+        page.wait_for_selector(".am-message.am-error")
+        assert "earlier one" in page.locator(".am-message").inner_text()
+        assert page.locator("select[name='method']").input_value() != "weighting"
+        assert page.locator("[data-note='method-differs']").count() == 0
+        page.locator("section[aria-label='Estimate']").screenshot(path=str(ARTIFACTS / "methods_offered.png"))
+        browser.close()
+        assert errors == []

@@ -73,6 +73,7 @@ class EstimationPanel {
     this.flagged = null;
     this.choice = { method: 'auto', correction: 'holm', adjust: null };
     this.pendingFile = null;
+    this.draftMapping = {};
     this.version = 0;
     this.loaded = false;
   }
@@ -143,6 +144,7 @@ class EstimationPanel {
       const body = await uploadEstimationData(this.context.sessionId, this.context.token, file);
       this.data = body.data;
       this.pendingFile = null;
+      this.draftMapping = {};
       for (const key of Object.keys(this.results)) this.results[key] = null;
       this.message = { kind: 'ok', text: `Attached ${file.name}: ${body.data.rows} rows, ${body.data.columns.length} columns.` };
     });
@@ -156,6 +158,7 @@ class EstimationPanel {
     return this.act('mapping', async () => {
       const body = await saveEstimationMapping(this.context.sessionId, this.context.token, mapping, textAsMissing);
       this.data = body.data;
+      this.draftMapping = {};
       const n = body.data.warnings?.filter((w) => w.severity === 'warning').length || 0;
       const what = textAsMissing ? 'Text cells now count as missing; mapping saved' : 'Mapping saved';
       this.message = n ? { kind: 'error', text: `${what}, with ${n} warning${n === 1 ? '' : 's'}: see beside the mapping.` }
@@ -177,9 +180,19 @@ class EstimationPanel {
     const opts = this.options();
     return this.act(kind, async () => {
       const body = kind === 'estimate' ? opts : { method: opts.method, adjust: opts.adjust };
-      const out = await runEstimation(this.context.sessionId, this.context.token, kind, body);
-      this.results[kind] = out.result;
-      if (kind === 'estimate') this.results.validation = null;
+      try {
+        const out = await runEstimation(this.context.sessionId, this.context.token, kind, body);
+        this.results[kind] = out.result;
+        if (kind === 'estimate') this.results.validation = null;
+      } catch (err) {
+        if (kind === 'estimate' && opts.method) {
+          const shown = this.results.estimate;
+          this.choice.method = shown ? shown.method : 'auto';
+          const tail = shown ? ` The result shown is still the earlier one, by ${shown.method_label}.` : '';
+          throw new Error(`${err.message || err} (${opts.method} refused).${tail}`);
+        }
+        throw err;
+      }
     }).then(() => { if (kind === 'estimate' && this.results.estimate && !this.message) this.startValidation(); });
   }
 
@@ -346,11 +359,13 @@ class EstimationPanel {
     const rows = this.variables.map((v) => {
       const kindCell = el('td', { class: 'am-kind', dataset: { kindOf: v.name } });
       const showKind = (column) => { kindCell.textContent = column ? columnKind(profile[column]) : ''; };
+      // an unsaved choice survives a redraw (another member's update arriving meanwhile)
+      const current = v.name in this.draftMapping ? this.draftMapping[v.name] : mapping[v.name];
       const select = el('select', { dataset: { variable: v.name }, disabled: !this.canEdit || !this.isOpenForData, 'aria-label': `Column for ${v.name}`,
-        on: { change: (e) => showKind(e.target.value) } },
+        on: { change: (e) => { this.draftMapping[v.name] = e.target.value; showKind(e.target.value); } } },
         el('option', { value: '', text: '— not measured —' }),
-        ...this.data.columns.map((c) => el('option', { value: c, text: c, selected: mapping[v.name] === c })));
-      showKind(mapping[v.name]);
+        ...this.data.columns.map((c) => el('option', { value: c, text: c, selected: current === c })));
+      showKind(current);
       const tag = v.role ? ` (${v.role})` : v.latent ? ' (unmeasured in the diagram)' : '';
       const row = [el('tr', { class: warnings[v.name]?.severity === 'warning' ? 'am-warn' : '' }, el('th', { text: v.name + tag }), el('td', {}, select), kindCell)];
       const w = warnings[v.name];
@@ -379,16 +394,30 @@ class EstimationPanel {
   renderEstimate() {
     if (!this.data) return null;
     const box = el('section', { class: 'am-section', 'aria-label': 'Estimate' }, el('h4', { text: '3. Estimate' }));
-    const method = el('select', { name: 'method', 'aria-label': 'Method', on: { change: (e) => { this.choice.method = e.target.value; } } },
-      ...(vocabulary.methods || []).map((m) => el('option', { value: m.name, text: m.label, selected: this.choice.method === m.name })));
+    const menu = vocabulary.methods || [];
+    const fits = Object.fromEntries((this.data.methods || []).map((m) => [m.name, m]));
+    const applies = menu.filter((m) => fits[m.name]?.applies !== false);
+    const refused = menu.filter((m) => fits[m.name]?.applies === false).map((m) => ({ ...m, why: fits[m.name].why }));
+    if (!applies.some((m) => m.name === this.choice.method)) this.choice.method = 'auto';
+    const method = el('select', { name: 'method', 'aria-label': 'Method', on: { change: (e) => { this.choice.method = e.target.value; this.render(); } } },
+      ...applies.map((m) => el('option', { value: m.name, text: m.label, selected: this.choice.method === m.name })));
     const correction = el('select', { name: 'correction', 'aria-label': 'Multiple-testing correction', on: { change: (e) => { this.choice.correction = e.target.value; } } },
       el('option', { value: 'holm', text: 'Holm', selected: this.choice.correction === 'holm' }),
       el('option', { value: 'bh', text: 'Benjamini–Hochberg', selected: this.choice.correction === 'bh' }));
     const last = this.results.estimate;
     box.append(el('div', { class: 'row' }, el('label', {}, 'Method', method), el('label', {}, 'Correction', correction)),
       el('div', { class: 'row end' }, this.button('Estimate', 'estimate', () => this.run('estimate'), true)));
+    if (refused.length) {
+      box.append(el('details', { class: 'am-not-offered', dataset: { notOffered: refused.length } },
+        el('summary', { text: `${refused.length} method${refused.length === 1 ? '' : 's'} not offered for this diagram and these columns` }),
+        el('ul', {}, ...refused.map((m) => el('li', { dataset: { method: m.name } }, el('strong', { text: m.label }), `: ${m.why}.`)))));
+    }
     if (!last) return box;
     const r = last;
+    if (this.choice.method !== 'auto' && this.choice.method !== r.method) {
+      const wanted = menu.find((m) => m.name === this.choice.method)?.label || this.choice.method;
+      box.append(el('p', { class: 'notice', dataset: { note: 'method-differs' }, text: `The result below is by ${r.method_label}, not by the method now chosen (${wanted}); press Estimate to compute that one.` }));
+    }
     const card = el('div', { class: 'am-result', dataset: { result: 'estimate' } }, this.staleNote(r),
       el('p', { class: 'am-headline' },
         el('strong', { text: fmt(r.estimate) }),

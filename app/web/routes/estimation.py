@@ -40,9 +40,11 @@ from starlette.concurrency import run_in_threadpool
 from ...errors import AppError, BadRequest, Conflict, NotFound, PayloadTooLarge, Unprocessable
 from ...estimation import service, validation
 from ...estimation.columns import blank_text_cells, mapping_warnings
+from ...estimation.offer import method_offer
 from ...estimation.design import check_mapping, propose_mapping
 from ...estimation.samples import is_sample_file
 from ...estimation.tables import load_table, profile_table
+from ...graph.errors import DiagramError
 from ...reporting import charts
 from ...sessions.data import DATA_KEY, RESULT_KEYS, data_info, stored_name
 from ..deps import AnalystDep, AttachDataDep, EstimateDep, MapColumnsDep, MemberDep
@@ -114,6 +116,14 @@ def _with_warnings(access, info: dict) -> dict:
     return {**info, "warnings": mapping_warnings(info.get("profile") or [], info.get("mapping") or {}, roles)}
 
 
+def _offer(access, info: dict) -> list[dict] | None:
+    """The methods that apply to the diagram and the mapped columns, and why the others do not."""
+    try:
+        return method_offer(access.diagram(), info.get("mapping") or {}, info.get("profile") or [])
+    except DiagramError:
+        return None
+
+
 def _variables(access) -> list[dict]:
     d = access.diagram()
     return [{"name": v.name, "label": v.label, "latent": v.latent,
@@ -128,7 +138,8 @@ def read_estimation(access: MemberDep) -> dict:
     if info and info.get("mapping") is None:
         info = {**info, "mapping": propose_mapping(access.diagram().names, info["columns"])}
     if info:
-        info = {**_with_warnings(access, info), "sample_data": is_sample_file(access.data_dir() / info["stored"])}
+        info = {**_with_warnings(access, info), "sample_data": is_sample_file(access.data_dir() / info["stored"]),
+                "methods": _offer(access, info)}
     out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
            "variables": _variables(access)}
     fingerprint = _fingerprint(access)
@@ -189,7 +200,7 @@ async def upload_data(access: AttachDataDep, request: Request, name: str = "data
     for key in RESULT_KEYS:
         access.delete_attachment(key)
     await access.log(f"attached data {name} ({len(frame)} rows, {frame.shape[1]} columns)", kind="estimation")
-    return {"ok": True, "data": _with_warnings(access, info)}
+    return {"ok": True, "data": {**_with_warnings(access, info), "methods": _offer(access, info)}}
 
 
 @router.put("/mapping")
@@ -206,7 +217,7 @@ async def update_mapping(access: MapColumnsDep, body: Any = Body(...)) -> dict:
     unmeasured = sorted(set(access.diagram().names) - set(mapping))
     await access.log("mapped measures to variables" + (f"; unmeasured: {', '.join(unmeasured)}" if unmeasured else ""),
                      kind="estimation")
-    return {"ok": True, "data": _with_warnings(access, info)}
+    return {"ok": True, "data": {**_with_warnings(access, info), "methods": _offer(access, info)}}
 
 
 def _blank_text(access, info: dict, columns: Any) -> dict:
