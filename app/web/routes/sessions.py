@@ -11,6 +11,10 @@ from ...sessions.vocabulary import vocabulary
 from ...workshop.views import history, public_state
 from ..deps import HubDep, MemberDep, SessionsDep
 from ..guards import guarded_join_lookup
+from ..schemas import (
+    AnalysisRead, Command, CommandApplied, CreateSession, HistoryRead, Joined, JoinCodeFound, JoinSession,
+    SessionCreated, SessionRead, VocabularyRead, body_schema,
+)
 
 router = APIRouter(prefix="/api", tags=["sessions"])
 
@@ -23,7 +27,8 @@ def _links(session_id: str, join_code: str, token: str | None = None) -> dict[st
     return out
 
 
-@router.post("/sessions", status_code=201)
+@router.post("/sessions", status_code=201, response_model=SessionCreated,
+             openapi_extra=body_schema(CreateSession))
 async def create_session(sessions: SessionsDep, body: Any = Body(...)) -> dict:
     """Open a new session; the answer holds the facilitator's key (shown once)."""
     if not isinstance(body, dict):
@@ -40,20 +45,20 @@ async def create_session(sessions: SessionsDep, body: Any = Body(...)) -> dict:
             "state": public_state(w)}
 
 
-@router.get("/vocabulary")
+@router.get("/vocabulary", response_model=VocabularyRead)
 async def read_vocabulary() -> dict:
     """The words and rules the page shows: stages, roles, vote choices, permissions, methods."""
     return {"ok": True, **vocabulary()}
 
 
-@router.get("/join/{code}")
+@router.get("/join/{code}", response_model=JoinCodeFound)
 async def read_join_code(code: str, sessions: SessionsDep, request: Request) -> dict:
     """What a join code leads to (title and stage only)."""
     w = await guarded_join_lookup(request, sessions, code)
     return {"ok": True, "session_id": w.id, "title": w.title, "stage": w.stage}
 
 
-@router.post("/join", status_code=201)
+@router.post("/join", status_code=201, response_model=Joined, openapi_extra=body_schema(JoinSession))
 async def join_session(sessions: SessionsDep, request: Request, body: Any = Body(...)) -> dict:
     """Join a session with its code and a display name; returns the participant's key."""
     if not isinstance(body, dict):
@@ -64,7 +69,7 @@ async def join_session(sessions: SessionsDep, request: Request, body: Any = Body
             **_links(w.id, w.join_code)}
 
 
-@router.get("/sessions/{session_id}")
+@router.get("/sessions/{session_id}", response_model=SessionRead)
 async def read_session(access: MemberDep, hub: HubDep) -> dict:
     """The session's current state, as every participant sees it."""
     w = access.workshop
@@ -72,7 +77,8 @@ async def read_session(access: MemberDep, hub: HubDep) -> dict:
             "online": hub.online(w.id), "read_only": access.sessions.is_read_only(w.id)}
 
 
-@router.post("/sessions/{session_id}/commands")
+@router.post("/sessions/{session_id}/commands", response_model=CommandApplied,
+             openapi_extra=body_schema(Command))
 async def submit_command(access: MemberDep, request: Request, body: Any = Body(...)) -> dict:
     """Apply one change (see app.workshop.commands for the command types).
 
@@ -84,13 +90,13 @@ async def submit_command(access: MemberDep, request: Request, body: Any = Body(.
             **({"replayed": True} if event.get("replayed") else {})}
 
 
-@router.get("/sessions/{session_id}/history")
+@router.get("/sessions/{session_id}/history", response_model=HistoryRead)
 async def read_history(access: MemberDep) -> dict:
     """Every change with who made it and when."""
     return {"ok": True, "events": history(access.workshop)}
 
 
-@router.get("/sessions/{session_id}/analysis")
+@router.get("/sessions/{session_id}/analysis", response_model=AnalysisRead)
 async def read_analysis(access: MemberDep) -> dict:
     """What the current diagram implies, with the dispute and absent-arrow checks."""
     return {"ok": True, **(await access.analysis_soon())}
