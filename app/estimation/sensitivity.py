@@ -262,28 +262,29 @@ def classical_ols(x: np.ndarray, y: np.ndarray, column: int = 1) -> tuple[float,
     return float(beta[column]), se, float(df)
 
 
-def _rss(x: np.ndarray, y: np.ndarray) -> float:
-    from .estimators import _least_squares
-
-    beta, _ = _least_squares(x, y)
-    return float(np.sum((y - x @ beta) ** 2))
-
-
 def _yardsticks(design) -> dict[str, tuple[float, float]]:
     """For each adjustment variable, its partial R2 with the treatment (given the other
-    covariates) and with the outcome (given treatment and the other covariates)."""
-    x = design.x  # [1, treatment, covariates]
+    covariates) and with the outcome (given treatment and the other covariates).
+
+    Every residual sum of squares is a small solve on the centred cross-products of
+    [treatment, covariates, outcome], computed in one pass (:mod:`.moments`)."""
+    from .moments import accumulate
+
+    x = design.x  # [1, treatment, covariates]; centring stands for the constant
     k = x.shape[1]
-    d_cols = [0] + list(range(2, k))
-    rss_d = _rss(x[:, d_cols], design.t)
-    rss_y = _rss(x, design.y)
+    moments = accumulate(np.column_stack([x[:, 1:], design.y]))
+    t_at, y_at = 0, k - 1
+    covariates = list(range(1, k - 1))
+    rss_d = moments.residual_ss(t_at, covariates)
+    rss_y = moments.residual_ss(y_at, [t_at, *covariates])
     out = {}
     for var, idx in design.groups.items():
         if var.startswith("_"):
             continue
-        drop = {2 + i for i in idx}
-        rss_d_red = _rss(x[:, [c for c in d_cols if c not in drop]], design.t)
-        rss_y_red = _rss(x[:, [c for c in range(k) if c not in drop]], design.y)
+        drop = {1 + i for i in idx}
+        kept = [c for c in covariates if c not in drop]
+        rss_d_red = moments.residual_ss(t_at, kept)
+        rss_y_red = moments.residual_ss(y_at, [t_at, *kept])
         out[var] = (max(0.0, (rss_d_red - rss_d) / rss_d_red) if rss_d_red > 0 else 0.0,
                     max(0.0, (rss_y_red - rss_y) / rss_y_red) if rss_y_red > 0 else 0.0)
     return out
