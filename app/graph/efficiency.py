@@ -90,7 +90,9 @@ def _sibling_chain(starts: set[str], pool: set[str], hidden_of: dict[str, set[st
     for b in pool:
         for h in hidden_of[b]:
             members.setdefault(h, []).append(b)
-    found, frontier, used = set(), list(starts), set()
+    found: set[str] = set()
+    used: set[str] = set()
+    frontier = list(starts)
     while frontier:
         for h in hidden_of[frontier.pop()] - used:
             used.add(h)
