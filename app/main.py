@@ -57,6 +57,7 @@ def create_app(db_path: str | Path | None = None, *, data_dir: str | Path | None
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
+        sessions.follow_other_processes()
         if settings.demo_session:
             await _create_demo_session(sessions, settings)
         yield

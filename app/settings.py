@@ -68,7 +68,7 @@ def _env(name: str, default: str) -> str:
 
 @dataclass
 class Settings:
-    db_path: Path | str = field(default_factory=lambda: Path(_env("db_path", str(user_data_dir() / "arrowmoot.sqlite3"))))
+    db_path: Path | str = field(default_factory=lambda: _env("db_path", str(user_data_dir() / "arrowmoot.sqlite3")))
     data_dir: Path | None = field(default_factory=lambda: _optional_path(_env("data_dir", "")))
     upload_limit_bytes: int = field(
         default_factory=lambda: int(_env("upload_limit_bytes", str(500 * 1024 * 1024)))

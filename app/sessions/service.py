@@ -22,13 +22,13 @@ from pathlib import Path
 from typing import Any, Callable
 
 from ..errors import (
-    BadKey, BadRequest, ExpiredKey, NoKey, NotFound, UnknownJoinCode, UnknownSession, WrongSession, WrongStage,
+    AppError, BadKey, BadRequest, ExpiredKey, NoKey, NotFound, UnknownJoinCode, UnknownSession, WrongSession, WrongStage,
 )
 from ..estimation.design import propose_mapping
 from ..estimation.tables import load_table
 from ..graph.errors import DiagramError
 from ..reporting.bundle import BundleError, attachments_from_bundle, restore_workshop
-from ..storage import Store
+from ..storage import StaleRevision, Store
 from ..workshop.commands import add_member, apply_command, new_workshop, read_document
 from ..workshop.events import Event, new_event
 from ..workshop.models import Member, Role, Workshop
@@ -45,6 +45,9 @@ READ_ONLY_KEY = "record.read_only"
 SOURCE_KEY = "record.source"
 IMPORT_MODES = ("new", "read-only")
 MAX_COMMAND_KEY = 100
+# Times a change is redone on a fresh copy when another server process stored a
+# change to the same session first (the database decides the order).
+STALE_RETRIES = 20
 
 Listener = Callable[[Workshop, "Event | None"], None]
 
@@ -102,25 +105,69 @@ class Sessions:
         self._workshops.pop(session_id, None)
         self._keyed.pop(session_id, None)
 
-    def _save(self, w: Workshop, event: Event, **extra: Any) -> None:
-        """Store the change just made to ``w``; if the store refuses it, drop the changed copy."""
+    def _save(self, w: Workshop, event: Event, before: int, **extra: Any) -> bool:
+        """Store the change just made to ``w`` (at revision ``before`` until then); if the store
+        refuses it, drop the changed copy. False when another process stored a change to the
+        session first: the copy is dropped and the change must be made again on a fresh one."""
         stored = False
         try:
             self.store.save_change(session_id=w.id, state=w.to_state(), revision=w.revision,
-                                   event=event, **extra)
+                                   event=event, expected_revision=before, **extra)
             stored = True
+        except StaleRevision:
+            return False
         finally:
             if not stored:
                 # Nothing was stored (one transaction), so the store still holds the
                 # session as it was. (No copy of the whole state is kept per edit for
                 # this rare case.)
                 self._drop(w.id)
+        return True
+
+    @staticmethod
+    def _too_busy() -> AppError:
+        return AppError("the session changed many times while this change was being stored; send it again",
+                        code="session_busy", status=503)
 
     def _changed(self, w: Workshop, event: Event | None) -> None:
         for listener in list(self._listeners):
             listener(w, event)
         if not (event and event.get("kind") == "move_variable"):
             self.analysis.schedule(w.id)  # positions do not change the analysis
+
+    # -- changes stored by other server processes -------------------------------------
+    def follow_other_processes(self) -> None:
+        """Hear of changes other server processes store (PostgreSQL), and publish them here too.
+
+        Called once the event loop runs; the store's listener thread hands each notice
+        to the loop. With SQLite (one process) there is nothing to hear."""
+        loop = asyncio.get_running_loop()
+
+        def heard(session_id: str | None, revision: int) -> None:
+            loop.call_soon_threadsafe(self._catch_up, session_id, revision)
+
+        self.store.listen(heard)
+
+    def _catch_up(self, session_id: str | None, revision: int) -> None:
+        """Read again a live session another process changed (every live one for ``None``,
+        after notices may have been missed) and publish what changed: the one new event
+        as itself, several as the full state."""
+        for sid in [session_id] if session_id else list(self._workshops):
+            old = self._workshops.get(sid)
+            if old is None or (session_id and old.revision >= revision):
+                continue  # not live here, or this process's own change
+            if self._lock(sid).locked():  # a change is being made here; look again just after it
+                asyncio.get_running_loop().call_later(0.05, self._catch_up, sid, revision)
+                continue
+            self._drop(sid)
+            try:
+                w = self.workshop(sid)
+            except NotFound:
+                continue
+            if w.revision == old.revision:
+                continue
+            new = [e for e in w.log if e["revision"] > old.revision]
+            self._changed(w, new[0] if len(new) == 1 and w.revision == old.revision + 1 else None)
 
     # -- keys -------------------------------------------------------------------------
     def authenticate(self, session_id: str, key: str | None) -> Member:
@@ -215,12 +262,17 @@ class Sessions:
     async def join(self, code: Any, name: Any) -> tuple[Workshop, Member, str]:
         """Join with a join code and a display name; return the member and their key."""
         w = self.find_by_join_code(code)
-        async with self._lock(w.id):
-            w = self.workshop(w.id)  # the live copy, should a failed store have replaced it
-            member_id = keys.new_member_id()
-            member, event = add_member(w, member_id=member_id, name=name, now=time.time())
-            key = keys.new_key(member_id)
-            self._save(w, event, token_hash=keys.hash_key(key), member_id=member_id)
+        for _ in range(STALE_RETRIES):
+            async with self._lock(w.id):
+                w = self.workshop(w.id)  # the live copy, should a failed store have replaced it
+                before = w.revision
+                member_id = keys.new_member_id()
+                member, event = add_member(w, member_id=member_id, name=name, now=time.time())
+                key = keys.new_key(member_id)
+                if self._save(w, event, before, token_hash=keys.hash_key(key), member_id=member_id):
+                    break
+        else:
+            raise self._too_busy()
         self._changed(w, event)
         return w, member, key
 
@@ -292,28 +344,34 @@ class Sessions:
             raise BadRequest("a command key must be text of 1 to 100 characters",
                              code="invalid_key")
         self.workshop(session_id)  # NotFound for an unknown session
-        async with self._lock(session_id):
-            # Fetched under the lock: a change that failed to store while this one waited
-            # has dropped the copy it had changed.
-            w = self.workshop(session_id)
-            if key is not None:
-                earlier = self._find_keyed(session_id, f"{member.id}:{key}")
-                if earlier is not None:
-                    return dict(earlier, replayed=True)  # type: ignore[return-value]
-            self.pacer.take(session_id, member.id, command)
-            now = time.time()
-            previous = w.log[-1] if w.log else None
-            event = apply_command(w, w.members.get(member.id, member), command, now=now)
-            if key is not None:
-                event["key"] = f"{member.id}:{key}"
-            replaces = None
-            if folds_into(previous, member.id, command, now):
-                # One history entry for a burst of moves of one variable by one member.
-                replaces = previous["revision"]
-                event["keys"] = previous.get("keys", []) + ([previous["key"]] if "key" in previous else [])
-                w.log.remove(previous)
-                self._keyed.pop(session_id, None)
-            self._save(w, event, mark_undone=event.get("undoes"), replaces=replaces)
+        for attempt in range(STALE_RETRIES):
+            async with self._lock(session_id):
+                # Fetched under the lock: a change that failed to store while this one waited
+                # has dropped the copy it had changed.
+                w = self.workshop(session_id)
+                if key is not None:  # looked up again on a fresh copy: another process may have applied it
+                    earlier = self._find_keyed(session_id, f"{member.id}:{key}")
+                    if earlier is not None:
+                        return dict(earlier, replayed=True)  # type: ignore[return-value]
+                if attempt == 0:
+                    self.pacer.take(session_id, member.id, command)
+                now = time.time()
+                before = w.revision
+                previous = w.log[-1] if w.log else None
+                event = apply_command(w, w.members.get(member.id, member), command, now=now)
+                if key is not None:
+                    event["key"] = f"{member.id}:{key}"
+                replaces = None
+                if folds_into(previous, member.id, command, now):
+                    # One history entry for a burst of moves of one variable by one member.
+                    replaces = previous["revision"]
+                    event["keys"] = previous.get("keys", []) + ([previous["key"]] if "key" in previous else [])
+                    w.log.remove(previous)
+                    self._keyed.pop(session_id, None)
+                if self._save(w, event, before, mark_undone=event.get("undoes"), replaces=replaces):
+                    break
+        else:
+            raise self._too_busy()
         self._changed(w, event)
         return event
 
@@ -335,13 +393,18 @@ class Sessions:
                    kind: str = "note", **extra: Any) -> Event:
         """Log an event from another part of the app (data attached, say) and publish it."""
         self.workshop(session_id)
-        async with self._lock(session_id):
-            w = self.workshop(session_id)
-            w.revision += 1
-            event = new_event(revision=w.revision, at=time.time(), actor=member, kind=kind,
-                              summary=summary, **extra)
-            w.log.append(event)
-            self._save(w, event)
+        for _ in range(STALE_RETRIES):
+            async with self._lock(session_id):
+                w = self.workshop(session_id)
+                before = w.revision
+                w.revision += 1
+                event = new_event(revision=w.revision, at=time.time(), actor=member, kind=kind,
+                                  summary=summary, **extra)
+                w.log.append(event)
+                if self._save(w, event, before):
+                    break
+        else:
+            raise self._too_busy()
         self._changed(w, event)
         return event
 

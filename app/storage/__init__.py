@@ -13,9 +13,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .base import SchemaTooNew, StorageError, Store, StoreUnavailable, StoredEvent, is_database_url, redact_url
+from .base import (ChangeListener, SchemaTooNew, StaleRevision, StorageError, Store, StoreUnavailable, StoredEvent,
+                   is_database_url, redact_url)
 
-__all__ = ["Store", "StoredEvent", "StorageError", "StoreUnavailable", "SchemaTooNew",
+__all__ = ["Store", "StoredEvent", "StorageError", "StoreUnavailable", "SchemaTooNew", "StaleRevision",
+           "ChangeListener",
            "open_store", "is_database_url", "redact_url"]
 
 

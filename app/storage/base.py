@@ -4,13 +4,17 @@ from __future__ import annotations
 
 import re
 from pathlib import Path
-from typing import Any, Iterator, Protocol
+from typing import Any, Callable, Iterator, Protocol
 from urllib.parse import urlsplit, urlunsplit
 
-__all__ = ["Store", "StoredEvent", "StorageError", "StoreUnavailable", "SchemaTooNew",
+__all__ = ["Store", "StoredEvent", "StorageError", "StoreUnavailable", "SchemaTooNew", "StaleRevision",
+           "ChangeListener",
            "is_database_url", "redact_url", "session_folder"]
 
 StoredEvent = dict[str, Any]
+# Called with (session_id, revision) after another process stored a change, and with
+# (None, 0) after notifications may have been missed (catch up on every session).
+ChangeListener = Callable[[str | None, int], None]
 
 URL_SCHEMES = ("postgresql://", "postgres://")
 _SAFE_ID = re.compile(r"^[A-Za-z0-9_-]{1,64}$")
@@ -22,6 +26,10 @@ class StorageError(Exception):
 
 class StoreUnavailable(StorageError):
     """The database cannot be reached or opened."""
+
+
+class StaleRevision(Exception):
+    """Another writer stored a change to the session first: read it again and redo the change."""
 
 
 class SchemaTooNew(StorageError):
@@ -71,7 +79,9 @@ class Store(Protocol):
                        member_id: str | None = None) -> None: ...
     def save_change(self, *, session_id: str, state: dict, revision: int, event: dict,
                     token_hash: str | None = None, member_id: str | None = None,
-                    mark_undone: int | None = None, replaces: int | None = None) -> None: ...
+                    mark_undone: int | None = None, replaces: int | None = None,
+                    expected_revision: int | None = None) -> None: ...
+    def listen(self, listener: ChangeListener) -> None: ...  # changes stored by other processes
     def load_session(self, session_id: str) -> tuple[dict, int] | None: ...
     def session_exists(self, session_id: str) -> bool: ...
     def count_sessions(self) -> int: ...

@@ -12,6 +12,8 @@ Tokens are never stored: ``tokens`` keeps their SHA-256 digests.
 from __future__ import annotations
 
 import json
+import logging
+import threading
 import time
 from pathlib import Path
 from typing import Any, Iterator
@@ -20,7 +22,7 @@ import psycopg
 from psycopg.rows import dict_row
 from psycopg_pool import ConnectionPool
 
-from .base import StorageError, StoreUnavailable, StoredEvent, redact_url, session_folder
+from .base import ChangeListener, StaleRevision, StorageError, StoreUnavailable, StoredEvent, redact_url, session_folder
 from .migrations import VERSION_TABLE_SQL, check_not_newer, migrations_for
 
 __all__ = ["PostgresStore"]
@@ -29,6 +31,12 @@ __all__ = ["PostgresStore"]
 # upgrade the schema one after the other.
 _MIGRATION_LOCK = 0x4172726F  # any fixed number; "Arro" in ASCII
 CONNECT_TIMEOUT = 5  # seconds
+# Every stored change is announced on this channel as "<session id> <revision>",
+# delivered by PostgreSQL to every listening connection when the transaction commits.
+CHANNEL = "arrowmoot_changes"
+RECONNECT_PAUSE = 1.0  # seconds between attempts to listen again
+
+log = logging.getLogger("arrowmoot")
 
 
 def _first_line(exc: BaseException) -> str:
@@ -56,6 +64,7 @@ class PostgresStore:
                 "server is running and accepts connections there, and that the database exists "
                 "(createdb NAME)") from exc
         self._pool_size = pool_size
+        self._stop_listening = threading.Event()
         self._pool = self._new_pool()
 
     def _new_pool(self) -> ConnectionPool:
@@ -74,7 +83,8 @@ class PostgresStore:
         return self._pool.connection()
 
     def release(self) -> None:
-        """Close the pooled connections (made again on the next use)."""
+        """Stop listening and close the pooled connections (made again on the next use)."""
+        self._stop_listening.set()
         self._pool.close()
 
     def _migrate(self, conn: psycopg.Connection, upgrade_to: int | None) -> None:
@@ -110,7 +120,44 @@ class PostgresStore:
         return int(row["version"] if isinstance(row, dict) else row[0])
 
     def close(self) -> None:
+        self._stop_listening.set()
         self._pool.close()
+
+    # -- changes made by other processes ---------------------------------------------
+    def listen(self, listener: ChangeListener) -> None:
+        """Call ``listener(session_id, revision)`` (in a thread of its own) for every change
+        any process stores, and ``listener(None, 0)`` each time listening starts again after
+        the connection was lost, since notifications sent meanwhile are gone: the listener
+        then catches up from the stored sessions."""
+        self._stop_listening = threading.Event()
+        thread = threading.Thread(target=self._listen_loop, args=(listener,), name="arrowmoot-listen",
+                                  daemon=True)
+        thread.start()
+
+    def _listen_loop(self, listener: ChangeListener) -> None:
+        first = True
+        stop = self._stop_listening
+        while not stop.is_set():
+            try:
+                with psycopg.connect(self.url, autocommit=True, connect_timeout=CONNECT_TIMEOUT) as conn:
+                    conn.execute(f"LISTEN {CHANNEL}".encode())
+                    if not first:
+                        log.info("listening for changes again; catching up from the stored sessions")
+                        listener(None, 0)
+                    first = False
+                    while not stop.is_set():
+                        for note in conn.notifies(timeout=1.0):
+                            session_id, _, revision = note.payload.partition(" ")
+                            listener(session_id, int(revision or 0))
+            except psycopg.Error as exc:
+                if stop.is_set():
+                    return
+                log.warning("lost the change notifications from %s (%s); trying again", self.where,
+                            _first_line(exc))
+                first = False
+                stop.wait(RECONNECT_PAUSE)
+            except Exception:  # a failing listener must not end the thread
+                log.exception("a change notification could not be handled")
 
     def schema_version(self) -> int:
         with self._connection() as conn:
@@ -153,23 +200,32 @@ class PostgresStore:
                 )
             if event is not None:
                 self._insert_event(conn, session_id, event)
+            self._announce(conn, session_id, revision)
 
     def save_change(
         self, *, session_id: str, state: dict, revision: int, event: dict,
         token_hash: str | None = None, member_id: str | None = None,
         mark_undone: int | None = None, replaces: int | None = None,
+        expected_revision: int | None = None,
     ) -> None:
         """Store the new state and its event (and a new member's token) atomically.
 
         ``replaces`` names the revision of an event the new one stands for (a burst of
-        moves folded into one history entry): that event is removed."""
+        moves folded into one history entry): that event is removed. With
+        ``expected_revision`` the change is stored only while the session is still at
+        that revision (the row is locked meanwhile); else StaleRevision, nothing stored."""
         now = time.time()
         with self._connection() as conn:
             cur = conn.execute(
-                "UPDATE sessions SET state = %s, revision = %s, updated = %s, title = %s WHERE id = %s",
-                (json.dumps(state), revision, now, state.get("title", ""), session_id),
+                "UPDATE sessions SET state = %s, revision = %s, updated = %s, title = %s WHERE id = %s"
+                + ("" if expected_revision is None else " AND revision = %s"),
+                (json.dumps(state), revision, now, state.get("title", ""), session_id)
+                + (() if expected_revision is None else (expected_revision,)),
             )
             if cur.rowcount != 1:
+                if expected_revision is not None and conn.execute(
+                        "SELECT 1 FROM sessions WHERE id = %s", (session_id,)).fetchone() is not None:
+                    raise StaleRevision(session_id)
                 raise KeyError(session_id)
             if token_hash is not None:
                 conn.execute(
@@ -190,6 +246,11 @@ class PostgresStore:
                 conn.execute("DELETE FROM events WHERE session_id = %s AND revision = %s",
                              (session_id, replaces))
             self._insert_event(conn, session_id, event)
+            self._announce(conn, session_id, revision)
+
+    @staticmethod
+    def _announce(conn: psycopg.Connection, session_id: str, revision: int) -> None:
+        conn.execute("SELECT pg_notify(%s, %s)", (CHANNEL, f"{session_id} {revision}"))
 
     @staticmethod
     def _insert_event(conn: psycopg.Connection, session_id: str, event: dict) -> None:

@@ -18,7 +18,7 @@ import time
 from pathlib import Path
 from typing import Any, Iterator
 
-from .base import StorageError, StoreUnavailable, StoredEvent, session_folder
+from .base import ChangeListener, StaleRevision, StorageError, StoreUnavailable, StoredEvent, session_folder
 from .migrations import VERSION_TABLE_SQL, check_not_newer, migrations_for
 
 __all__ = ["SQLiteStore", "StoredEvent"]
@@ -87,6 +87,9 @@ class SQLiteStore:
                     raise
         with self._lock:
             check_not_newer(self.schema_version(), self.kind, where)
+
+    def listen(self, listener: ChangeListener) -> None:
+        """Nothing to listen to: one file is served by one process."""
 
     def schema_version(self) -> int:
         with self._lock:
@@ -157,18 +160,26 @@ class SQLiteStore:
         self, *, session_id: str, state: dict, revision: int, event: dict,
         token_hash: str | None = None, member_id: str | None = None,
         mark_undone: int | None = None, replaces: int | None = None,
+        expected_revision: int | None = None,
     ) -> None:
         """Store the new state and its event (and a new member's token) atomically.
 
         ``replaces`` names the revision of an event the new one stands for (a burst of
-        moves folded into one history entry): that event is removed."""
+        moves folded into one history entry): that event is removed. With
+        ``expected_revision`` the change is stored only while the session is still at
+        that revision (the row is locked meanwhile); else StaleRevision, nothing stored."""
         now = time.time()
         with self._transaction() as conn:
             cur = conn.execute(
-                "UPDATE sessions SET state = ?, revision = ?, updated = ?, title = ? WHERE id = ?",
-                (json.dumps(state), revision, now, state.get("title", ""), session_id),
+                "UPDATE sessions SET state = ?, revision = ?, updated = ?, title = ? WHERE id = ?"
+                + ("" if expected_revision is None else " AND revision = ?"),
+                (json.dumps(state), revision, now, state.get("title", ""), session_id)
+                + (() if expected_revision is None else (expected_revision,)),
             )
             if cur.rowcount != 1:
+                if expected_revision is not None and conn.execute(
+                        "SELECT 1 FROM sessions WHERE id = ?", (session_id,)).fetchone() is not None:
+                    raise StaleRevision(session_id)
                 raise KeyError(session_id)
             if token_hash is not None:
                 conn.execute(

@@ -35,15 +35,16 @@ def free_port() -> int:
 class LiveServer:
     """One server process on a fixed port; it can be killed and started again on the same file."""
 
-    def __init__(self, folder: Path, *, demo: bool = False):
+    def __init__(self, folder: Path, *, demo: bool = False, db: str | None = None):
         self.folder = Path(folder)
         self.demo = demo
+        self.db = db or str(self.folder / "live.sqlite3")  # a file, or a PostgreSQL URL several servers share
         self.port = free_port()
         self.base = f"http://127.0.0.1:{self.port}"
         self.proc: subprocess.Popen | None = None
 
     def start(self) -> None:
-        env = dict(os.environ, ARROWMOOT_DB_PATH=str(self.folder / "live.sqlite3"),
+        env = dict(os.environ, ARROWMOOT_DB_PATH=self.db,
                    ARROWMOOT_DATA_DIR=str(self.folder), ARROWMOOT_DEMO_SESSION="1" if self.demo else "0")
         code = ("import uvicorn; from app.main import create_app; "
                 f"uvicorn.run(create_app(), host='127.0.0.1', port={self.port}, log_level='warning')")
