@@ -62,7 +62,7 @@ def test_mapping_shows_kinds_warns_and_offers_missing(tmp_path):
         page.wait_for_selector("[data-warning='age']")
         assert "warning" in page.locator(".am-message").inner_text()
         assert "'east' the reference level" in page.locator("[data-warning='age']").inner_text()
-        page.locator("section[aria-label='Measures']").screenshot(path=str(ARTIFACTS / "mapping_warnings.png"))
+        page.screenshot(path=str(ARTIFACTS / "mapping_warnings.png"))
         page.select_option("select[data-variable='age']", "age")
         page.click("button[data-action='text-as-missing'][data-column='fitness']")
         page.wait_for_selector("[data-note='text-as-missing']")
@@ -72,7 +72,7 @@ def test_mapping_shows_kinds_warns_and_offers_missing(tmp_path):
         page.wait_for_selector(".am-result")
         coding = page.locator("[data-result='coding']").inner_text()
         assert "department" in coding and "reference level" in coding
-        page.locator("section[aria-label='Estimate']").screenshot(path=str(ARTIFACTS / "estimate_coding.png"))
+        page.screenshot(path=str(ARTIFACTS / "estimate_coding.png"))
         browser.close()
         assert errors == []
 
@@ -112,6 +112,40 @@ def test_only_applicable_methods_are_offered_and_labels_stay_true(tmp_path):
         assert "earlier one" in page.locator(".am-message").inner_text()
         assert page.locator("select[name='method']").input_value() != "weighting"
         assert page.locator("[data-note='method-differs']").count() == 0
-        page.locator("section[aria-label='Estimate']").screenshot(path=str(ARTIFACTS / "methods_offered.png"))
+        page.screenshot(path=str(ARTIFACTS / "methods_offered.png"))
         browser.close()
         assert errors == []
+
+
+def test_upload_checks_size_first_and_confirms_before_discarding(tmp_path, monkeypatch):
+    from playwright.sync_api import sync_playwright
+
+    monkeypatch.setenv("ARROWMOOT_UPLOAD_LIMIT_BYTES", "400000")
+    big = tmp_path / "big.csv"
+    big.write_text("a,b\n" + "1,2\n" * 120_000)  # 480 kB, over the limit
+    with running_server(tmp_path) as base, sync_playwright() as p:
+        sid, token = _session(base)
+        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1440, "height": 900})
+        sent: list[str] = []
+        page.on("request", lambda r: sent.append(r.url) if r.method == "PUT" else None)
+        page.goto(f"{base}/s/{sid}#key={token}")
+        with page.expect_response(lambda r: r.url.endswith("/estimation") and r.request.method == "GET"):
+            page.click("button[data-tab='estimation']")
+        page.set_input_files("input[name='data-file']", str(big))
+        page.wait_for_selector(".am-message.am-error")
+        assert "Nothing was sent" in page.locator(".am-message").inner_text()
+        assert page.locator("button[data-action='upload']").is_disabled() and sent == []
+        page.set_input_files("input[name='data-file']", str(SAMPLE / "cycle_to_work.csv"))
+        page.click("button[data-action='upload']")
+        page.wait_for_selector("text=Attached cycle_to_work.csv")
+        page.click("button[data-action='estimate']")
+        page.wait_for_selector(".am-result")
+        page.set_input_files("input[name='data-file']", str(SAMPLE / "cycle_to_work.csv"))
+        page.click("button[data-action='upload']")
+        page.wait_for_selector("dialog.confirm-step")
+        assert "discards the results" in page.locator("dialog.confirm-step").inner_text()
+        page.screenshot(path=str(ARTIFACTS / "upload_confirm.png"))
+        page.locator("dialog.confirm-step button", has_text="Cancel").click()
+        assert page.locator(".am-result").count() == 1 and len(sent) == 1
+        browser.close()

@@ -135,9 +135,11 @@ def test_bad_file_message_and_participant_view(server, tmp_path):
         page.wait_for_selector(".am-result")
         page.set_input_files("input[name='data-file']", str(broken))
         page.click("button[data-action='upload']")
+        page.locator("dialog.confirm-step button", has_text="Attach and discard them").click()
         alert = page.locator(".am-message.am-error")
         alert.wait_for()
         assert "broken.csv has only one data row" in alert.inner_text()
+        assert page.locator("button[data-action='upload']").is_disabled()  # the refused file is not offered again
         assert "cycle_to_work.csv: 4,000 rows" in page.locator("section[aria-label='Data']").inner_text()
         page.screenshot(path=str(ARTIFACTS / "estimation_refused_upload.png"))
 

@@ -8,6 +8,7 @@ import {
   postCommand,
 } from './api.js';
 import { vocabulary } from './vocabulary.js';
+import { confirmStep } from './dialogs.js';
 
 // The stages data may be attached in (the server's rule table).
 const DATA_STAGES = new Set(vocabulary.permissions?.attach_data?.stages || []);
@@ -113,6 +114,7 @@ class EstimationPanel {
         || Object.values(results).some((r) => r?.stale);
       this.data = data.data;
       this.variables = data.variables;
+      this.uploadLimit = data.upload_limit_bytes;
       this.results = results;
       this.loaded = true;
       if (data.validation_run?.state === 'running' && !this.polling) this.followValidation(data.validation_run);
@@ -139,15 +141,42 @@ class EstimationPanel {
     this.onIdle?.();
   }
 
-  upload(file) {
+  /** Attach a file: refused at once when over the server's limit; confirmed first when results would be discarded. */
+  async upload(file) {
+    const held = Object.entries(this.results).filter(([, r]) => r).map(([k]) => k);
+    if (held.length) {
+      const ok = await confirmStep('Attach a new data file?', {
+        text: [`Attaching ${file.name} discards the results computed on ${this.data?.name || 'the current file'}:`],
+        items: held, after: 'They can be computed again on the new file.', confirm: 'Attach and discard them' });
+      if (!ok) return;
+    }
     return this.act('upload', async () => {
-      const body = await uploadEstimationData(this.context.sessionId, this.context.token, file);
+      let body;
+      try {
+        body = await uploadEstimationData(this.context.sessionId, this.context.token, file);
+      } catch (err) {
+        this.pendingFile = null; // a refused file is not offered again
+        throw err;
+      }
       this.data = body.data;
       this.pendingFile = null;
       this.draftMapping = {};
       for (const key of Object.keys(this.results)) this.results[key] = null;
       this.message = { kind: 'ok', text: `Attached ${file.name}: ${body.data.rows} rows, ${body.data.columns.length} columns.` };
     });
+  }
+
+  /** A file picked: refused here, before sending, when it is over the size limit. */
+  choose(file) {
+    const limit = this.uploadLimit;
+    this.pendingFile = file;
+    if (file && limit && file.size > limit) {
+      this.pendingFile = null;
+      this.message = { kind: 'error', text: `${file.name} is ${(file.size / 1048576).toFixed(1)} MB; the limit is ${(limit / 1048576).toFixed(1)} MB. Nothing was sent.` };
+    } else {
+      this.message = null;
+    }
+    this.render();
   }
 
   saveMapping(textAsMissing) {
@@ -328,7 +357,7 @@ class EstimationPanel {
       const input = el('input', {
         type: 'file', accept: '.csv,.parquet,text/csv', name: 'data-file', 'aria-label': 'Data file (CSV or Parquet)',
         disabled: !this.isOpenForData,
-        on: { change: (e) => { this.pendingFile = e.target.files?.[0] || null; this.render(); } },
+        on: { change: (e) => this.choose(e.target.files?.[0] || null) },
       });
       const attach = this.button('Attach', 'upload', () => { if (this.pendingFile) this.upload(this.pendingFile); }, true);
       if (!this.pendingFile) attach.disabled = true;

@@ -132,7 +132,7 @@ def _variables(access) -> list[dict]:
 
 
 @router.get("")
-def read_estimation(access: MemberDep) -> dict:
+def read_estimation(access: MemberDep, request: Request) -> dict:
     """What is attached, how it is mapped, and the latest results."""
     info = access.get_attachment(DATA_KEY)
     if info and info.get("mapping") is None:
@@ -141,7 +141,7 @@ def read_estimation(access: MemberDep) -> dict:
         info = {**_with_warnings(access, info), "sample_data": is_sample_file(access.data_dir() / info["stored"]),
                 "methods": _offer(access, info)}
     out = {"ok": True, "stage": access.stage, "revision": access.revision, "data": info,
-           "variables": _variables(access)}
+           "variables": _variables(access), "upload_limit_bytes": request.app.state.settings.upload_limit_bytes}
     fingerprint = _fingerprint(access)
     for key in RESULT_KEYS:
         result = access.get_attachment(key)
