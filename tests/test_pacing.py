@@ -49,7 +49,7 @@ def test_folding_needs_same_member_same_variable_and_a_short_gap():
 
 
 def test_http_commands_past_the_rate_get_a_clear_429(client, room):
-    client.app.state.sessions.pacer = CommandPacer(rate=0.5, burst=30)
+    client.app.state.sessions.pacer = CommandPacer(rate=0.5, burst=30, clock=lambda: 0.0)  # no refill, however slow the machine
     ann = room.join("Ann")
     answers = [client.post(f"/api/sessions/{room.id}/commands", json={"type": "add_variable", "name": f"v{i}"},
                            headers={"X-Arrowmoot-Token": ann}) for i in range(40)]
