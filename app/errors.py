@@ -57,6 +57,12 @@ class NotFound(AppError):
     kind = code = "not_found"
 
 
+class SessionBusy(AppError):
+    """Other processes kept changing the session while this change was being stored."""
+    kind = "unavailable"
+    code = "session_busy"
+
+
 class Conflict(AppError):
     kind = code = "conflict"
 

@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any, Callable
 
 from ..errors import (
-    AppError, BadKey, BadRequest, ExpiredKey, NoKey, NotFound, UnknownJoinCode, UnknownSession, WrongSession, WrongStage,
+    AppError, BadKey, SessionBusy, BadRequest, ExpiredKey, NoKey, NotFound, UnknownJoinCode, UnknownSession, WrongSession, WrongStage,
 )
 from ..estimation.design import propose_mapping
 from ..estimation.tables import load_table
@@ -126,8 +126,7 @@ class Sessions:
 
     @staticmethod
     def _too_busy() -> AppError:
-        return AppError("the session changed many times while this change was being stored; send it again",
-                        code="session_busy", status=503)
+        return SessionBusy("the session changed many times while this change was being stored; send it again")
 
     def _changed(self, w: Workshop, event: Event | None) -> None:
         for listener in list(self._listeners):
